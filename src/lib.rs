@@ -1,0 +1,61 @@
+//! # iqaudit — audit recorded baseband IQ captures
+//!
+//! iqaudit reads a recorded baseband IQ capture, finds every occurrence of a
+//! user-described training block, fits a multi-tap complex channel over the
+//! training symbols, equalises the payload with decision feedback and reports
+//! EVM, MER, error counts, channel taps and decision-error runs.
+//!
+//! The library is usable without the command-line front end. The modules follow
+//! the data flow:
+//!
+//! ```text
+//! capture ──► signal definitions ──► sync ──► channel ──► equalise ──► report
+//!   (raw/WAV/SigMF)  (constellations,   (find bursts,  (LS taps,   (ZF-DFE,     (metrics,
+//!                     sequences, RRC)    CFO, timing)   noise)      MMSE-DFE…)   JSON, plots)
+//! ```
+//!
+//! with `synth` (test captures with known ground truth) and `batch` beside them.
+//!
+//! ## Conventions (apply everywhere in the crate)
+//!
+//! * **Samples** are [`Cf32`] (`Complex<f32>`). Integer capture formats are scaled
+//!   so that full scale is 1.0: `ci16` divides by 32768, `ci8` by 128, `cu8` maps
+//!   code `x` to `(x − 127.5) / 127.5`; PCM WAV likewise. A sample sitting at the
+//!   most negative or most positive integer code counts as clipped.
+//! * **Carrier frequency offset** (`cfo_hz`): the received signal is the ideal
+//!   baseband signal multiplied by `exp(+j·2π·cfo_hz·t)`, so a positive `cfo_hz`
+//!   means the received carrier sits above the nominal one. Correction multiplies
+//!   by `exp(−j·2π·cfo_hz·t)`. Carrier phase (`phase_rad`) is the residual phase of
+//!   the received training block relative to the reference, at the first training
+//!   symbol, after CFO correction.
+//! * **Channel taps**: the symbol-spaced model is
+//!   `y[k] = Σ_{i=−P}^{Q} h[i]·x[k−i] + n[k]`. Taps are stored in the order
+//!   `h[−P], …, h[−1], h[0], h[1], …, h[Q]`; the *main tap* `h[0]` sits at index
+//!   `P` (`main_index`). Taps with `i < 0` are **pre-cursor** (a later symbol
+//!   leaks into the current sample), taps with `i > 0` are **post-cursor** (an
+//!   earlier symbol leaks in; this is what the decision feedback cancels).
+//! * **Symbol energy and noise**: constellations have unit mean power. Es/N0 is
+//!   symbol energy over noise power spectral density; at the symbol-rate matched
+//!   filter output (unit-energy pulse) it equals `E|x|² / E|n|²`, which is what
+//!   "SNR" means in this crate.
+//! * **EVM** is RMS: `sqrt(Σ|z−s|² / Σ|s|²)` where `s` are the reference symbols
+//!   (the known payload — data-aided — or the decisions), i.e. normalised to the
+//!   mean reference constellation power as 3GPP TS 36.104 / 38.104 define it.
+//!   `evm_rms_percent = 100·EVM`, `evm_rms_db = 20·log10(EVM)`.
+//!   **MER** (ETSI TR 101 290) is `10·log10(Σ|s|² / Σ|z−s|²)`; with the same
+//!   reference `mer_db = −evm_rms_db`.
+//! * **dB**: powers use `10·log10`, amplitude ratios `20·log10`. `dBFS` is power
+//!   relative to a full-scale complex sample (`|x|² = 1` → 0 dBFS).
+//! * **FFT normalisation**: rustfft's forward and inverse transforms are both
+//!   unnormalised; code that needs an inverse divides by `N` explicitly and says so.
+//! * **Units in names**: `_hz`, `_db`, `_percent`, `_samples`, `_symbols`,
+//!   `_bytes`, `_rad`; `start_sample` is an index into the capture's complex
+//!   samples counted from 0.
+#![deny(missing_docs)]
+
+use num_complex::Complex;
+
+/// One complex baseband sample or symbol, single precision.
+pub type Cf32 = Complex<f32>;
+/// One complex value in double precision (used where sums must not drift).
+pub type Cf64 = Complex<f64>;
