@@ -1,0 +1,8 @@
+//! Reporting: figures of merit, the JSON audit trail and its atomic writer.
+//!
+//! Takes the per-burst results of the analysis and gives the report document
+//! (schema `iqaudit-report/1`), the terminal summary and the plots.
+
+pub mod metrics;
+pub mod schema;
+pub mod write;
