@@ -4,5 +4,7 @@
 //! (schema `iqaudit-report/1`), the terminal summary and the plots.
 
 pub mod metrics;
+pub mod plots;
 pub mod schema;
+pub mod svg;
 pub mod write;
