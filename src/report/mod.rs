@@ -3,6 +3,7 @@
 //! Takes the per-burst results of the analysis and gives the report document
 //! (schema `iqaudit-report/1`), the terminal summary and the plots.
 
+pub mod compare;
 pub mod metrics;
 pub mod plots;
 pub mod schema;
