@@ -100,3 +100,75 @@ mod tests {
         assert_eq!(re, vec![32.0, 321.0, 210.0]);
     }
 }
+
+/// Two-sided binomial acceptance interval `[lo, hi]` for a count of successes in
+/// `n` trials with success probability `p`: the smallest `lo` and largest `hi`
+/// with `P(K < lo) ≤ (1−conf)/2` and `P(K > hi) ≤ (1−conf)/2`. Exact, summed in
+/// log space (ln k! by cumulative sums), so it works for n up to a few million.
+pub fn binomial_interval(n: u64, p: f64, conf: f64) -> (u64, u64) {
+    assert!(p > 0.0 && p < 1.0 && conf > 0.0 && conf < 1.0);
+    let tail = (1.0 - conf) / 2.0;
+    let mut ln_fact = vec![0.0f64; n as usize + 1];
+    for k in 1..=n as usize {
+        ln_fact[k] = ln_fact[k - 1] + (k as f64).ln();
+    }
+    let ln_pmf = |k: u64| {
+        ln_fact[n as usize] - ln_fact[k as usize] - ln_fact[(n - k) as usize]
+            + k as f64 * p.ln()
+            + (n - k) as f64 * (1.0 - p).ln()
+    };
+    // lo: first k where the lower tail P(K ≤ k) exceeds `tail` ⇒ P(K < k) ≤ tail.
+    let mut cdf = 0.0;
+    let mut lo = 0;
+    for k in 0..=n {
+        cdf += ln_pmf(k).exp();
+        if cdf > tail {
+            lo = k;
+            break;
+        }
+    }
+    let mut sf = 0.0;
+    let mut hi = n;
+    for k in (0..=n).rev() {
+        sf += ln_pmf(k).exp();
+        if sf > tail {
+            hi = k;
+            break;
+        }
+    }
+    (lo, hi)
+}
+
+/// Gaussian-noise helper: adds complex noise of total variance `var` (each
+/// component `var/2`) from a seeded ChaCha8 generator.
+pub fn add_awgn(x: &mut [Cf32], var: f64, seed: u64) {
+    use rand_distr::{Distribution, Normal};
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    let nd = Normal::new(0.0f64, (var / 2.0).sqrt()).expect("finite variance");
+    for v in x.iter_mut() {
+        v.re += nd.sample(&mut rng) as f32;
+        v.im += nd.sample(&mut rng) as f32;
+    }
+}
+
+#[cfg(test)]
+mod binomial_tests {
+    use super::*;
+
+    #[test]
+    fn binomial_interval_matches_hand_computed_fair_coin_case() {
+        // Hand-computed: n = 10, p = 0.5: P(K = 0) = 1/1024 ≤ 0.005 < P(K ≤ 1) = 11/1024,
+        // so at 99 % the interval is [1, 9].
+        assert_eq!(binomial_interval(10, 0.5, 0.99), (1, 9));
+        // At 50 %: P(K ≤ 3) = 176/1024 ≤ 0.25 < P(K ≤ 4) = 386/1024 ⇒ [4, 6].
+        assert_eq!(binomial_interval(10, 0.5, 0.5), (4, 6));
+        // Large n: centred on n·p, width ≈ 2·2.576·√(npq) (normal approximation).
+        let (lo, hi) = binomial_interval(200_000, 0.1, 0.99);
+        let sd = (200_000.0f64 * 0.1 * 0.9).sqrt();
+        assert!(
+            ((hi - lo) as f64 - 2.0 * 2.576 * sd).abs() < 4.0,
+            "{lo} {hi}"
+        );
+        assert!(((lo + hi) as f64 / 2.0 - 20_000.0).abs() < 2.0);
+    }
+}

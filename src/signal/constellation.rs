@@ -196,7 +196,7 @@ impl FromStr for Psk8Map {
 }
 
 /// How the slicer finds the nearest point.
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, PartialEq)]
 enum Slicer {
     /// Sign of Re + Im (points on the diagonal).
     Bpsk,
@@ -216,7 +216,7 @@ enum Slicer {
 }
 
 /// A constellation: its points indexed by label and an O(1) slicer.
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, PartialEq)]
 pub struct Constellation {
     modulation: Modulation,
     psk8_map: Psk8Map,
@@ -849,5 +849,54 @@ mod tests {
         let mut labels = [0usize; 2];
         c.slice_into(&out, &mut labels);
         assert_eq!(labels, [0, 15]);
+    }
+
+    #[test]
+    fn awgn_symbol_error_rate_is_inside_the_binomial_interval_of_the_textbook_value() {
+        // Source: Proakis, Digital Communications (4th ed. §5.2) exact SER formulas, values
+        // computed in REFERENCE-VALUES.md §7 (BPSK Q(√(2Es/N0)) for the diagonal BPSK,
+        // QPSK/QAM exact, 8PSK Craig integral). Complex noise variance 1/(Es/N0).
+        // Pass band: exact two-sided 99 % binomial interval for 2e5 symbols (seeded, so the
+        // outcome is deterministic).
+        let cases: [(Modulation, f64, f64); 14] = [
+            (Modulation::Bpsk, 0.0, 7.864960e-02),
+            (Modulation::Bpsk, 5.0, 5.953867e-03),
+            (Modulation::Qpsk, 5.0, 7.393827e-02),
+            (Modulation::Qpsk, 10.0, 1.564790e-03),
+            (Modulation::Psk8, 10.0, 8.700476e-02),
+            (Modulation::Psk8, 15.0, 2.339450e-03),
+            (Modulation::Qam16, 10.0, 2.220309e-01),
+            (Modulation::Qam16, 15.0, 1.778184e-02),
+            (Modulation::Qam64, 15.0, 3.476243e-01),
+            (Modulation::Qam64, 20.0, 5.027041e-02),
+            (Modulation::Qam64, 25.0, 1.823972e-04),
+            (Modulation::Qam256, 20.0, 4.534295e-01),
+            (Modulation::Qam256, 25.0, 9.824890e-02),
+            (Modulation::Qam16, 5.0, 5.373851e-01),
+        ];
+        let n = 200_000usize;
+        for (ci, (m, esn0_db, ser)) in cases.into_iter().enumerate() {
+            let c = Constellation::new(m);
+            let mut rng = ChaCha8Rng::seed_from_u64(1000 + ci as u64);
+            let labels: Vec<usize> = (0..n).map(|_| rng.gen_range(0..c.order())).collect();
+            let mut z = vec![Cf32::new(0.0, 0.0); n];
+            c.map_labels(&labels, &mut z);
+            let var = 10f64.powf(-esn0_db / 10.0);
+            crate::testutil::add_awgn(&mut z, var, 2000 + ci as u64);
+            let errors = labels
+                .iter()
+                .zip(&z)
+                .filter(|(&l, &v)| c.slice(v) != l)
+                .count() as u64;
+            let (lo, hi) = crate::testutil::binomial_interval(n as u64, ser, 0.99);
+            eprintln!(
+                "{m} Es/N0 {esn0_db} dB: measured SER {:.4e}, textbook {ser:.4e}, 99 % band {lo}..={hi}",
+                errors as f64 / n as f64
+            );
+            assert!(
+                (lo..=hi).contains(&errors),
+                "{m} at {esn0_db} dB: {errors} errors, expected {lo}..={hi} (SER {ser})"
+            );
+        }
     }
 }
