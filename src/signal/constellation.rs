@@ -899,4 +899,50 @@ mod tests {
             );
         }
     }
+
+    #[test]
+    fn awgn_bit_error_rate_matches_the_exact_gray_labelling_value() {
+        // Source: REFERENCE-VALUES.md §7 "Exact BER, 3GPP Gray labelling" (computed there by
+        // enumerating the per-axis PAM decision regions) and QPSK BER Q(√(Es/N0)) (Proakis).
+        // This checks the labels, not just the decision regions. Bits within a symbol are not
+        // independent, so the band is mean ± 3.29·sd/√n of the per-symbol bit-error count
+        // (99.9 % normal interval; n = 2e5 symbols makes the CLT accurate).
+        let cases: [(Modulation, f64, f64); 8] = [
+            (Modulation::Qpsk, 5.0, 3.767899e-02),
+            (Modulation::Qpsk, 10.0, 7.827011e-04),
+            (Modulation::Qam16, 10.0, 5.899273e-02),
+            (Modulation::Qam16, 15.0, 4.465400e-03),
+            (Modulation::Qam64, 15.0, 6.415873e-02),
+            (Modulation::Qam64, 20.0, 8.486430e-03),
+            (Modulation::Qam256, 20.0, 6.542295e-02),
+            (Modulation::Qam256, 25.0, 1.259856e-02),
+        ];
+        let n = 200_000usize;
+        for (ci, (m, esn0_db, ber)) in cases.into_iter().enumerate() {
+            let c = Constellation::new(m);
+            let bps = c.bits_per_symbol();
+            let mut rng = ChaCha8Rng::seed_from_u64(3000 + ci as u64);
+            let labels: Vec<usize> = (0..n).map(|_| rng.gen_range(0..c.order())).collect();
+            let mut z = vec![Cf32::new(0.0, 0.0); n];
+            c.map_labels(&labels, &mut z);
+            crate::testutil::add_awgn(&mut z, 10f64.powf(-esn0_db / 10.0), 4000 + ci as u64);
+            let (mut sum, mut sum_sq) = (0.0f64, 0.0f64);
+            for (&l, &v) in labels.iter().zip(&z) {
+                let e = (c.slice(v) ^ l).count_ones() as f64;
+                sum += e;
+                sum_sq += e * e;
+            }
+            let mean = sum / n as f64;
+            let sd = (sum_sq / n as f64 - mean * mean).sqrt();
+            let measured = mean / bps as f64;
+            let half = 3.29 * sd / (n as f64).sqrt() / bps as f64;
+            eprintln!(
+                "{m} Es/N0 {esn0_db} dB: measured BER {measured:.4e}, exact {ber:.4e} ± {half:.1e}"
+            );
+            assert!(
+                (measured - ber).abs() <= half,
+                "{m} at {esn0_db} dB: BER {measured:.4e} vs {ber:.4e} (±{half:.2e})"
+            );
+        }
+    }
 }

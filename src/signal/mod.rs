@@ -24,8 +24,8 @@ pub use barker::{barker, barker_symbols, BARKER_LENGTHS};
 pub use constellation::{Constellation, Modulation, Psk8Map};
 pub use prbs::{prbs_bits, prbs_symbols, Lfsr, PrbsPattern};
 pub use rrc::{
-    matched_filter, matched_filter_into, rrc_impulse, rrc_taps, shape, validate_rrc,
-    PolyphaseInterpolator,
+    matched_filter, matched_filter_at, matched_filter_into, rrc_impulse, rrc_taps, shape,
+    validate_rrc, PolyphaseInterpolator,
 };
 pub use symbols::{parse_symbols, read_symbols_file, symbols_from_pairs};
 pub use zadoff_chu::{zadoff_chu, zadoff_chu_checked};

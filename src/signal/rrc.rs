@@ -232,21 +232,35 @@ pub fn matched_filter_into(input: &[Cf32], taps: &[f32], out: &mut [Cf32]) {
         !taps.is_empty(),
         "matched_filter_into: taps must not be empty"
     );
-    let c = (taps.len() - 1) / 2;
-    let len = input.len();
     for (n, o) in out.iter_mut().enumerate() {
-        // Input index i = n + m − c must lie in [0, len).
-        let m_lo = c.saturating_sub(n);
-        let m_hi = (len + c - n).min(taps.len());
-        let mut acc = Cf32::new(0.0, 0.0);
-        if m_lo < m_hi {
-            let start = n + m_lo - c;
-            for (&h, &x) in taps[m_lo..m_hi].iter().zip(&input[start..]) {
-                acc += x * h;
-            }
-        }
-        *o = acc;
+        *o = matched_filter_at(input, taps, n);
     }
+}
+
+/// One output sample of [`matched_filter_into`], `out[n]`, computed alone (for
+/// symbol-rate sampling without filtering every sample). `n` may lie anywhere;
+/// samples outside `input` count as zero.
+///
+/// # Panics
+/// If `taps` is empty (a programmer error).
+#[inline]
+pub fn matched_filter_at(input: &[Cf32], taps: &[f32], n: usize) -> Cf32 {
+    assert!(
+        !taps.is_empty(),
+        "matched_filter_at: taps must not be empty"
+    );
+    let c = (taps.len() - 1) / 2;
+    let m_lo = c.saturating_sub(n);
+    // Input index n + m − c < len  ⇔  m < len + c − n.
+    let m_hi = (input.len() + c).saturating_sub(n).min(taps.len());
+    let mut acc = Cf32::new(0.0, 0.0);
+    if m_lo < m_hi {
+        let start = n + m_lo - c;
+        for (&h, &x) in taps[m_lo..m_hi].iter().zip(&input[start..]) {
+            acc += x * h;
+        }
+    }
+    acc
 }
 
 /// Convenience form of [`matched_filter_into`] that allocates the output once.
@@ -513,6 +527,12 @@ mod tests {
                     );
                 }
                 assert_eq!(matched_filter(&x, &taps), got);
+                for (i, g) in got.iter().enumerate() {
+                    assert_eq!(matched_filter_at(&x, &taps, i), *g);
+                }
+                // Beyond the end the output tails off to zero.
+                let far = matched_filter_at(&x, &taps, n + taps_len);
+                assert_eq!(far, Cf32::new(0.0, 0.0));
             }
         }
     }
