@@ -60,6 +60,7 @@ pub type Cf32 = Complex<f32>;
 /// One complex value in double precision (used where sums must not drift).
 pub type Cf64 = Complex<f64>;
 
+pub mod report;
 pub mod signal;
 
 pub use signal::{Constellation, Modulation};
