@@ -62,5 +62,10 @@ pub type Cf64 = Complex<f64>;
 
 pub mod channel;
 pub mod equalise;
+pub mod report;
+pub mod signal;
+
+pub use signal::{Constellation, Modulation};
+
 #[cfg(test)]
 mod testutil;

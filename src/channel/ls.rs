@@ -267,7 +267,7 @@ fn widen(v: Cf32) -> Cf64 {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::testutil::{
+    use crate::testutil::eqref::{
         cgauss, convolve, dense_ls_normal_equations, qam_points, random_symbols, rng,
     };
 

@@ -661,3 +661,14 @@ pub fn process_burst(
         results,
     })
 }
+
+impl Slicer for crate::signal::Constellation {
+    #[inline]
+    fn slice(&self, z: Cf32) -> usize {
+        crate::signal::Constellation::slice(self, z)
+    }
+    #[inline]
+    fn points(&self) -> &[Cf32] {
+        crate::signal::Constellation::points(self)
+    }
+}
