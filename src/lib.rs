@@ -53,6 +53,8 @@
 //!   samples counted from 0.
 #![deny(missing_docs)]
 
+pub mod profile;
+
 use num_complex::Complex;
 
 /// One complex baseband sample or symbol, single precision.
