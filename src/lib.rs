@@ -61,3 +61,5 @@ use num_complex::Complex;
 pub type Cf32 = Complex<f32>;
 /// One complex value in double precision (used where sums must not drift).
 pub type Cf64 = Complex<f64>;
+
+pub mod report;
