@@ -53,7 +53,9 @@
 //!   samples counted from 0.
 #![deny(missing_docs)]
 
+mod pending_signal;
 pub mod profile;
+pub mod synth;
 
 use num_complex::Complex;
 

@@ -28,10 +28,12 @@ mod example;
 mod names;
 mod resolve;
 mod schema;
+mod symbols;
 
 pub use example::{example_profile, ExampleOptions};
 pub use names::{Modulation, PrbsPattern, SampleFormat};
 pub use resolve::check_training_fits;
+pub use symbols::PayloadSymbols;
 
 pub use resolve::{
     ResolvedCapture, ResolvedChannelFit, ResolvedEqualiser, ResolvedLimits, ResolvedPayload,
