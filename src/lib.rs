@@ -65,3 +65,9 @@ pub type Cf32 = Complex<f32>;
 pub type Cf64 = Complex<f64>;
 
 pub mod report;
+pub mod signal;
+
+pub use signal::{Constellation, Modulation};
+
+#[cfg(test)]
+mod testutil;
