@@ -53,7 +53,6 @@
 //!   samples counted from 0.
 #![deny(missing_docs)]
 
-mod pending_signal;
 pub mod profile;
 pub mod synth;
 

@@ -63,8 +63,8 @@ use rand_chacha::ChaCha8Rng;
 use rand_distr::StandardNormal;
 use serde::{Deserialize, Serialize};
 
-use crate::pending_signal as sig;
 use crate::profile::{Modulation, ProfileError, ResolvedProfile};
+use crate::signal::{rrc_impulse, Constellation};
 use crate::{Cf32, Cf64};
 
 /// Schema name written in every truth file.
@@ -482,14 +482,16 @@ pub fn run(spec: &SynthSpec) -> Result<Synthesised, SynthError> {
     let n_before = prof.payload.before_symbols;
     let n_after = prof.payload.after_symbols;
     let nsym = n_before + training.len() + n_after;
-    let points = sig::points(prof.payload.modulation);
+    let constellation = Constellation::new(prof.payload.modulation);
+    let points = constellation.points();
 
-    // Pulse on the sample grid, normalised like signal::rrc_taps (Σh² = 1).
+    // Pulse on the sample grid, laid out and normalised like signal::rrc_taps
+    // (half-length ceil(span·sps/2), Σh² = 1).
     let beta = prof.pulse.rolloff;
-    let half = prof.pulse.span_symbols * sps / 2;
+    let half = (prof.pulse.span_symbols * sps).div_ceil(2);
     let ntaps = 2 * half + 1;
     let energy: f64 = (0..ntaps)
-        .map(|m| sig::rrc_impulse((m as f64 - half as f64) / sps as f64, beta).powi(2))
+        .map(|m| rrc_impulse((m as f64 - half as f64) / sps as f64, beta).powi(2))
         .sum();
     let gain = 1.0 / energy.sqrt();
 
@@ -584,7 +586,7 @@ pub fn run(spec: &SynthSpec) -> Result<Synthesised, SynthError> {
 
         // Pulse at the fractional delay; symbol k peaks at k·sps + half + frac in w.
         for (m, p) in pulse.iter_mut().enumerate() {
-            *p = gain * sig::rrc_impulse((m as f64 - half as f64 - plan.frac) / sps as f64, beta);
+            *p = gain * rrc_impulse((m as f64 - half as f64 - plan.frac) / sps as f64, beta);
         }
         w.iter_mut().for_each(|v| *v = Cf64::new(0.0, 0.0));
         for (k, x) in symbols.iter().enumerate() {

@@ -30,8 +30,9 @@ mod resolve;
 mod schema;
 mod symbols;
 
+pub use crate::signal::{Modulation, PrbsPattern};
 pub use example::{example_profile, ExampleOptions};
-pub use names::{Modulation, PrbsPattern, SampleFormat};
+pub use names::SampleFormat;
 pub use resolve::check_training_fits;
 pub use symbols::PayloadSymbols;
 

@@ -5,7 +5,7 @@
 //! checked when its symbols are built).
 //!
 //! Defaults (also in the rustdoc of each schema field): pulse span 12 symbols;
-//! training modulation `qpsk` for PRBS and `bpsk` for Barker; PRBS seed all
+//! training modulation `qpsk` for PRBS; PRBS seed all
 //! ones and O.150 inversion; payload position `after`; channel fit 1 pre-cursor
 //! and 3 post-cursor taps, no DC or IQ terms; `mmse-dfe` with Nf = 8, Nb = the
 //! post-cursor taps (3 when `"auto"`), delay `"auto"`, carrier refinement on,
@@ -15,12 +15,14 @@
 
 use serde::{Deserialize, Serialize};
 
-use super::names::{Modulation, PrbsPattern, SampleFormat};
+use super::names::SampleFormat;
 use super::schema::{
     Delay, EqualiserKind, PayloadPosition, PayloadRule, Profile, PulseShape, Sequence, TapCount,
     Tracking,
 };
 use super::ProfileError;
+use crate::signal::BARKER_LENGTHS;
+use crate::signal::{Modulation, PrbsPattern};
 
 /// Default RRC span in symbols.
 pub const DEFAULT_SPAN_SYMBOLS: usize = 12;
@@ -275,16 +277,10 @@ fn non_negative(key: &str, v: f64) -> Result<f64, ProfileError> {
 }
 
 /// `(n, a, inverted)` of a named pattern: ITU-T O.150 taps and inversion
-/// (REFERENCE-VALUES §3).
+/// (from `signal::PrbsPattern`, REFERENCE-VALUES §3).
 fn pattern_params(p: PrbsPattern) -> (u32, u32, bool) {
-    match p {
-        PrbsPattern::Prbs7 => (7, 6, false),
-        PrbsPattern::Prbs9 => (9, 5, false),
-        PrbsPattern::Prbs11 => (11, 9, false),
-        PrbsPattern::Prbs15 => (15, 14, true),
-        PrbsPattern::Prbs23 => (23, 18, true),
-        PrbsPattern::Prbs31 => (31, 28, true),
-    }
+    let [n, a] = p.taps();
+    (n, a, p.inverted())
 }
 
 /// Checks and fills a PRBS description; `key` is the object's key path.
@@ -340,9 +336,6 @@ fn gcd(mut a: u64, mut b: u64) -> u64 {
     }
     a
 }
-
-/// Barker lengths that exist (REFERENCE-VALUES §4).
-const BARKER_LENGTHS: [usize; 7] = [2, 3, 4, 5, 7, 11, 13];
 
 impl Profile {
     /// Check every value and fill in every default. Reads no files.
@@ -511,15 +504,8 @@ impl Profile {
                         n,
                     ));
                 }
-                let m = t.modulation.unwrap_or(Modulation::Bpsk);
-                if m != Modulation::Bpsk {
-                    return Err(invalid(
-                        "training.modulation",
-                        "\"bpsk\" for a Barker sequence",
-                        format!("{m:?}"),
-                    ));
-                }
-                (Some(m), ResolvedSequence::Barker { n: *n }, Some(*n))
+                no_modulation("barker")?;
+                (None, ResolvedSequence::Barker { n: *n }, Some(*n))
             }
             Sequence::ZadoffChu {
                 root,

@@ -9,7 +9,8 @@ use std::path::Path;
 
 use serde::{Deserialize, Deserializer, Serialize, Serializer};
 
-use super::names::{Modulation, PrbsPattern, SampleFormat};
+use super::names::SampleFormat;
+use crate::signal::{Modulation, PrbsPattern};
 
 /// A complete link profile as parsed from JSON (before defaults are checked and
 /// filled in by [`Profile::resolve`]).
@@ -87,9 +88,9 @@ pub struct PulseSection {
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct TrainingSection {
-    /// Constellation the sequence's bits are mapped onto (PRBS: default
-    /// `"qpsk"`; Barker: only `"bpsk"`, the default; not used by Zadoff-Chu or
-    /// explicit symbols).
+    /// Constellation the PRBS bits are mapped onto (default `"qpsk"`; not
+    /// used by Barker, Zadoff-Chu or explicit symbols, which define their
+    /// symbols directly).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub modulation: Option<Modulation>,
     /// The sequence.
@@ -117,7 +118,7 @@ pub enum Sequence {
         /// Training length in symbols.
         length: usize,
     },
-    /// Barker code of length `n` (2, 3, 4, 5, 7, 11 or 13), one BPSK symbol per chip.
+    /// Barker code of length `n` (2, 3, 4, 5, 7, 11 or 13), one real symbol `±1` per chip.
     Barker {
         /// Code length.
         n: usize,

@@ -1,17 +1,19 @@
 //! Building the symbols a resolved profile describes: the training block and,
 //! when the payload is known, the payload. Takes in a [`ResolvedProfile`];
-//! gives out unit-mean-power constellation symbols (`Cf32`) in transmission
-//! order, or a [`ProfileError`] naming the key (e.g. an unreadable symbols file).
+//! gives out constellation symbols (`Cf32`, unit mean power for the
+//! constellations) in transmission order, or a [`ProfileError`] naming the key
+//! (e.g. an unreadable symbols file).
 //!
-//! Bits map onto symbols `bits_per_symbol` at a time, the first bit the most
-//! significant of the label (the `signal` constellation convention). A Barker
-//! chip `+1` is BPSK bit 0 and `−1` is bit 1.
+//! PRBS bits come from `signal::Lfsr` (Fibonacci register, stage convention of
+//! `signal::prbs`) and map onto symbols `bits_per_symbol` at a time, the first
+//! bit the most significant of the label (`signal::Lfsr::fill_symbols`). Barker
+//! chips are real symbols `±1` (`signal::barker_symbols`).
 
 use std::path::Path;
 
 use super::resolve::{check_training_fits, ResolvedPayloadRule, ResolvedSequence};
 use super::{ProfileError, ResolvedProfile};
-use crate::pending_signal as sig;
+use crate::signal::{self, Constellation, Lfsr, Modulation};
 use crate::Cf32;
 
 /// The known payload of one burst: the symbols before and after the training.
@@ -23,24 +25,34 @@ pub struct PayloadSymbols {
     pub after: Vec<Cf32>,
 }
 
-fn map_bits(points: &[Cf32], bps: usize, bits: &[u8], out: &mut Vec<Cf32>) {
-    for group in bits.chunks_exact(bps) {
-        let label = group.iter().fold(0usize, |acc, &b| (acc << 1) | b as usize);
-        out.push(points[label]);
-    }
-}
-
-fn read_symbols_file(key: &str, path: &str) -> Result<Vec<Cf32>, ProfileError> {
-    let text = std::fs::read_to_string(path).map_err(|e| ProfileError::SymbolsFile {
+fn symbols_file_error(key: &str, path: &str, e: impl std::fmt::Display) -> ProfileError {
+    ProfileError::SymbolsFile {
         key: key.to_string(),
         path: Path::new(path).to_path_buf(),
         message: e.to_string(),
-    })?;
-    sig::parse_symbols(&text).map_err(|message| ProfileError::SymbolsFile {
-        key: key.to_string(),
-        path: Path::new(path).to_path_buf(),
-        message,
-    })
+    }
+}
+
+/// `n` symbols of `m` from the LFSR `x^n + x^a + 1` (`polynomial = [n, a]`).
+fn lfsr_symbols(
+    key: &str,
+    polynomial: [u32; 2],
+    seed: u64,
+    inverted: bool,
+    m: Modulation,
+    n: usize,
+) -> Result<Vec<Cf32>, ProfileError> {
+    let [deg, a] = polynomial;
+    let mut lfsr = Lfsr::new(deg, &[deg, a], seed)
+        .map_err(|e| ProfileError::InvalidValue {
+            key: key.to_string(),
+            expected: "a valid PRBS register".into(),
+            found: e.to_string(),
+        })?
+        .with_inversion(inverted);
+    let mut out = vec![Cf32::new(0.0, 0.0); n];
+    lfsr.fill_symbols(&Constellation::new(m), &mut out);
+    Ok(out)
 }
 
 impl ResolvedProfile {
@@ -48,6 +60,12 @@ impl ResolvedProfile {
     /// sequence is one, and then checks its length against the channel fit.
     pub fn training_symbols(&self) -> Result<Vec<Cf32>, ProfileError> {
         let t = &self.training;
+        let key = "training.sequence";
+        let invalid = |k: &str, e: signal::SignalError| ProfileError::InvalidValue {
+            key: format!("{key}.{k}"),
+            expected: "a valid sequence".into(),
+            found: e.to_string(),
+        };
         let symbols = match &t.sequence {
             ResolvedSequence::Prbs {
                 polynomial,
@@ -55,35 +73,33 @@ impl ResolvedProfile {
                 inverted,
                 length,
                 ..
-            } => {
-                let m = t.modulation.unwrap_or(super::Modulation::Qpsk);
-                let bps = sig::bits_per_symbol(m);
-                let mut bits = vec![0u8; length * bps];
-                sig::prbs_bits(polynomial[0], polynomial[1], *seed, *inverted, &mut bits);
-                let mut out = Vec::with_capacity(*length);
-                map_bits(&sig::points(m), bps, &bits, &mut out);
-                out
-            }
+            } => lfsr_symbols(
+                key,
+                *polynomial,
+                *seed,
+                *inverted,
+                t.modulation.unwrap_or(Modulation::Qpsk),
+                *length,
+            )?,
             ResolvedSequence::Barker { n } => {
-                let code = sig::barker(*n).ok_or_else(|| ProfileError::InvalidValue {
-                    key: "training.sequence.n".into(),
+                signal::barker_symbols(*n).ok_or_else(|| ProfileError::InvalidValue {
+                    key: format!("{key}.n"),
                     expected: "one of 2, 3, 4, 5, 7, 11, 13".into(),
                     found: n.to_string(),
-                })?;
-                let p = sig::points(super::Modulation::Bpsk);
-                code.iter().map(|&c| p[(c < 0) as usize]).collect()
+                })?
             }
             ResolvedSequence::ZadoffChu {
                 root,
                 length,
                 shift,
-            } => sig::zadoff_chu(*root, *length, *shift),
-            ResolvedSequence::Symbols { values } => values
-                .iter()
-                .map(|v| Cf32::new(v[0] as f32, v[1] as f32))
-                .collect(),
+            } => signal::zadoff_chu_checked(*root, *length, *shift)
+                .map_err(|e| invalid("root", e))?,
+            ResolvedSequence::Symbols { values } => {
+                signal::symbols_from_pairs(values).map_err(|e| invalid("values", e))?
+            }
             ResolvedSequence::SymbolsFile { path } => {
-                let s = read_symbols_file("training.sequence.path", path)?;
+                let s = signal::read_symbols_file(Path::new(path))
+                    .map_err(|e| symbols_file_error("training.sequence.path", path, e))?;
                 check_training_fits(&self.channel_fit, s.len())?;
                 s
             }
@@ -104,25 +120,26 @@ impl ResolvedProfile {
                 seed,
                 inverted,
                 ..
-            }) => {
-                let bps = sig::bits_per_symbol(p.modulation);
-                let mut bits = vec![0u8; total * bps];
-                sig::prbs_bits(polynomial[0], polynomial[1], *seed, *inverted, &mut bits);
-                let mut out = Vec::with_capacity(total);
-                map_bits(&sig::points(p.modulation), bps, &bits, &mut out);
-                out
-            }
+            }) => lfsr_symbols(
+                "payload.known",
+                *polynomial,
+                *seed,
+                *inverted,
+                p.modulation,
+                total,
+            )?,
             Some(ResolvedPayloadRule::SymbolsFile { path }) => {
-                let mut s = read_symbols_file("payload.known.path", path)?;
+                let mut s = signal::read_symbols_file(Path::new(path))
+                    .map_err(|e| symbols_file_error("payload.known.path", path, e))?;
                 if s.len() < total {
-                    return Err(ProfileError::SymbolsFile {
-                        key: "payload.known.path".into(),
-                        path: Path::new(path).to_path_buf(),
-                        message: format!(
+                    return Err(symbols_file_error(
+                        "payload.known.path",
+                        path,
+                        format!(
                             "holds {} symbols but the payload needs {total} per burst",
                             s.len()
                         ),
-                    });
+                    ));
                 }
                 s.truncate(total);
                 s

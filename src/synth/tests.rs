@@ -28,16 +28,16 @@ fn profile(position: PayloadPosition, before: usize, after: usize, known: bool) 
 /// Slow reference matched filter: correlate with the unit-energy RRC pulse
 /// centred on the (fractional) instant `t`, directly from the closed form.
 fn mf_at(r: &[Cf32], t: f64, sps: usize, beta: f64, span: usize) -> Cf64 {
-    let half = (span * sps / 2) as f64;
-    let energy: f64 = (0..=2 * span * sps / 2)
-        .map(|m| sig::rrc_impulse((m as f64 - half) / sps as f64, beta).powi(2))
+    let half = (span * sps).div_ceil(2) as f64;
+    let energy: f64 = (0..=2 * (span * sps).div_ceil(2))
+        .map(|m| crate::signal::rrc_impulse((m as f64 - half) / sps as f64, beta).powi(2))
         .sum();
     let g = 1.0 / energy.sqrt();
     let lo = (t - half).ceil().max(0.0) as usize;
     let hi = ((t + half).floor() as usize).min(r.len() - 1);
     (lo..=hi)
         .map(|n| {
-            let p = g * sig::rrc_impulse((n as f64 - t) / sps as f64, beta);
+            let p = g * crate::signal::rrc_impulse((n as f64 - t) / sps as f64, beta);
             Cf64::new(r[n].re as f64, r[n].im as f64) * p
         })
         .sum()
@@ -46,7 +46,8 @@ fn mf_at(r: &[Cf32], t: f64, sps: usize, beta: f64, span: usize) -> Cf64 {
 /// All symbols of a burst in order, from the truth (and profile for rules).
 fn burst_symbols(truth: &GroundTruth, b: &TruthBurst) -> Vec<Cf64> {
     let prof = &truth.profile;
-    let pts = sig::points(b.payload.modulation);
+    let c = crate::signal::Constellation::new(b.payload.modulation);
+    let pts = c.points();
     let lab = |l: &Option<Vec<u16>>| -> Vec<Cf32> {
         l.as_ref()
             .unwrap()
@@ -290,4 +291,30 @@ fn bad_options_are_rejected_with_the_option_named() {
     let mut spec = SynthSpec::new(p);
     spec.esn0_db = Some(f64::NAN);
     assert!(run(&spec).unwrap_err().to_string().starts_with("--esn0-db"));
+}
+
+#[test]
+fn zero_offset_burst_equals_signal_shape_of_the_truth_symbols() {
+    // The synthesiser's own fractional-delay pulse must reduce, at timing 0,
+    // to signal::shape with signal::rrc_taps (the crate's reference shaping).
+    // Tolerance 1e-5: f32 taps in shape versus f64 here, relative to a peak of ~1.
+    let p = profile(PayloadPosition::Before, 50, 0, false);
+    let mut spec = SynthSpec::new(p);
+    spec.level_dbfs = -6.0;
+    spec.seed = 5;
+    let out = run(&spec).unwrap();
+    let b = &out.truth.bursts[0];
+    let x: Vec<Cf32> = burst_symbols(&out.truth, b)
+        .iter()
+        .map(|c| Cf32::new(c.re as f32, c.im as f32))
+        .collect();
+    let taps = crate::signal::rrc_taps(0.25, 12, 4);
+    let shaped = crate::signal::shape(&x, &taps, 4);
+    let s = &out.samples[b.first_sample as usize..b.end_sample as usize];
+    assert_eq!(shaped.len(), s.len());
+    for (n, (a, z)) in shaped.iter().zip(s).enumerate() {
+        let want = Cf64::new(a.re as f64, a.im as f64) * b.amplitude;
+        let got = Cf64::new(z.re as f64, z.im as f64);
+        assert!((want - got).norm() < 1e-5, "sample {n}: {want} vs {got}");
+    }
 }
