@@ -63,9 +63,16 @@ pub type Cf32 = Complex<f32>;
 /// One complex value in double precision (used where sums must not drift).
 pub type Cf64 = Complex<f64>;
 
+pub mod capture;
+mod error;
 pub mod report;
 pub mod signal;
 
+pub use capture::{
+    write_capture, Capture, CaptureError, Container, OpenOptions, ReadStats, SampleFormat,
+    WavEncoding, WriteSpec, WriteStats,
+};
+pub use error::Error;
 pub use signal::{Constellation, Modulation};
 
 #[cfg(test)]
