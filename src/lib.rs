@@ -53,6 +53,9 @@
 //!   samples counted from 0.
 #![deny(missing_docs)]
 
+pub mod profile;
+pub mod synth;
+
 use num_complex::Complex;
 
 /// One complex baseband sample or symbol, single precision.
