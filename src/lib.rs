@@ -53,9 +53,6 @@
 //!   samples counted from 0.
 #![deny(missing_docs)]
 
-pub mod profile;
-pub mod synth;
-
 use num_complex::Complex;
 
 /// One complex baseband sample or symbol, single precision.
@@ -67,8 +64,10 @@ pub mod capture;
 pub mod channel;
 pub mod equalise;
 mod error;
+pub mod profile;
 pub mod report;
 pub mod signal;
+pub mod synth;
 
 pub use capture::{
     write_capture, Capture, CaptureError, Container, OpenOptions, ReadStats, SampleFormat,
