@@ -6,6 +6,7 @@
 pub mod compare;
 pub mod metrics;
 pub mod plots;
+pub mod provenance;
 pub mod schema;
 pub mod svg;
 pub mod write;
