@@ -55,6 +55,10 @@
 
 use num_complex::Complex;
 
+pub mod sync;
+#[cfg(test)]
+mod testutil;
+
 /// One complex baseband sample or symbol, single precision.
 pub type Cf32 = Complex<f32>;
 /// One complex value in double precision (used where sums must not drift).
