@@ -55,11 +55,16 @@
 
 use num_complex::Complex;
 
-pub mod sync;
-#[cfg(test)]
-mod testutil;
-
 /// One complex baseband sample or symbol, single precision.
 pub type Cf32 = Complex<f32>;
 /// One complex value in double precision (used where sums must not drift).
 pub type Cf64 = Complex<f64>;
+
+pub mod report;
+pub mod signal;
+pub mod sync;
+
+pub use signal::{Constellation, Modulation};
+
+#[cfg(test)]
+mod testutil;

@@ -11,11 +11,12 @@
 //! burst that touches a capture edge are computed with part of their pulse missing.
 use std::ops::Range;
 
-use super::timing::{best_instant, interpolate, matched_filter_into, SINC_HALF};
+use super::timing::{best_instant, interpolate, SINC_HALF};
 use super::{
     cfo, read_padded, rotation, BurstSync, Detection, SampleSource, SymbolSpan, SyncError,
     Synchroniser,
 };
+use crate::signal::rrc::matched_filter_into;
 use crate::{Cf32, Cf64};
 
 /// Symbols processed per piece in [`Synchroniser::extract_symbols`] (bounds memory).
@@ -39,8 +40,10 @@ impl Synchroniser {
         for (i, v) in x.iter_mut().enumerate() {
             *v *= rotation(-f, (start + i as i64) as f64 - t_ref);
         }
-        let mut y = vec![Cf32::new(0.0, 0.0); count];
+        let mut y = vec![Cf32::new(0.0, 0.0); x.len()];
         matched_filter_into(&x, &self.pulse, &mut y);
+        y.truncate(d + count);
+        y.drain(..d);
         Ok(y)
     }
 

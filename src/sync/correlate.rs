@@ -283,7 +283,7 @@ fn energy(v: Cf32) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::testutil::{direct_correlation, first_difference, random_cf32};
+    use crate::testutil::{direct_correlation, first_difference, random_symbols};
 
     /// Tolerance: f32 FFT of length N has relative RMS error ~ ε·log2 N (ε = 6e-8);
     /// we allow 2e-5 of the scale Σ|r|·max|x| — common practice for f32 FFT checks.
@@ -334,8 +334,8 @@ mod tests {
                 fft_len + step,
                 1031,
             ] {
-                let input = random_cf32(n, 11 + n as u64);
-                let refs = vec![random_cf32(ref_len, 3), random_cf32(ref_len, 4)];
+                let input = random_symbols(n, 11 + n as u64);
+                let refs = vec![random_symbols(ref_len, 3), random_symbols(ref_len, 4)];
                 check(&input, &refs, fft_len, false);
                 check(&input, &refs, fft_len, true);
             }
@@ -344,7 +344,7 @@ mod tests {
 
     #[test]
     fn overlap_save_with_reference_as_long_as_the_fft_still_matches_direct() {
-        let refs = vec![random_cf32(64, 9)];
-        check(&random_cf32(300, 10), &refs, 64, true);
+        let refs = vec![random_symbols(64, 9)];
+        check(&random_symbols(300, 10), &refs, 64, true);
     }
 }

@@ -420,7 +420,7 @@ impl Synchroniser {
         let n = training.len();
         let d = (pulse.len() - 1) / 2;
         let half = (sps / 2).min(d);
-        let shaped = shape_training(training, pulse, sps);
+        let shaped = crate::signal::rrc::shape(training, pulse, sps);
         let start = d - half;
         let ref_len = (n - 1) * sps + 2 * half + 1;
         let reference: Vec<Cf32> = shaped[start..start + ref_len].to_vec();
@@ -672,18 +672,6 @@ impl Synchroniser {
 pub(crate) fn rotation(f: f64, m: f64) -> Cf32 {
     let ph = std::f64::consts::TAU * (f * m).rem_euclid(1.0);
     Cf32::new(ph.cos() as f32, ph.sin() as f32)
-}
-
-/// Upsample by `sps` and filter with `pulse`: symbol k peaks at `k·sps + (len−1)/2`;
-/// output length `(N−1)·sps + pulse.len()`.
-fn shape_training(training: &[Cf32], pulse: &[f32], sps: usize) -> Vec<Cf32> {
-    let mut out = vec![Cf32::new(0.0, 0.0); (training.len() - 1) * sps + pulse.len()];
-    for (k, s) in training.iter().enumerate() {
-        for (i, p) in pulse.iter().enumerate() {
-            out[k * sps + i] += *s * *p;
-        }
-    }
-    out
 }
 
 #[cfg(test)]

@@ -7,7 +7,8 @@ use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 
 use super::*;
-use crate::testutil::{add_burst, add_noise, random_qpsk, rrc_taps, BurstSpec};
+use crate::signal::rrc::{matched_filter_into, rrc_taps};
+use crate::testutil::{add_burst, add_noise, random_qpsk, BurstSpec};
 
 const SPS: usize = 4;
 const BETA: f64 = 0.25;
@@ -227,11 +228,10 @@ fn metric_tail_on_band_limited_noise_lies_between_l_eff_of_n_and_2n() {
     let s = sync(0.0);
     let n_sym = TRAIN_LEN as f64;
     let n = 1_000_000usize;
-    let mut w = vec![Cf32::new(0.0, 0.0); n + 32];
+    let mut w = vec![Cf32::new(0.0, 0.0); n];
     add_noise(&mut w, 1.0, &mut ChaCha8Rng::seed_from_u64(32));
-    let p = pulse();
     let mut x = vec![Cf32::new(0.0, 0.0); n];
-    timing::matched_filter_into(&w, &p, &mut x);
+    matched_filter_into(&w, &pulse(), &mut x);
     let lags = (n - s.min_capture_len() + 1) as f64;
     let gamma = 1.0 - (2000.0 / lags).powf(1.0 / (n_sym - 1.0));
     let m = s.metric(&x[..], 0..n).unwrap();

@@ -1,9 +1,10 @@
-//! Matched filtering, fractional-delay interpolation and the fractional timing search.
+//! Fractional-delay interpolation and the fractional timing search.
 //!
 //! Takes in: complex samples ([`Cf32`]) at the capture rate, real pulse taps (odd
 //! length, centre tap at `(len − 1)/2`), training symbols.
-//! Gives out: matched-filter outputs on the sample grid, their values at fractional
-//! instants (windowed-sinc interpolation), and the fractional instant (in samples)
+//! Gives out: values of matched-filter outputs (computed with
+//! [`crate::signal::rrc::matched_filter_into`]) at fractional instants (windowed-sinc
+//! interpolation), and the fractional instant (in samples)
 //! that maximises the training correlation `|Σ_k conj(t_k)·y(τ + k·sps)|²`.
 //!
 //! Interpolator: a 16-tap Blackman-windowed sinc, `y(n + μ) = Σ_{i=−7}^{8} y[n+i]·
@@ -16,25 +17,6 @@ use crate::{Cf32, Cf64};
 
 /// Half-length of the windowed-sinc kernel (taps = `2·SINC_HALF`).
 pub const SINC_HALF: usize = 8;
-
-/// Matched filter on the sample grid: `out[j] = Σ_i pulse[i]·x[j + i]`, i.e. the output
-/// centred on input sample `j + (pulse.len() − 1)/2` (zero delay for a centred pulse).
-///
-/// # Panics
-/// If `out.len() + pulse.len() − 1 > x.len()` (valid part only).
-pub fn matched_filter_into(x: &[Cf32], pulse: &[f32], out: &mut [Cf32]) {
-    assert!(
-        out.len() + pulse.len() <= x.len() + 1,
-        "matched filter input too short"
-    );
-    for (j, o) in out.iter_mut().enumerate() {
-        let mut acc = Cf32::new(0.0, 0.0);
-        for (p, v) in pulse.iter().zip(&x[j..j + pulse.len()]) {
-            acc += *v * *p;
-        }
-        *o = acc;
-    }
-}
 
 #[inline]
 fn windowed_sinc(x: f64) -> f64 {
@@ -185,17 +167,5 @@ mod tests {
     fn golden_section_finds_the_peak_of_a_parabola() {
         let t = golden_max(|x| -(x - 0.3172).powi(2), -1.0, 1.0, 1e-6);
         assert!((t - 0.3172).abs() < 1e-5);
-    }
-
-    #[test]
-    fn matched_filter_matches_the_direct_sum_definition() {
-        let x = crate::testutil::random_cf32(40, 5);
-        let p = [0.5f32, -1.0, 2.0];
-        let mut out = vec![Cf32::new(0.0, 0.0); 38];
-        matched_filter_into(&x, &p, &mut out);
-        for j in 0..38 {
-            let want = x[j] * 0.5 - x[j + 1] + x[j + 2] * 2.0;
-            assert!((out[j] - want).norm() < 1e-6);
-        }
     }
 }
