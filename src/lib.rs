@@ -67,6 +67,7 @@ mod error;
 pub mod profile;
 pub mod report;
 pub mod signal;
+pub mod sync;
 pub mod synth;
 
 pub use capture::{
