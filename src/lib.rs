@@ -53,9 +53,6 @@
 //!   samples counted from 0.
 #![deny(missing_docs)]
 
-pub mod profile;
-pub mod synth;
-
 use num_complex::Complex;
 
 /// One complex baseband sample or symbol, single precision.
@@ -65,15 +62,19 @@ pub type Cf64 = Complex<f64>;
 
 pub mod capture;
 mod error;
+pub mod profile;
 pub mod report;
 pub mod signal;
+pub mod synth;
 
 pub use capture::{
     write_capture, Capture, CaptureError, Container, OpenOptions, ReadStats, SampleFormat,
     WavEncoding, WriteSpec, WriteStats,
 };
 pub use error::Error;
+pub use profile::{load_profile, Profile, ProfileError, ResolvedProfile};
 pub use signal::{Constellation, Modulation};
+pub use synth::{GroundTruth, SynthError, SynthSpec};
 
 #[cfg(test)]
 mod testutil;
