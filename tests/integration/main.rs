@@ -1,1 +1,3 @@
+mod profile;
 mod signal;
+mod synth;
