@@ -61,6 +61,8 @@ pub type Cf32 = Complex<f32>;
 pub type Cf64 = Complex<f64>;
 
 pub mod capture;
+pub mod channel;
+pub mod equalise;
 mod error;
 pub mod profile;
 pub mod report;
