@@ -75,7 +75,9 @@ pub use capture::{
     WavEncoding, WriteSpec, WriteStats,
 };
 pub use error::Error;
+pub use profile::{load_profile, Profile, ProfileError, ResolvedProfile};
 pub use signal::{Constellation, Modulation};
+pub use synth::{GroundTruth, SynthError, SynthSpec};
 
 #[cfg(test)]
 mod testutil;

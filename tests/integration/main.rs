@@ -7,5 +7,7 @@ mod bad_input;
 mod capture_formats;
 mod info_cli;
 mod large_capture;
+mod profile;
 mod signal;
+mod synth;
 mod util;
