@@ -14,6 +14,9 @@ use clap::{Args, Parser, Subcommand};
 use iqaudit::capture::stats::{capture_stats, info_report, InfoReport, StatsOptions};
 use iqaudit::{Capture, CaptureError, Error, OpenOptions, SampleFormat};
 
+mod profile_synth;
+use profile_synth::{ProfileArgs, SynthArgs};
+
 /// Audit recorded baseband IQ captures.
 #[derive(Debug, Parser)]
 #[command(name = "iqaudit", version, about)]
@@ -28,6 +31,10 @@ pub struct Cli {
 pub enum Command {
     /// Describe what is in a capture: format, length, power, DC, clipping, bandwidth.
     Info(InfoArgs),
+    /// Print an example link profile, or check one and print it with defaults filled in.
+    Profile(ProfileArgs),
+    /// Make a test capture with known ground truth (FILE + FILE.truth.json).
+    Synth(Box<SynthArgs>),
 }
 
 /// Arguments of `iqaudit info`.
@@ -87,6 +94,14 @@ pub enum Outcome {
 pub fn run(cli: Cli) -> Result<Outcome, Error> {
     match cli.command {
         Command::Info(args) => run_info(&args),
+        Command::Profile(args) => profile_synth::run_profile(&args),
+        Command::Synth(args) => {
+            // Recorded in the truth file: the program name without its path.
+            let argv: Vec<String> = std::iter::once("iqaudit".to_string())
+                .chain(std::env::args().skip(1))
+                .collect();
+            profile_synth::run_synth(&args, &argv)
+        }
     }
 }
 
@@ -287,7 +302,9 @@ mod tests {
             "--json",
         ])
         .unwrap();
-        let Command::Info(a) = cli.command;
+        let Command::Info(a) = cli.command else {
+            panic!("not info")
+        };
         assert_eq!(a.format.as_deref(), Some("ci16_le"));
         assert_eq!(a.sample_rate, Some(2.4e6));
         assert!(a.swap_iq && a.json);

@@ -23,6 +23,12 @@ pub enum Error {
         /// The OS error.
         source: std::io::Error,
     },
+    /// A link profile is missing, malformed or has a bad value (names the file and key).
+    #[error(transparent)]
+    Profile(#[from] crate::profile::ProfileError),
+    /// The synthesiser was given options it cannot honour, or could not write.
+    #[error(transparent)]
+    Synth(#[from] crate::synth::SynthError),
     /// The command line is inconsistent in a way clap cannot see.
     #[error("{message}")]
     Usage {

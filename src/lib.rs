@@ -67,6 +67,7 @@ mod error;
 pub mod profile;
 pub mod report;
 pub mod signal;
+pub mod sync;
 pub mod synth;
 
 pub use capture::{
@@ -74,7 +75,9 @@ pub use capture::{
     WavEncoding, WriteSpec, WriteStats,
 };
 pub use error::Error;
+pub use profile::{load_profile, Profile, ProfileError, ResolvedProfile};
 pub use signal::{Constellation, Modulation};
+pub use synth::{GroundTruth, SynthError, SynthSpec};
 
 #[cfg(test)]
 mod testutil;
