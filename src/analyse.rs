@@ -30,8 +30,8 @@ use crate::capture::{Capture, OpenOptions, SampleFormat};
 use crate::channel::{ChannelFitConfig, SpanChoice, TapSpan};
 use crate::equalise::tracking::{AdaptMode, TrackingConfig};
 use crate::equalise::{process_burst, BurstConfig, BurstOutput, BurstView, EqualisedSymbols};
-use crate::profile::schema::{Delay, EqualiserKind, TapCount, Tracking};
 use crate::profile::ResolvedProfile;
+use crate::profile::{Delay, EqualiserKind, TapCount, Tracking};
 use crate::report::metrics::{
     error_runs, run_length_histogram, ErrorPropagation, ErrorRate, EvmAccumulator,
 };
@@ -95,13 +95,18 @@ fn profile_format(profile: &ResolvedProfile) -> Result<Option<SampleFormat>, Err
         .ok()
         .and_then(|v| v.as_str().map(str::to_string))
         .unwrap_or_default();
-    name.parse::<SampleFormat>()
-        .map(Some)
-        .map_err(|_| usage(format!("profile: capture.format '{name}' is not a readable format")))
+    name.parse::<SampleFormat>().map(Some).map_err(|_| {
+        usage(format!(
+            "profile: capture.format '{name}' is not a readable format"
+        ))
+    })
 }
 
 /// Open options for a capture analysed with `profile` and `opts`.
-pub fn open_options(profile: &ResolvedProfile, opts: &AnalyseOptions) -> Result<OpenOptions, Error> {
+pub fn open_options(
+    profile: &ResolvedProfile,
+    opts: &AnalyseOptions,
+) -> Result<OpenOptions, Error> {
     Ok(OpenOptions {
         format: match opts.format {
             Some(f) => Some(f),
@@ -284,7 +289,11 @@ pub fn analyse_capture(
             })
             .collect::<Result<Vec<_>, Error>>()?
     };
-    if bursts.is_empty() && !warnings.iter().any(|w| w.code == WarningCode::NoTrainingFound) {
+    if bursts.is_empty()
+        && !warnings
+            .iter()
+            .any(|w| w.code == WarningCode::NoTrainingFound)
+    {
         warnings.push(Warning::new(
             WarningCode::NoTrainingFound,
             format!(
@@ -295,7 +304,8 @@ pub fn analyse_capture(
     }
     let summary = summarise(&bursts);
     let verdict = judge(profile, &bursts, &summary);
-    let profile_value = serde_json::to_value(profile).map_err(|e| usage(format!("profile: {e}")))?;
+    let profile_value =
+        serde_json::to_value(profile).map_err(|e| usage(format!("profile: {e}")))?;
     let profile_sha = sha256_bytes(profile_value.to_string().as_bytes());
     let size_bytes = capture.file_len_bytes();
     let sha256 = sha256_file(path).map_err(|source| Error::Io {
@@ -441,7 +451,11 @@ fn analyse_burst<S: SampleSource + ?Sized>(
         Some(kp) => {
             let true_labels: Vec<usize> = kp.iter().map(|s| c.slice(*s)).collect();
             let labels: Vec<usize> = present.iter().map(|&(_, i)| eq.labels[i]).collect();
-            let wrong: Vec<bool> = labels.iter().zip(&true_labels).map(|(a, b)| a != b).collect();
+            let wrong: Vec<bool> = labels
+                .iter()
+                .zip(&true_labels)
+                .map(|(a, b)| a != b)
+                .collect();
             let sym_err = wrong.iter().filter(|w| **w).count() as u64;
             let bit_err: u64 = labels
                 .iter()
@@ -510,7 +524,10 @@ fn analyse_burst<S: SampleSource + ?Sized>(
         let zl: Vec<Cf32> = present.iter().map(|&(_, i)| s.soft[i]).collect();
         let refl: Vec<Cf32> = match &known_payload {
             Some(k) => k.clone(),
-            None => present.iter().map(|&(_, i)| c.points()[s.labels[i]]).collect(),
+            None => present
+                .iter()
+                .map(|&(_, i)| c.points()[s.labels[i]])
+                .collect(),
         };
         crate::report::metrics::evm(&zl, &refl).map(|f| f.evm_rms_percent)
     });
@@ -615,7 +632,12 @@ fn channel_report(ch: &crate::channel::ChannelEstimate) -> ChannelReport {
     let main = ch.taps[ch.pre].norm().max(1e-300);
     let powers: Vec<f64> = ch.taps.iter().map(|t| t.norm_sqr()).collect();
     let total: f64 = powers.iter().sum::<f64>().max(1e-300);
-    let mean: f64 = powers.iter().enumerate().map(|(i, p)| i as f64 * p).sum::<f64>() / total;
+    let mean: f64 = powers
+        .iter()
+        .enumerate()
+        .map(|(i, p)| i as f64 * p)
+        .sum::<f64>()
+        / total;
     let spread = (powers
         .iter()
         .enumerate()
@@ -848,7 +870,12 @@ fn judge(profile: &ResolvedProfile, bursts: &[BurstReport], summary: &Summary) -
         .map(|b| b.metrics.mer_db.unwrap_or(f64::INFINITY))
         .reduce(f64::min);
     check("limits.mer_db_min", lim.mer_db_min, worst_mer, false);
-    check("limits.ser_max", lim.ser_max, summary.ser.map(|r| r.rate), true);
+    check(
+        "limits.ser_max",
+        lim.ser_max,
+        summary.ser.map(|r| r.rate),
+        true,
+    );
     check(
         "limits.cfo_hz_abs_max",
         lim.cfo_hz_abs_max,
@@ -874,4 +901,97 @@ pub fn locate_input(report_path: &Path, recorded: &str) -> PathBuf {
         Some(dir) if dir.join(&p).exists() => dir.join(p),
         _ => p,
     }
+}
+
+/// What `recheck` found.
+#[derive(Debug, Clone)]
+pub struct RecheckResult {
+    /// The capture that was re-analysed.
+    pub input: PathBuf,
+    /// Figures that did not reproduce (empty when every figure did).
+    pub differences: Vec<crate::report::compare::Difference>,
+    /// Number of numeric figures compared.
+    pub figures: usize,
+}
+
+fn count_numbers(v: &serde_json::Value) -> usize {
+    match v {
+        serde_json::Value::Number(_) => 1,
+        serde_json::Value::Array(a) => a.iter().map(count_numbers).sum(),
+        serde_json::Value::Object(o) => o.values().map(count_numbers).sum(),
+        _ => 0,
+    }
+}
+
+/// Re-run the analysis recorded in a report and compare every figure exactly.
+///
+/// # Errors
+/// [`Error::Report`] when the report cannot be read or is not an
+/// `iqaudit-report/1` document; [`Error::Io`] when the capture is missing;
+/// [`Error::InputChanged`] when its SHA-256 differs from the recorded one; and
+/// any error of [`analyse_capture`].
+pub fn recheck(report_path: &Path) -> Result<RecheckResult, Error> {
+    let bad = |message: String| Error::Report {
+        path: report_path.to_path_buf(),
+        message,
+    };
+    let text = std::fs::read_to_string(report_path).map_err(|source| Error::Io {
+        path: report_path.to_path_buf(),
+        source,
+    })?;
+    let recorded: serde_json::Value =
+        serde_json::from_str(&text).map_err(|e| bad(format!("not valid JSON ({e})")))?;
+    let schema = recorded
+        .get("schema")
+        .and_then(|s| s.as_str())
+        .unwrap_or("");
+    if schema != SCHEMA {
+        return Err(bad(format!(
+            "schema is '{schema}', expected '{SCHEMA}' (not an iqaudit report?)"
+        )));
+    }
+    let report: Report = serde_json::from_value(recorded.clone())
+        .map_err(|e| bad(format!("does not match the {SCHEMA} schema: {e}")))?;
+    if !crate::report::provenance::is_sha256_hex(&report.input.sha256) {
+        return Err(bad(format!(
+            "input.sha256 '{}' is not a 64-digit hex SHA-256",
+            report.input.sha256
+        )));
+    }
+    let input = locate_input(report_path, &report.input.path);
+    let found = sha256_file(&input).map_err(|source| Error::Io {
+        path: input.clone(),
+        source,
+    })?;
+    if !found.eq_ignore_ascii_case(&report.input.sha256) {
+        return Err(Error::InputChanged {
+            path: input,
+            expected: report.input.sha256.clone(),
+            found,
+        });
+    }
+    let profile: ResolvedProfile = serde_json::from_value(report.profile.clone())
+        .map_err(|e| bad(format!("the recorded profile is not usable: {e}")))?;
+    let format = match &report.provenance.format_override {
+        Some(name) => Some(name.parse::<SampleFormat>().map_err(|_| {
+            bad(format!(
+                "provenance.format_override '{name}' is not a format"
+            ))
+        })?),
+        None => None,
+    };
+    let opts = AnalyseOptions {
+        format,
+        sample_rate_hz: report.provenance.sample_rate_override_hz,
+        command: report.command.clone(),
+    };
+    let mut again = analyse_capture(&input, &profile, &opts)?;
+    again.input.path = report.input.path.clone();
+    let again = serde_json::to_value(&again).map_err(|e| bad(e.to_string()))?;
+    let differences = crate::report::compare::differences(&recorded, &again, &["command"]);
+    Ok(RecheckResult {
+        input,
+        differences,
+        figures: count_numbers(&recorded),
+    })
 }

@@ -9,4 +9,5 @@ pub mod plots;
 pub mod provenance;
 pub mod schema;
 pub mod svg;
+pub mod text;
 pub mod write;
