@@ -226,7 +226,8 @@ impl Moments {
                     l[2][k] += i * i;
                     l[3][k] += q * q;
                     l[4][k] += i * q;
-                    pk[k] = pk[k].max(i * i + q * q);
+                    let p = i * i + q * q;
+                    pk[k] = if p > pk[k] { p } else { pk[k] };
                 }
             }
             let sum = |a: &[f32; 8]| a.iter().map(|&v| f64::from(v)).sum::<f64>();
