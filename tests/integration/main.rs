@@ -7,4 +7,5 @@ mod bad_input;
 mod capture_formats;
 mod info_cli;
 mod large_capture;
+mod signal;
 mod util;

@@ -1,0 +1,435 @@
+//! Figures of merit computed from equalised symbols.
+//!
+//! Takes equalised (soft) symbols `z`, reference symbols `s` (the known payload —
+//! data-aided — or the decisions) and, when the payload is known, the decided and
+//! true symbol labels. Gives EVM (RMS and peak), MER, symbol/bit error counts with
+//! exact Clopper–Pearson intervals, and runs of consecutive decision errors.
+//!
+//! Conventions (see the crate documentation):
+//! * EVM RMS = `sqrt(Σ|z−s|² / Σ|s|²)`, i.e. normalised to the mean power of the
+//!   reference symbols, as 3GPP TS 36.104 §6.5.2 / TS 38.101-2 Annex F define it;
+//!   `evm_rms_percent = 100·EVM`, `evm_rms_db = 20·log10(EVM)`.
+//! * Peak EVM = `max_k |z_k − s_k| / sqrt(mean |s|²)`, same normalisation.
+//! * MER (ETSI TR 101 290) = `10·log10(Σ|s|² / Σ|z−s|²)` dB; with the same
+//!   reference `mer_db = −evm_rms_db`.
+//! * All sums are accumulated in `f64` in index order, so the figures are the same
+//!   whatever the thread count of the caller.
+
+use crate::Cf32;
+use serde::{Deserialize, Serialize};
+use statrs::distribution::{Beta, Continuous, ContinuousCDF};
+
+/// EVM and MER of one block of symbols.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct EvmFigures {
+    /// Number of symbols measured.
+    pub symbols: usize,
+    /// RMS EVM in percent of the RMS reference amplitude.
+    pub evm_rms_percent: f64,
+    /// RMS EVM in dB (`20·log10(EVM)`); `-inf` is reported as `null`.
+    pub evm_rms_db: Option<f64>,
+    /// Peak EVM in percent.
+    pub evm_peak_percent: f64,
+    /// Index (within the block) of the symbol with the peak error vector.
+    pub evm_peak_index: usize,
+    /// Modulation error ratio in dB; `null` when the error is exactly zero.
+    pub mer_db: Option<f64>,
+}
+
+/// Error-vector sums, kept separately so blocks can be combined exactly.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct EvmAccumulator {
+    n: usize,
+    err_power: f64,
+    ref_power: f64,
+    peak_err_power: f64,
+    peak_index: usize,
+}
+
+impl EvmAccumulator {
+    /// Add the pairs `(z[k], s[k])`; `offset` is added to indices for the peak.
+    ///
+    /// # Panics
+    /// If `z` and `s` have different lengths (a programmer error).
+    pub fn add(&mut self, z: &[Cf32], s: &[Cf32], offset: usize) {
+        assert_eq!(z.len(), s.len(), "EVM needs one reference per symbol");
+        for (k, (zk, sk)) in z.iter().zip(s).enumerate() {
+            let e = (f64::from(zk.re) - f64::from(sk.re)).powi(2)
+                + (f64::from(zk.im) - f64::from(sk.im)).powi(2);
+            let r = f64::from(sk.re).powi(2) + f64::from(sk.im).powi(2);
+            self.err_power += e;
+            self.ref_power += r;
+            if e > self.peak_err_power {
+                self.peak_err_power = e;
+                self.peak_index = offset + k;
+            }
+        }
+        self.n += z.len();
+    }
+
+    /// Combine with another accumulator that covers later symbols.
+    pub fn merge(&mut self, other: &EvmAccumulator) {
+        self.n += other.n;
+        self.err_power += other.err_power;
+        self.ref_power += other.ref_power;
+        if other.peak_err_power > self.peak_err_power {
+            self.peak_err_power = other.peak_err_power;
+            self.peak_index = other.peak_index;
+        }
+    }
+
+    /// The figures, or `None` when no symbol (or only zero-power references) was added.
+    pub fn figures(&self) -> Option<EvmFigures> {
+        if self.n == 0 || self.ref_power <= 0.0 {
+            return None;
+        }
+        let ratio = self.err_power / self.ref_power;
+        let evm = ratio.sqrt();
+        let mean_ref = self.ref_power / self.n as f64;
+        let finite = |x: f64| if x.is_finite() { Some(x) } else { None };
+        Some(EvmFigures {
+            symbols: self.n,
+            evm_rms_percent: 100.0 * evm,
+            evm_rms_db: finite(20.0 * evm.log10()),
+            evm_peak_percent: 100.0 * (self.peak_err_power / mean_ref).sqrt(),
+            evm_peak_index: self.peak_index,
+            mer_db: finite(-10.0 * ratio.log10()),
+        })
+    }
+}
+
+/// EVM and MER of `z` against the reference `s` (see the module documentation).
+///
+/// Returns `None` for empty input or an all-zero reference.
+///
+/// # Panics
+/// If `z` and `s` have different lengths.
+pub fn evm(z: &[Cf32], s: &[Cf32]) -> Option<EvmFigures> {
+    let mut acc = EvmAccumulator::default();
+    acc.add(z, s, 0);
+    acc.figures()
+}
+
+/// A count of errors out of a number of trials with its exact two-sided interval.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct ErrorRate {
+    /// Number of errors.
+    pub errors: u64,
+    /// Number of trials (symbols or bits).
+    pub trials: u64,
+    /// `errors / trials`.
+    pub rate: f64,
+    /// Lower end of the Clopper–Pearson interval.
+    pub ci_low: f64,
+    /// Upper end of the Clopper–Pearson interval.
+    pub ci_high: f64,
+    /// Confidence level of the interval (e.g. 0.95).
+    pub confidence: f64,
+}
+
+impl ErrorRate {
+    /// Rate and exact (Clopper–Pearson, 1934) interval at the given confidence.
+    /// `None` when `trials == 0`.
+    pub fn new(errors: u64, trials: u64, confidence: f64) -> Option<ErrorRate> {
+        if trials == 0 || errors > trials {
+            return None;
+        }
+        let (lo, hi) = clopper_pearson(errors, trials, confidence);
+        Some(ErrorRate {
+            errors,
+            trials,
+            rate: errors as f64 / trials as f64,
+            ci_low: lo,
+            ci_high: hi,
+            confidence,
+        })
+    }
+}
+
+/// Exact two-sided Clopper–Pearson interval for `k` successes in `n` trials:
+/// `[B(α/2; k, n−k+1), B(1−α/2; k+1, n−k)]` with `B` the beta quantile and
+/// `α = 1 − confidence`; the lower end is 0 when `k = 0`, the upper 1 when `k = n`.
+///
+/// # Panics
+/// If `n == 0`, `k > n` or `confidence` is not in (0, 1).
+pub fn clopper_pearson(k: u64, n: u64, confidence: f64) -> (f64, f64) {
+    assert!(n > 0 && k <= n, "Clopper–Pearson needs 0 <= k <= n, n > 0");
+    assert!(confidence > 0.0 && confidence < 1.0);
+    let alpha = 1.0 - confidence;
+    let (kf, nf) = (k as f64, n as f64);
+    let lo = if k == 0 {
+        0.0
+    } else {
+        beta_quantile(alpha / 2.0, kf, nf - kf + 1.0)
+    };
+    let hi = if k == n {
+        1.0
+    } else {
+        beta_quantile(1.0 - alpha / 2.0, kf + 1.0, nf - kf)
+    };
+    (lo, hi)
+}
+
+/// Beta quantile: statrs' inverse CDF as the starting point, then Newton steps on
+/// the regularised incomplete beta function (statrs' inverse alone is good to only
+/// about 1e-7 relative for very skewed shapes).
+fn beta_quantile(p: f64, a: f64, b: f64) -> f64 {
+    let Ok(d) = Beta::new(a, b) else {
+        // Unreachable for the positive shapes built above; keep a defined value.
+        return f64::NAN;
+    };
+    let mut x = d.inverse_cdf(p);
+    for _ in 0..8 {
+        let pdf = d.pdf(x);
+        if !(pdf.is_finite() && pdf > 0.0) {
+            break;
+        }
+        let step = (d.cdf(x) - p) / pdf;
+        let next = (x - step).clamp(x * 0.5, x + (1.0 - x) * 0.5);
+        if next == x {
+            break;
+        }
+        x = next;
+    }
+    x
+}
+
+/// One run of consecutive decision errors.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+pub struct ErrorRun {
+    /// Index of the first wrong symbol, counted in payload symbols.
+    pub start: usize,
+    /// Number of consecutive wrong symbols.
+    pub length: usize,
+}
+
+/// Runs of consecutive `true` values in `wrong` (a run ends at the first correct
+/// symbol), in order of their start.
+pub fn error_runs(wrong: impl IntoIterator<Item = bool>) -> Vec<ErrorRun> {
+    let mut runs = Vec::new();
+    let mut current: Option<ErrorRun> = None;
+    for (k, w) in wrong.into_iter().enumerate() {
+        match (&mut current, w) {
+            (Some(run), true) => run.length += 1,
+            (None, true) => {
+                current = Some(ErrorRun {
+                    start: k,
+                    length: 1,
+                })
+            }
+            (Some(run), false) => {
+                runs.push(*run);
+                current = None;
+            }
+            (None, false) => {}
+        }
+    }
+    if let Some(run) = current {
+        runs.push(run);
+    }
+    runs
+}
+
+/// Histogram of run lengths: entry `i` counts runs of length `i + 1`.
+pub fn run_length_histogram(runs: &[ErrorRun]) -> Vec<u64> {
+    let longest = runs.iter().map(|r| r.length).max().unwrap_or(0);
+    let mut hist = vec![0u64; longest];
+    for r in runs {
+        hist[r.length - 1] += 1;
+    }
+    hist
+}
+
+/// How much decision feedback multiplied the errors: the DFE's symbol errors
+/// against the errors of the same DFE fed the true symbols (the genie).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct ErrorPropagation {
+    /// Symbol errors of the decision-fed equaliser.
+    pub dfe_errors: u64,
+    /// Symbol errors of the same equaliser fed the true symbols.
+    pub genie_errors: u64,
+    /// `dfe_errors − genie_errors` (negative values are possible by chance).
+    pub propagated_errors: i64,
+    /// `dfe_errors / genie_errors`; `null` when the genie made no error.
+    pub multiplication: Option<f64>,
+}
+
+impl ErrorPropagation {
+    /// Compare the two error counts.
+    pub fn new(dfe_errors: u64, genie_errors: u64) -> ErrorPropagation {
+        ErrorPropagation {
+            dfe_errors,
+            genie_errors,
+            propagated_errors: dfe_errors as i64 - genie_errors as i64,
+            multiplication: if genie_errors == 0 {
+                None
+            } else {
+                Some(dfe_errors as f64 / genie_errors as f64)
+            },
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn c(re: f32, im: f32) -> Cf32 {
+        Cf32::new(re, im)
+    }
+
+    #[test]
+    fn evm_of_a_hand_worked_block_matches_the_definition() {
+        // Hand-computed from the 3GPP form sqrt(Σ|z−s|²/Σ|s|²) (TS 36.104 §6.5.2):
+        // errors 0.1 and 0.2j on two unit-power QPSK points → sqrt((0.01+0.04)/2).
+        let h = std::f32::consts::FRAC_1_SQRT_2;
+        let s = [c(h, h), c(-h, h)];
+        let z = [c(h + 0.1, h), c(-h, h + 0.2)];
+        let f = evm(&z, &s).unwrap();
+        let expect = (0.05f64 / 2.0).sqrt();
+        assert!((f.evm_rms_percent / 100.0 - expect).abs() < 1e-6);
+        // MER = −EVM in dB with the same reference (ETSI TR 101 290 identity).
+        assert!((f.mer_db.unwrap() + f.evm_rms_db.unwrap()).abs() < 1e-9);
+        assert_eq!(f.evm_peak_index, 1);
+        assert!((f.evm_peak_percent - 20.0).abs() < 1e-4);
+    }
+
+    #[test]
+    fn evm_of_nothing_is_none_and_perfect_symbols_have_no_db_value() {
+        assert!(evm(&[], &[]).is_none());
+        let s = [c(1.0, 0.0)];
+        let f = evm(&s, &s).unwrap();
+        assert_eq!(f.evm_rms_percent, 0.0);
+        assert_eq!(f.evm_rms_db, None);
+        assert_eq!(f.mer_db, None);
+    }
+
+    #[test]
+    fn accumulating_in_blocks_gives_the_same_figures_as_one_pass() {
+        let s: Vec<Cf32> = (0..50).map(|k| c((k % 3) as f32 - 1.0, 1.0)).collect();
+        let z: Vec<Cf32> = s
+            .iter()
+            .enumerate()
+            .map(|(k, v)| v + c(0.01 * (k % 7) as f32, -0.02))
+            .collect();
+        let whole = evm(&z, &s).unwrap();
+        let mut a = EvmAccumulator::default();
+        a.add(&z[..20], &s[..20], 0);
+        let mut b = EvmAccumulator::default();
+        b.add(&z[20..], &s[20..], 20);
+        a.merge(&b);
+        let parts = a.figures().unwrap();
+        assert!((whole.evm_rms_percent - parts.evm_rms_percent).abs() < 1e-12);
+        assert_eq!(whole.evm_peak_index, parts.evm_peak_index);
+    }
+
+    #[test]
+    fn error_runs_split_at_every_correct_symbol() {
+        let w = [
+            false, true, true, false, true, false, false, true, true, true,
+        ];
+        let runs = error_runs(w);
+        assert_eq!(
+            runs,
+            vec![
+                ErrorRun {
+                    start: 1,
+                    length: 2
+                },
+                ErrorRun {
+                    start: 4,
+                    length: 1
+                },
+                ErrorRun {
+                    start: 7,
+                    length: 3
+                },
+            ]
+        );
+        assert_eq!(run_length_histogram(&runs), vec![1, 1, 1]);
+        assert!(error_runs([false; 4]).is_empty());
+    }
+
+    #[test]
+    fn clopper_pearson_edges_are_zero_and_one() {
+        let (lo, hi) = clopper_pearson(0, 10, 0.95);
+        assert_eq!(lo, 0.0);
+        // Known closed form for k = 0: 1 − (α/2)^(1/n) (common practice).
+        assert!((hi - (1.0 - 0.025f64.powf(0.1))).abs() < 1e-9);
+        let (lo, hi) = clopper_pearson(10, 10, 0.95);
+        assert_eq!(hi, 1.0);
+        assert!((lo - 0.025f64.powf(0.1)).abs() < 1e-9);
+    }
+}
+
+#[cfg(test)]
+mod reference_vectors {
+    //! Checks against tests/vectors/metrics.json, written by
+    //! tests/vectors/make_metric_vectors.py with numpy/scipy (versions inside the file).
+    use super::*;
+    use serde_json::Value;
+
+    fn vectors() -> Value {
+        serde_json::from_str(include_str!("../../tests/vectors/metrics.json"))
+            .expect("committed vector file parses")
+    }
+
+    #[test]
+    fn clopper_pearson_matches_scipy_beta_quantiles() {
+        // Source: scipy.stats.beta.ppf (Clopper & Pearson, Biometrika 26(4), 1934).
+        // Tolerance 1e-9 relative: both sides evaluate the same regularised incomplete beta.
+        for case in vectors()["clopper_pearson"].as_array().unwrap() {
+            let k = case["k"].as_u64().unwrap();
+            let n = case["n"].as_u64().unwrap();
+            let conf = case["confidence"].as_f64().unwrap();
+            let (lo, hi) = clopper_pearson(k, n, conf);
+            let (elo, ehi) = (
+                case["low"].as_f64().unwrap(),
+                case["high"].as_f64().unwrap(),
+            );
+            assert!(
+                (lo - elo).abs() <= 1e-9 * elo.max(1e-12) + 1e-15,
+                "k={k} n={n}: low {lo} vs scipy {elo}"
+            );
+            assert!(
+                (hi - ehi).abs() <= 1e-9 * ehi.max(1e-12) + 1e-15,
+                "k={k} n={n}: high {hi} vs scipy {ehi}"
+            );
+        }
+    }
+
+    #[test]
+    fn evm_and_mer_match_an_independent_numpy_computation() {
+        // Source: numpy evaluation of the 3GPP TS 36.104 EVM and ETSI TR 101 290 MER definitions
+        // on a seeded 16-QAM block; both sides accumulate in double precision.
+        let v = vectors();
+        let ex = &v["evm_example"];
+        let pts = |key: &str| -> Vec<Cf32> {
+            ex[key]
+                .as_array()
+                .unwrap()
+                .iter()
+                .map(|p| Cf32::new(p[0].as_f64().unwrap() as f32, p[1].as_f64().unwrap() as f32))
+                .collect()
+        };
+        let f = evm(&pts("z"), &pts("s")).unwrap();
+        let close = |a: f64, b: f64| (a - b).abs() < 1e-9 * b.abs().max(1.0);
+        assert!(close(
+            f.evm_rms_percent,
+            ex["evm_rms_percent"].as_f64().unwrap()
+        ));
+        assert!(close(
+            f.evm_rms_db.unwrap(),
+            ex["evm_rms_db"].as_f64().unwrap()
+        ));
+        assert!(close(f.mer_db.unwrap(), ex["mer_db"].as_f64().unwrap()));
+        assert!(close(
+            f.evm_peak_percent,
+            ex["evm_peak_percent"].as_f64().unwrap()
+        ));
+        assert_eq!(
+            f.evm_peak_index as u64,
+            ex["evm_peak_index"].as_u64().unwrap()
+        );
+    }
+}

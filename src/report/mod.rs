@@ -1,0 +1,11 @@
+//! Reporting: figures of merit, the JSON audit trail and its atomic writer.
+//!
+//! Takes the per-burst results of the analysis and gives the report document
+//! (schema `iqaudit-report/1`), the terminal summary and the plots.
+
+pub mod compare;
+pub mod metrics;
+pub mod plots;
+pub mod schema;
+pub mod svg;
+pub mod write;

@@ -1,0 +1,365 @@
+//! The report document, schema `iqaudit-report/1`.
+//!
+//! One JSON object per analysed capture. Every key is listed here with its unit
+//! and when it is `null`; docs/report.md repeats this reference for users.
+//! Complex numbers are `[re, im]` arrays. Maps are ordered (`BTreeMap`) and
+//! floating-point figures come from sums taken in capture order, so the same
+//! capture and profile give byte-identical figures whatever the thread count.
+//!
+//! | key | meaning |
+//! |---|---|
+//! | `schema` | always `"iqaudit-report/1"` |
+//! | `tool` | `{name, version}` of the program that wrote the report |
+//! | `command` | the command line, one argument per element |
+//! | `input` | path, `size_bytes`, `sha256` (hex), format, `sample_rate_hz`, `center_freq_hz` (null when unknown), `samples` |
+//! | `profile` | the resolved link profile with every default filled in |
+//! | `bursts` | one [`BurstReport`] per burst found, in capture order |
+//! | `summary` | [`Summary`] over all bursts |
+//! | `verdict` | [`Verdict`]: `pass`, `fail` or `no-training`, with each limit checked |
+//! | `warnings` | capture-level [`Warning`]s (burst-level ones are inside each burst) |
+//! | `provenance` | what is needed to re-run: tool version, profile SHA-256, the `recheck` command |
+
+use super::metrics::{ErrorPropagation, ErrorRate, ErrorRun};
+use serde::{Deserialize, Serialize};
+use std::fmt;
+
+/// The schema identifier written into every report.
+pub const SCHEMA: &str = "iqaudit-report/1";
+
+/// A complex number as `[re, im]`.
+pub type Complex2 = [f64; 2];
+
+/// The whole report for one capture.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Report {
+    /// Always [`SCHEMA`].
+    pub schema: String,
+    /// Name and version of the writing program.
+    pub tool: ToolInfo,
+    /// The command line that produced the report.
+    pub command: Vec<String>,
+    /// The capture analysed.
+    pub input: InputInfo,
+    /// The resolved link profile (every default filled in).
+    pub profile: serde_json::Value,
+    /// One entry per burst, in capture order.
+    pub bursts: Vec<BurstReport>,
+    /// Figures over all bursts.
+    pub summary: Summary,
+    /// Pass/fail against the profile's limits.
+    pub verdict: Verdict,
+    /// Capture-level warnings.
+    pub warnings: Vec<Warning>,
+    /// What is needed to reproduce the figures.
+    pub provenance: Provenance,
+}
+
+/// Program name and version.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ToolInfo {
+    /// `"iqaudit"`.
+    pub name: String,
+    /// The crate version.
+    pub version: String,
+}
+
+/// The analysed capture.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct InputInfo {
+    /// Path as given on the command line.
+    pub path: String,
+    /// File size in bytes.
+    pub size_bytes: u64,
+    /// SHA-256 of the file contents, lowercase hex.
+    pub sha256: String,
+    /// Sample format, e.g. `cf32_le` or `wav pcm16`.
+    pub format: String,
+    /// Sample rate in Hz.
+    pub sample_rate_hz: f64,
+    /// Centre frequency in Hz; `null` when unknown.
+    pub center_freq_hz: Option<f64>,
+    /// Number of complex samples.
+    pub samples: u64,
+}
+
+/// One burst: where it was found, what the channel did, how the payload came out.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct BurstReport {
+    /// 0-based burst number in capture order.
+    pub index: usize,
+    /// Capture sample nearest the first training symbol's instant.
+    pub start_sample: u64,
+    /// Fractional timing in samples, in [−0.5, 0.5): instant = `start_sample + timing_frac_samples`.
+    pub timing_frac_samples: f64,
+    /// Peak of the normalised correlation metric, in [0, 1].
+    pub sync_metric: f64,
+    /// Carrier frequency offset in Hz (training estimate plus decision-directed refinement).
+    pub cfo_hz: f64,
+    /// CFO estimated from the training alone, Hz.
+    pub cfo_training_hz: f64,
+    /// CFO in parts per million of the centre frequency; `null` when it is unknown.
+    pub cfo_ppm: Option<f64>,
+    /// Carrier phase at the first training symbol, radians.
+    pub phase_rad: f64,
+    /// True when the capture ends before the burst does.
+    pub truncated: bool,
+    /// Payload symbols present in the capture (fewer than the profile says when truncated).
+    pub payload_symbols: usize,
+    /// The fitted channel.
+    pub channel: ChannelReport,
+    /// The equaliser used and its predicted and achieved output SNR.
+    pub equaliser: EqualiserReport,
+    /// Figures of merit of the equalised payload.
+    pub metrics: BurstMetrics,
+    /// Data for the plots (decimated so reports stay small).
+    pub trace: Trace,
+    /// Burst-level warnings.
+    pub warnings: Vec<Warning>,
+}
+
+/// The least-squares channel fit of one burst.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ChannelReport {
+    /// Complex taps `h[−P] … h[Q]` as `[re, im]`.
+    pub taps: Vec<Complex2>,
+    /// Tap magnitudes in dB relative to the main tap.
+    pub taps_db: Vec<f64>,
+    /// Index of the main tap `h[0]` in `taps` (= number of pre-cursor taps).
+    pub main_index: usize,
+    /// Number of pre-cursor taps P.
+    pub pre_cursor: usize,
+    /// Number of post-cursor taps Q.
+    pub post_cursor: usize,
+    /// Taps whose power stands above the estimation noise.
+    pub significant_taps: usize,
+    /// RMS delay spread of the tap powers, in symbols.
+    pub delay_spread_symbols: f64,
+    /// Residual noise variance per symbol (same scale as the taps).
+    pub noise_variance: f64,
+    /// SNR at the symbol-rate matched-filter output, dB.
+    pub snr_db: f64,
+    /// Fitted DC term `[re, im]`; `null` when not fitted.
+    pub dc: Option<Complex2>,
+    /// Magnitude of the fitted image (IQ-imbalance) term relative to the main tap, dB; `null` when not fitted.
+    pub image_rejection_db: Option<f64>,
+    /// Channel frequency response: `[f, |H(f)| dB]` with f in cycles/symbol from −0.5 to 0.5.
+    pub response_db: Vec<[f64; 2]>,
+}
+
+/// Which equaliser ran and what it was expected to achieve.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct EqualiserReport {
+    /// `zf-dfe`, `mmse-dfe` or `linear-mmse`.
+    pub kind: String,
+    /// Feedforward taps.
+    pub feedforward_taps: usize,
+    /// Feedback taps.
+    pub feedback_taps: usize,
+    /// Decision delay in symbols.
+    pub decision_delay: usize,
+    /// Output SNR predicted from the channel estimate, dB (unbiased).
+    pub predicted_snr_db: Option<f64>,
+    /// Output SNR achieved on the payload (from the EVM), dB.
+    pub achieved_snr_db: Option<f64>,
+    /// The EVM the linear MMSE equaliser of the same span gives on the same burst, %.
+    pub linear_mmse_evm_percent: Option<f64>,
+    /// Tracking mode (`off`, `lms`, `rls`).
+    pub tracking: String,
+}
+
+/// Figures of merit of one burst's payload.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct BurstMetrics {
+    /// `known-payload` (data-aided) or `decisions`.
+    pub reference: String,
+    /// Payload symbols measured.
+    pub symbols: usize,
+    /// RMS EVM, % of RMS reference amplitude.
+    pub evm_rms_percent: f64,
+    /// RMS EVM, dB; `null` if zero.
+    pub evm_rms_db: Option<f64>,
+    /// Peak EVM, %.
+    pub evm_peak_percent: f64,
+    /// Payload index of the peak EVM symbol.
+    pub evm_peak_symbol: usize,
+    /// MER, dB; `null` if the error is zero.
+    pub mer_db: Option<f64>,
+    /// Symbol error rate with 95 % Clopper–Pearson interval; `null` when the payload is unknown.
+    pub ser: Option<ErrorRate>,
+    /// Bit error rate with 95 % interval; `null` when the payload is unknown.
+    pub ber: Option<ErrorRate>,
+    /// Runs of consecutive decision errors (payload symbol index, length); empty when unknown.
+    pub error_runs: Vec<ErrorRun>,
+    /// Entry i counts error runs of length i + 1.
+    pub run_length_histogram: Vec<u64>,
+    /// DFE errors against the genie DFE fed true symbols; `null` when the payload is unknown.
+    pub error_propagation: Option<ErrorPropagation>,
+}
+
+/// Decimated data the plots are drawn from.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Trace {
+    /// Up to a fixed number of equalised payload symbols, evenly spread: `[index, re, im]`.
+    pub constellation: Vec<[f64; 3]>,
+    /// Indices (payload symbols) of wrong decisions among `constellation`'s points.
+    pub wrong: Vec<usize>,
+    /// RMS EVM % over consecutive blocks: `[first symbol, evm %]`.
+    pub evm_blocks: Vec<[f64; 2]>,
+    /// Normalised sync metric around the burst: `[sample offset from start_sample, metric]`.
+    pub sync_metric: Vec<[f64; 2]>,
+}
+
+/// Figures over all bursts of a capture.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Summary {
+    /// Bursts found.
+    pub bursts: usize,
+    /// RMS EVM over all payload symbols of all bursts, %; `null` without bursts.
+    pub evm_rms_percent: Option<f64>,
+    /// Worst burst RMS EVM, %.
+    pub evm_worst_percent: Option<f64>,
+    /// MER over all bursts, dB.
+    pub mer_db: Option<f64>,
+    /// SER over all bursts with 95 % interval; `null` when the payload is unknown.
+    pub ser: Option<ErrorRate>,
+    /// BER over all bursts with 95 % interval; `null` when the payload is unknown.
+    pub ber: Option<ErrorRate>,
+    /// Largest |CFO| over bursts, Hz.
+    pub cfo_abs_max_hz: Option<f64>,
+    /// Longest decision-error run over bursts, symbols.
+    pub longest_error_run: usize,
+}
+
+/// Pass/fail against limits.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Verdict {
+    /// `pass`, `fail` or `no-training`.
+    pub result: VerdictResult,
+    /// Every limit checked, with the measured value.
+    pub checks: Vec<LimitCheck>,
+}
+
+/// Outcome of the limit checks.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum VerdictResult {
+    /// Analysed, every limit met.
+    Pass,
+    /// Analysed, at least one limit failed.
+    Fail,
+    /// No training block was found.
+    NoTraining,
+}
+
+/// One limit and the value it was checked against.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct LimitCheck {
+    /// The profile key of the limit, e.g. `limits.evm_rms_percent_max`.
+    pub limit: String,
+    /// The limit value.
+    pub threshold: f64,
+    /// The measured value (worst case over bursts).
+    pub measured: f64,
+    /// Whether the measured value is within the limit.
+    pub pass: bool,
+}
+
+/// Reproduction data.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Provenance {
+    /// Tool version that wrote the figures.
+    pub tool_version: String,
+    /// SHA-256 of the canonical JSON of the resolved profile.
+    pub profile_sha256: String,
+    /// Command that re-runs the analysis and compares every figure.
+    pub recheck: String,
+}
+
+/// A warning with a stable code and a specific hint.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Warning {
+    /// Stable code, e.g. `clipping`.
+    pub code: WarningCode,
+    /// Human-readable detail with the figures involved and what to try.
+    pub message: String,
+}
+
+/// Stable warning codes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+#[non_exhaustive]
+pub enum WarningCode {
+    /// Samples at full scale.
+    Clipping,
+    /// DC offset strong relative to the signal.
+    StrongDc,
+    /// The capture ends inside a burst.
+    BurstTruncated,
+    /// The main tap is weak against the other taps or the noise.
+    MainTapWeak,
+    /// Decision-directed tracking diverged.
+    TrackingLost,
+    /// No training block found.
+    NoTrainingFound,
+    /// Trailing bytes that do not make a whole sample were ignored.
+    TrailingBytes,
+    /// NaN or infinite samples were replaced by zero.
+    NonFiniteSamples,
+    /// The correlation peak was close to the threshold.
+    WeakCorrelation,
+    /// Error propagation multiplied the decision errors.
+    ErrorPropagation,
+}
+
+impl fmt::Display for WarningCode {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        let s = serde_json::to_value(self)
+            .ok()
+            .and_then(|v| v.as_str().map(str::to_string))
+            .unwrap_or_default();
+        f.write_str(&s)
+    }
+}
+
+impl Warning {
+    /// A warning with its message.
+    pub fn new(code: WarningCode, message: impl Into<String>) -> Warning {
+        Warning {
+            code,
+            message: message.into(),
+        }
+    }
+}
+
+impl fmt::Display for Warning {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "[{}] {}", self.code, self.message)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn warning_codes_serialise_as_stable_kebab_case_strings() {
+        assert_eq!(WarningCode::BurstTruncated.to_string(), "burst-truncated");
+        assert_eq!(
+            serde_json::to_string(&VerdictResult::NoTraining).unwrap(),
+            "\"no-training\""
+        );
+    }
+}
