@@ -1,0 +1,232 @@
+//! The DFE loop shared by every equaliser (ZF-DFE, MMSE-DFE, linear MMSE,
+//! genie, tracking variants).
+//!
+//! Takes symbol-rate samples `y`, filters in apply form
+//! (`z_n = e^{−jφ_n}·Σ_r ff[r]·y[n + lag − r] − Σ_{j=1}^{Nb} fb[j−1]·d[n−j]`,
+//! `lag = Δ − P`, samples outside `y` read as 0), a slicer, the reference
+//! symbols used for feedback inside `truth_range`, and optional phase loop and
+//! filter adaptation; writes the soft output `z_n`, the label of the nearest
+//! constellation point and the loop phase `φ_n` for every `n` of the segment
+//! into caller-owned slices. Nothing is allocated per symbol: the feedforward
+//! window is a contiguous slice of a zero-padded copy of `y` (made once per
+//! segment) and the feedback history is a contiguous slice of a per-segment
+//! decision buffer.
+
+use super::tracking::{AdaptMode, PhaseLoop, TrackingConfig};
+use super::Slicer;
+use crate::Cf32;
+use std::ops::Range;
+
+/// Caller-side description of one forward pass.
+pub(crate) struct Pass<'a> {
+    pub y: &'a [Cf32],
+    /// Reference symbols, indexed like `y`; used for feedback (and as the
+    /// adaptation/phase reference) for `n` in `truth_range`.
+    pub truth: &'a [Cf32],
+    pub truth_range: Range<usize>,
+    /// Symbols `n` to produce.
+    pub range: Range<usize>,
+}
+
+/// Mutable filter state (reversed storage for contiguous dot products).
+pub(crate) struct LoopFilters {
+    /// `ffr[t] = ff[Nf−1−t]`
+    pub ffr: Vec<Cf32>,
+    /// `fbr[t] = fb[Nb−1−t]`
+    pub fbr: Vec<Cf32>,
+    pub lag: isize,
+}
+
+impl LoopFilters {
+    pub fn new(ff: &[Cf32], fb: &[Cf32], lag: isize) -> Self {
+        LoopFilters {
+            ffr: ff.iter().rev().cloned().collect(),
+            fbr: fb.iter().rev().cloned().collect(),
+            lag,
+        }
+    }
+}
+
+/// Adaptation state.
+pub(crate) struct Adapt {
+    pub mode: AdaptMode,
+    mu: f32,
+    lambda: f32,
+    /// RLS inverse correlation matrix, row-major `n×n`.
+    p: Vec<Cf32>,
+    u: Vec<Cf32>,
+    pu: Vec<Cf32>,
+}
+
+impl Adapt {
+    pub fn off() -> Self {
+        Adapt {
+            mode: AdaptMode::Off,
+            mu: 0.0,
+            lambda: 1.0,
+            p: Vec::new(),
+            u: Vec::new(),
+            pu: Vec::new(),
+        }
+    }
+    pub fn new(cfg: &TrackingConfig, n: usize) -> Self {
+        let mut a = Adapt::off();
+        a.mode = cfg.mode;
+        a.mu = cfg.lms_step;
+        a.lambda = cfg.rls_forgetting;
+        if cfg.mode == AdaptMode::Rls {
+            a.p = vec![Cf32::new(0.0, 0.0); n * n];
+            for i in 0..n {
+                a.p[i * n + i] = Cf32::new(1.0 / cfg.rls_delta, 0.0);
+            }
+            a.u = vec![Cf32::new(0.0, 0.0); n];
+            a.pu = vec![Cf32::new(0.0, 0.0); n];
+        }
+        a
+    }
+}
+
+/// Run one forward pass. `soft`, `labels`, `phase` are indexed like `y`
+/// (only `pass.range` is written).
+///
+/// # Panics
+/// When the output slices are shorter than `pass.range.end` or `truth` is
+/// shorter than `y` (programmer errors).
+#[allow(clippy::too_many_arguments)] // the caller-owned outputs are separate slices on purpose
+pub(crate) fn run_pass(
+    pass: &Pass<'_>,
+    f: &mut LoopFilters,
+    cons: &dyn Slicer,
+    mut pll: Option<&mut PhaseLoop>,
+    adapt: &mut Adapt,
+    soft: &mut [Cf32],
+    labels: &mut [usize],
+    phase: &mut [f32],
+) {
+    let Range { start, end } = pass.range.clone();
+    if start >= end {
+        return;
+    }
+    assert!(soft.len() >= end && labels.len() >= end && phase.len() >= end);
+    assert!(pass.truth.len() >= pass.y.len());
+    let nf = f.ffr.len();
+    let nb = f.fbr.len();
+    let zero = Cf32::new(0.0, 0.0);
+    // Padded copy: ypad[i + left] = y[i]; window for n is
+    // ypad[n + lag − (nf−1) + left ..= n + lag + left].
+    let first = start as isize + f.lag - (nf as isize - 1);
+    let left = (-first).max(0) as usize;
+    let last = end as isize - 1 + f.lag;
+    let right = (last - (pass.y.len() as isize - 1)).max(0) as usize;
+    let mut ypad = vec![zero; left + pass.y.len() + right];
+    ypad[left..left + pass.y.len()].copy_from_slice(pass.y);
+    // Feedback history: hist[i + nb] = d[start + i]; hist[..nb] = d[start−nb..start].
+    let mut hist = vec![zero; nb + (end - start)];
+    for (j, h) in hist[..nb].iter_mut().enumerate() {
+        let n = start as isize - nb as isize + j as isize;
+        if n >= 0 && pass.truth_range.contains(&(n as usize)) {
+            *h = pass.truth[n as usize];
+        }
+    }
+    let ntot = nf + nb;
+    for n in start..end {
+        let i = n - start;
+        let base = (n as isize + f.lag - (nf as isize - 1) + left as isize) as usize;
+        let win = &ypad[base..base + nf];
+        let mut acc = zero;
+        for (w, v) in f.ffr.iter().zip(win) {
+            acc += w * v;
+        }
+        let rot = pll.as_ref().map_or(Cf32::new(1.0, 0.0), |p| p.phasor());
+        let mut z = acc * rot.conj();
+        let past = &hist[i..i + nb];
+        let mut fbs = zero;
+        for (b, d) in f.fbr.iter().zip(past) {
+            fbs += b * d;
+        }
+        z -= fbs;
+        let label = cons.slice(z);
+        let d = if pass.truth_range.contains(&n) {
+            pass.truth[n]
+        } else {
+            cons.points()[label]
+        };
+        soft[n] = z;
+        labels[n] = label;
+        if let Some(p) = pll.as_deref_mut() {
+            phase[n] = p.phase as f32;
+            let dn = d.norm_sqr();
+            let err = if dn > 0.0 {
+                (z * d.conj()).im / dn
+            } else {
+                0.0
+            };
+            p.update(err);
+        }
+        match adapt.mode {
+            AdaptMode::Off => {}
+            AdaptMode::Lms => {
+                let e = d - z;
+                let norm: f32 = win.iter().map(|v| v.norm_sqr()).sum::<f32>()
+                    + past.iter().map(|v| v.norm_sqr()).sum::<f32>()
+                    + 1e-6;
+                let g = e * (adapt.mu / norm);
+                let gr = g * rot;
+                for (w, v) in f.ffr.iter_mut().zip(win) {
+                    *w += gr * v.conj();
+                }
+                for (b, v) in f.fbr.iter_mut().zip(&hist[i..i + nb]) {
+                    *b -= g * v.conj();
+                }
+            }
+            AdaptMode::Rls => {
+                let e = d - z;
+                let rc = rot.conj();
+                for (u, v) in adapt.u.iter_mut().zip(win) {
+                    *u = v * rc;
+                }
+                for (u, v) in adapt.u[nf..].iter_mut().zip(&hist[i..i + nb]) {
+                    *u = -v;
+                }
+                // z = wᵀu = vᴴu with v = conj(w): RLS on v, then w = conj(v).
+                // pu = P·u, den = λ + uᴴ·P·u, k = pu/den,
+                // v ← v + k·e*, i.e. w ← w + conj(k)·e; P ← (P − k·uᴴ·P)/λ.
+                for r in 0..ntot {
+                    let row = &adapt.p[r * ntot..(r + 1) * ntot];
+                    let mut s = zero;
+                    for (pv, uv) in row.iter().zip(&adapt.u) {
+                        s += pv * uv;
+                    }
+                    adapt.pu[r] = s;
+                }
+                let mut upu = zero;
+                for (uv, pv) in adapt.u.iter().zip(&adapt.pu) {
+                    upu += uv.conj() * pv;
+                }
+                let den = adapt.lambda + upu.re;
+                if den > 1e-12 && den.is_finite() {
+                    let inv = 1.0 / den;
+                    for t in 0..ntot {
+                        let k = adapt.pu[t] * inv;
+                        let dw = k.conj() * e;
+                        if t < nf {
+                            f.ffr[t] += dw;
+                        } else {
+                            f.fbr[t - nf] += dw;
+                        }
+                    }
+                    // P is Hermitian, so uᴴP = (P·u)ᴴ = puᴴ.
+                    let il = 1.0 / adapt.lambda;
+                    for r in 0..ntot {
+                        let kr = adapt.pu[r] * inv;
+                        for c in 0..ntot {
+                            let v = &mut adapt.p[r * ntot + c];
+                            *v = (*v - kr * adapt.pu[c].conj()) * il;
+                        }
+                    }
+                }
+            }
+        }
+        hist[i + nb] = d;
+    }
+}
