@@ -8,4 +8,5 @@ mod capture_formats;
 mod info_cli;
 mod large_capture;
 mod signal;
+mod sync;
 mod util;
