@@ -232,42 +232,51 @@ impl OverlapSave {
             .map(|v| energy(*v))
             .sum();
         let end = first + count;
+        let c2 = &mut c2[first..end];
+        let best = &mut best[first..end];
         for (h, spec) in self.spectra.iter().enumerate() {
             self.inverse(spec, buf, work, fft_scratch);
+            let w = &work[first..end];
             if h == 0 {
-                for i in first..end {
-                    c2[i] = work[i].norm_sqr();
-                    best[i] = 0;
+                for ((c, b), v) in c2.iter_mut().zip(best.iter_mut()).zip(w) {
+                    *c = v.norm_sqr();
+                    *b = 0;
                 }
             } else {
-                for i in first..end {
-                    let v = work[i].norm_sqr();
-                    if v > c2[i] {
-                        c2[i] = v;
-                        best[i] = h as u32;
-                    }
+                // Branch-free select so the loop vectorises.
+                let hu = h as u32;
+                for ((c, b), v) in c2.iter_mut().zip(best.iter_mut()).zip(w) {
+                    let p = v.norm_sqr();
+                    let gt = p > *c;
+                    *c = if gt { p } else { *c };
+                    *b = if gt { hu } else { *b };
                 }
             }
         }
         let floor = SILENT_WINDOW_RELATIVE * block_energy;
+        // Compare |c|² ≥ γ·E_r·E_w without dividing; divide only for emitted lags.
+        let scaled = threshold * ref_energy;
         let mut ew: f64 = input[first..first + l].iter().map(|v| energy(*v)).sum();
-        for i in first..end {
-            if i > first {
+        for (j, (&c, &b)) in c2.iter().zip(best.iter()).enumerate() {
+            let i = first + j;
+            if j > 0 {
                 ew += energy(input[i + l - 1]) - energy(input[i - 1]);
             }
-            let mut e = ew;
-            if e <= floor {
+            if ew <= floor {
                 // Cancellation in the running sum could leave a residue here: recompute.
-                e = input[i..i + l].iter().map(|v| energy(*v)).sum();
-                ew = e;
+                ew = input[i..i + l].iter().map(|v| energy(*v)).sum();
             }
-            let rho = if e > floor && e > 0.0 {
-                (f64::from(c2[i]) / (ref_energy * e)).min(1.0)
+            let c = f64::from(c);
+            if threshold >= 0.0 && c < scaled * ew {
+                continue;
+            }
+            let rho = if ew > floor && ew > 0.0 {
+                (c / (ref_energy * ew)).min(1.0)
             } else {
                 0.0
             };
             if rho >= threshold {
-                emit(i, rho, best[i] as usize);
+                emit(i, rho, b as usize);
             }
         }
     }

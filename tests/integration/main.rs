@@ -9,5 +9,6 @@ mod info_cli;
 mod large_capture;
 mod profile;
 mod signal;
+mod sync;
 mod synth;
 mod util;
