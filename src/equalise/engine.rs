@@ -14,7 +14,7 @@
 
 use super::tracking::{AdaptMode, PhaseLoop, TrackingConfig};
 use super::Slicer;
-use crate::Cf32;
+use crate::{Cf32, Cf64};
 use std::ops::Range;
 
 /// Caller-side description of one forward pass.
@@ -52,10 +52,13 @@ pub(crate) struct Adapt {
     pub mode: AdaptMode,
     mu: f32,
     lambda: f32,
-    /// RLS inverse correlation matrix, row-major `n×n`.
-    p: Vec<Cf32>,
-    u: Vec<Cf32>,
-    pu: Vec<Cf32>,
+    /// RLS inverse correlation matrix, row-major `n×n`, in f64 and kept exactly
+    /// Hermitian (upper triangle updated, lower mirrored): in f32 the
+    /// conventional RLS recursion loses positive-definiteness after a few
+    /// thousand updates and diverges.
+    p: Vec<Cf64>,
+    u: Vec<Cf64>,
+    pu: Vec<Cf64>,
 }
 
 impl Adapt {
@@ -75,12 +78,13 @@ impl Adapt {
         a.mu = cfg.lms_step;
         a.lambda = cfg.rls_forgetting;
         if cfg.mode == AdaptMode::Rls {
-            a.p = vec![Cf32::new(0.0, 0.0); n * n];
+            let z = Cf64::new(0.0, 0.0);
+            a.p = vec![z; n * n];
             for i in 0..n {
-                a.p[i * n + i] = Cf32::new(1.0 / cfg.rls_delta, 0.0);
+                a.p[i * n + i] = Cf64::new(1.0 / cfg.rls_delta as f64, 0.0);
             }
-            a.u = vec![Cf32::new(0.0, 0.0); n];
-            a.pu = vec![Cf32::new(0.0, 0.0); n];
+            a.u = vec![z; n];
+            a.pu = vec![z; n];
         }
         a
     }
@@ -181,34 +185,39 @@ pub(crate) fn run_pass(
             }
             AdaptMode::Rls => {
                 let e = d - z;
+                let e64 = Cf64::new(e.re as f64, e.im as f64);
                 let rc = rot.conj();
+                let w64 = |v: Cf32| Cf64::new(v.re as f64, v.im as f64);
                 for (u, v) in adapt.u.iter_mut().zip(win) {
-                    *u = v * rc;
+                    *u = w64(v * rc);
                 }
-                for (u, v) in adapt.u[nf..].iter_mut().zip(&hist[i..i + nb]) {
-                    *u = -v;
+                for (u, v) in adapt.u[nf..].iter_mut().zip(past) {
+                    *u = -w64(*v);
                 }
-                // z = wᵀu = vᴴu with v = conj(w): RLS on v, then w = conj(v).
+                // z = wᵀu = vᴴu with v = conj(w): RLS on v (Haykin), then w = conj(v).
                 // pu = P·u, den = λ + uᴴ·P·u, k = pu/den,
                 // v ← v + k·e*, i.e. w ← w + conj(k)·e; P ← (P − k·uᴴ·P)/λ.
+                let z64 = Cf64::new(0.0, 0.0);
                 for r in 0..ntot {
                     let row = &adapt.p[r * ntot..(r + 1) * ntot];
-                    let mut s = zero;
+                    let mut s = z64;
                     for (pv, uv) in row.iter().zip(&adapt.u) {
                         s += pv * uv;
                     }
                     adapt.pu[r] = s;
                 }
-                let mut upu = zero;
+                let mut upu = z64;
                 for (uv, pv) in adapt.u.iter().zip(&adapt.pu) {
                     upu += uv.conj() * pv;
                 }
-                let den = adapt.lambda + upu.re;
+                let lambda = adapt.lambda as f64;
+                let den = lambda + upu.re;
                 if den > 1e-12 && den.is_finite() {
                     let inv = 1.0 / den;
                     for t in 0..ntot {
                         let k = adapt.pu[t] * inv;
-                        let dw = k.conj() * e;
+                        let dw = k.conj() * e64;
+                        let dw = Cf32::new(dw.re as f32, dw.im as f32);
                         if t < nf {
                             f.ffr[t] += dw;
                         } else {
@@ -216,13 +225,16 @@ pub(crate) fn run_pass(
                         }
                     }
                     // P is Hermitian, so uᴴP = (P·u)ᴴ = puᴴ.
-                    let il = 1.0 / adapt.lambda;
+                    let il = 1.0 / lambda;
                     for r in 0..ntot {
                         let kr = adapt.pu[r] * inv;
-                        for c in 0..ntot {
-                            let v = &mut adapt.p[r * ntot + c];
-                            *v = (*v - kr * adapt.pu[c].conj()) * il;
+                        for c in r..ntot {
+                            let v = (adapt.p[r * ntot + c] - kr * adapt.pu[c].conj()) * il;
+                            adapt.p[r * ntot + c] = v;
+                            adapt.p[c * ntot + r] = v.conj();
                         }
+                        let dgl = &mut adapt.p[r * ntot + r];
+                        dgl.im = 0.0;
                     }
                 }
             }

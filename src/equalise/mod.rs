@@ -672,3 +672,6 @@ impl Slicer for crate::signal::Constellation {
         crate::signal::Constellation::points(self)
     }
 }
+
+#[cfg(test)]
+mod tests;
