@@ -132,6 +132,12 @@ pub(crate) fn run_pass(
             *h = pass.truth[n as usize];
         }
     }
+    if adapt.mode == AdaptMode::Off {
+        fixed_filter_pass(
+            pass, f, cons, pll, &ypad, left, &mut hist, soft, labels, phase,
+        );
+        return;
+    }
     let ntot = nf + nb;
     for n in start..end {
         let i = n - start;
@@ -240,5 +246,97 @@ pub(crate) fn run_pass(
             }
         }
         hist[i + nb] = d;
+    }
+}
+
+/// Symbols per block of the fixed-filter fast path.
+const BLOCK: usize = 256;
+
+/// Fast path when the filters do not adapt: the feedforward output does not
+/// depend on decisions (the phase loop rotates it afterwards), so it is
+/// computed block by block as a FIR vectorised over the output index (split
+/// real/imaginary arrays, one axpy per tap); only the feedback, the rotation,
+/// the slicer and the loop stay in the serial per-symbol recursion.
+#[allow(clippy::too_many_arguments)]
+fn fixed_filter_pass(
+    pass: &Pass<'_>,
+    f: &LoopFilters,
+    cons: &dyn Slicer,
+    mut pll: Option<&mut PhaseLoop>,
+    ypad: &[Cf32],
+    left: usize,
+    hist: &mut [Cf32],
+    soft: &mut [Cf32],
+    labels: &mut [usize],
+    phase: &mut [f32],
+) {
+    let Range { start, end } = pass.range.clone();
+    let nf = f.ffr.len();
+    let nb = f.fbr.len();
+    let (wr, wi): (Vec<f32>, Vec<f32>) = f.ffr.iter().map(|w| (w.re, w.im)).unzip();
+    let (br, bi): (Vec<f32>, Vec<f32>) = f.fbr.iter().map(|w| (w.re, w.im)).unzip();
+    let mut yr = vec![0f32; BLOCK + nf];
+    let mut yi = vec![0f32; BLOCK + nf];
+    let mut accr = vec![0f32; BLOCK];
+    let mut acci = vec![0f32; BLOCK];
+    let points = cons.points();
+    let mut n0 = start;
+    while n0 < end {
+        let m = BLOCK.min(end - n0);
+        let base0 = (n0 as isize + f.lag - (nf as isize - 1) + left as isize) as usize;
+        for (k, v) in ypad[base0..base0 + m + nf - 1].iter().enumerate() {
+            yr[k] = v.re;
+            yi[k] = v.im;
+        }
+        accr[..m].fill(0.0);
+        acci[..m].fill(0.0);
+        for t in 0..nf {
+            let (a, b) = (wr[t], wi[t]);
+            let (xr, xi) = (&yr[t..t + m], &yi[t..t + m]);
+            for (((or, oi), &vr), &vi) in accr[..m]
+                .iter_mut()
+                .zip(acci[..m].iter_mut())
+                .zip(xr)
+                .zip(xi)
+            {
+                *or += a * vr - b * vi;
+                *oi += a * vi + b * vr;
+            }
+        }
+        for k in 0..m {
+            let n = n0 + k;
+            let i = n - start;
+            let mut z = Cf32::new(accr[k], acci[k]);
+            if let Some(p) = pll.as_deref() {
+                z *= p.phasor().conj();
+            }
+            let past = &hist[i..i + nb];
+            let (mut sr, mut si) = (0f32, 0f32);
+            for ((d, &a), &b) in past.iter().zip(&br).zip(&bi) {
+                sr += a * d.re - b * d.im;
+                si += a * d.im + b * d.re;
+            }
+            z -= Cf32::new(sr, si);
+            let label = cons.slice(z);
+            let d = if pass.truth_range.contains(&n) {
+                pass.truth[n]
+            } else {
+                points[label]
+            };
+            soft[n] = z;
+            labels[n] = label;
+            if let Some(p) = pll.as_deref_mut() {
+                phase[n] = p.phase as f32;
+                let dn = d.norm_sqr();
+                let err = if dn > 0.0 {
+                    (z * d.conj()).im / dn
+                } else {
+                    0.0
+                };
+                p.update(err);
+            }
+            hist[i + nb] = d;
+        }
+        n0 += m;
     }
 }
