@@ -173,7 +173,14 @@ pub(crate) fn run_pass(
             };
             p.update(err);
         }
-        match adapt.mode {
+        // A non-finite output (NaN/inf sample in the window) must not reach
+        // the adaptive taps: skip the update for that symbol.
+        let mode = if z.re.is_finite() && z.im.is_finite() {
+            adapt.mode
+        } else {
+            AdaptMode::Off
+        };
+        match mode {
             AdaptMode::Off => {}
             AdaptMode::Lms => {
                 let e = d - z;

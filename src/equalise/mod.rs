@@ -476,7 +476,12 @@ impl MmseDfe {
         opts: RunOptions,
     ) -> Result<Self, EqualiseError> {
         let core = DfeCore::design(ch, opts, |c| {
-            design_mmse_dfe(c, nf, nb, delay.map(|d| d.min(nf + c.taps.len() - 2)))
+            design_mmse_dfe(
+                c,
+                nf,
+                nb,
+                delay.map(|d| d.min((nf + c.taps.len()).saturating_sub(2))),
+            )
         })?;
         let name = match opts.tracking.mode {
             AdaptMode::Off => "mmse-dfe",

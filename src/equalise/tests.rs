@@ -767,3 +767,66 @@ fn error_runs_split_on_every_correct_symbol() {
         }]
     );
 }
+
+#[test]
+fn a_nan_sample_in_the_payload_spoils_only_its_neighbourhood() {
+    // Robustness (the brief: never panic on any input): a NaN sample may spoil
+    // the symbols whose feedforward window contains it, but the phase loop and
+    // the LMS/RLS taps must not stay poisoned.
+    let c = Constellation::new(Modulation::Qpsk);
+    let h = [Cf64::new(1.0, 0.0), Cf64::new(0.3, 0.2)];
+    let mut sim = simulate(120, Modulation::Qpsk, &h, 0, 25.0, 0, 127, 3000);
+    sim.y[1000] = Cf32::new(f32::NAN, f32::INFINITY);
+    for mode in [AdaptMode::Off, AdaptMode::Lms, AdaptMode::Rls] {
+        let cfg = BurstConfig {
+            channel: fixed(0, 1),
+            tracking: TrackingConfig {
+                mode,
+                ..TrackingConfig::default()
+            },
+            ..BurstConfig::default()
+        };
+        let out = process_burst(&sim.view(&sim.y, &c, false), &cfg).unwrap();
+        for r in &out.results {
+            let s = &r.outcome.as_ref().unwrap().1;
+            let late: Vec<usize> = (1200..sim.y.len() - 20).collect();
+            let (e, _) = ser(s, &sim, &late);
+            assert!(
+                s.soft[1200..].iter().all(|z| z.re.is_finite()) && e == 0,
+                "{} ({mode:?}): {e} late errors",
+                r.name
+            );
+        }
+    }
+}
+
+#[test]
+fn a_fitted_dc_offset_is_removed_before_equalisation() {
+    // Source: the widely-linear/DC model of the channel module; a DC of 0.3
+    // on unit-power 16QAM would cause decision errors if left in.
+    let c = Constellation::new(Modulation::Qam16);
+    let h = [Cf64::new(1.0, 0.0), Cf64::new(0.3, -0.1)];
+    let mut sim = simulate(130, Modulation::Qam16, &h, 0, 25.0, 0, 255, 3000);
+    sim.y.iter_mut().for_each(|v| *v += Cf32::new(0.3, -0.2));
+    let idx = sim.payload();
+    for dc_offset in [false, true] {
+        let cfg = BurstConfig {
+            channel: crate::channel::ChannelFitConfig {
+                dc_offset,
+                ..fixed(0, 1)
+            },
+            ..BurstConfig::default()
+        };
+        let out = process_burst(&sim.view(&sim.y, &c, false), &cfg).unwrap();
+        let (e, _) = ser(
+            &out.get("mmse-dfe").unwrap().outcome.as_ref().unwrap().1,
+            &sim,
+            &idx,
+        );
+        if dc_offset {
+            assert_eq!(e, 0, "DC fitted: {e} errors");
+        } else {
+            assert!(e > 100, "DC ignored: only {e} errors");
+        }
+    }
+}

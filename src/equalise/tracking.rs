@@ -103,10 +103,12 @@ impl PhaseLoop {
     pub fn phasor(&self) -> Cf32 {
         self.rot
     }
-    /// Feed the phase error `err` (rad) and advance one symbol.
+    /// Feed the phase error `err` (rad) and advance one symbol. A non-finite
+    /// error (a NaN sample upstream) is treated as 0 so the loop cannot be
+    /// poisoned for the rest of the burst.
     #[inline]
     pub fn update(&mut self, err: f32) {
-        let err = err as f64;
+        let err = if err.is_finite() { err as f64 } else { 0.0 };
         self.freq += self.ki * err;
         let d = self.freq + self.kp * err;
         self.phase += d;
