@@ -579,6 +579,9 @@ pub struct BurstOutput {
     pub channel: ChannelEstimate,
     /// Carrier refinement figures.
     pub carrier: CarrierReport,
+    /// Infinite-length bounds for the fitted channel at its input SNR
+    /// `Es/σ²` (taps as fitted, not normalised).
+    pub bounds: theory::TheoryBounds,
     /// Samples after the carrier correction (what the equalisers saw).
     pub corrected: Vec<Cf32>,
     /// One entry per equaliser, in the order zf-dfe, mmse-dfe, linear-mmse,
@@ -659,7 +662,13 @@ pub fn process_burst(
             GenieDfe::new(&ch, cfg.ff_taps, cfg.fb_taps, cfg.delay, opts).map(|e| Box::new(e) as _),
         );
     }
+    let bounds = theory::bounds(
+        &channel.taps,
+        channel.es / channel.noise_var,
+        theory::DEFAULT_GRID,
+    );
     Ok(BurstOutput {
+        bounds,
         channel,
         carrier: report,
         corrected,

@@ -124,6 +124,18 @@ fn integrated_salz_zf_le_and_mfb_match_the_reference_table_to_0_01_db() {
             to_db(zf_dfe_snr(&h, snr, DEFAULT_GRID)),
             to_db(mmse_le_snr(&h, snr, DEFAULT_GRID).unbiased),
         ];
+        let b = bounds(&h, snr, DEFAULT_GRID);
+        let combined = [
+            b.matched_filter_bound_db,
+            b.mmse_dfe_biased_db,
+            b.mmse_dfe_unbiased_db,
+            b.zf_dfe_db,
+            b.mmse_le_unbiased_db,
+        ];
+        assert_eq!(
+            combined, got,
+            "bounds() must agree with the single-figure functions"
+        );
         for (k, (g, w)) in got.iter().zip(want).enumerate() {
             // The table has 3 decimals (rounding ±0.0005) → 0.01 dB is generous.
             assert!(
