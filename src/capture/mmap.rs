@@ -1,0 +1,147 @@
+//! The byte source behind a [`Capture`](super::Capture): a read-only memory map of
+//! the file, an in-memory buffer (tests, `Capture::from_bytes`), or — when mapping
+//! fails or is refused — positioned buffered reads from the open file.
+//!
+//! Takes in: an open [`File`] (or a `Vec<u8>`). Gives out: byte ranges
+//! `[offset, offset + len)` of the whole file, handed to a closure, so that
+//! decoding code only ever sees `&[u8]`. Offsets and lengths are in bytes from the
+//! start of the file.
+//!
+//! This file holds the crate's only `unsafe` block (the call to `Mmap::map`).
+//! Everything else takes `&[u8]` or `&[Cf32]`.
+
+use std::cell::RefCell;
+use std::fs::File;
+use std::io::{self, Read, Seek, SeekFrom};
+use std::sync::Mutex;
+
+use memmap2::Mmap;
+
+/// How the bytes of a capture are reached.
+#[derive(Debug)]
+pub(crate) enum Source {
+    /// A read-only map of the whole file.
+    Mapped(Mmap),
+    /// Bytes owned in memory.
+    Memory(Vec<u8>),
+    /// Positioned reads from the file (fallback when mapping is not possible).
+    File {
+        /// The open file; reads seek then read, under the lock.
+        file: Mutex<File>,
+        /// File length in bytes at open time.
+        len: u64,
+    },
+}
+
+/// Which access path to use when opening a file.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum Access {
+    /// Try to memory-map; fall back to reads if mapping fails.
+    MapOrRead,
+    /// Never map; always use positioned reads.
+    ReadOnly,
+}
+
+thread_local! {
+    /// Per-thread scratch for the read fallback; grows to the largest request
+    /// (one chunk) and is reused, so there is no per-sample allocation.
+    static READ_SCRATCH: RefCell<Vec<u8>> = const { RefCell::new(Vec::new()) };
+}
+
+impl Source {
+    /// Open `file` (of length `len` bytes) for reading through the chosen path.
+    pub(crate) fn from_file(file: File, len: u64, access: Access) -> Source {
+        if access == Access::MapOrRead && usize::try_from(len).is_ok() {
+            // SAFETY: the map is read-only and this crate never writes through it
+            // or to the file. The remaining hazard is another process truncating
+            // or rewriting the file while it is mapped: reads from the vanished
+            // part raise SIGBUS, which no `Result` can catch. That is the same
+            // contract ripgrep accepts for its search input; users are told in
+            // the README not to analyse files that are still being written.
+            match unsafe { Mmap::map(&file) } {
+                Ok(map) => {
+                    #[cfg(unix)]
+                    {
+                        // Advice only; failure changes nothing but speed.
+                        let _ = map.advise(memmap2::Advice::Sequential);
+                    }
+                    return Source::Mapped(map);
+                }
+                Err(_) => {
+                    if std::env::var_os("IQAUDIT_DEBUG").is_some() {
+                        eprintln!("iqaudit: debug: memory map failed; using buffered reads");
+                    }
+                }
+            }
+        }
+        Source::File {
+            file: Mutex::new(file),
+            len,
+        }
+    }
+
+    /// Total length in bytes.
+    pub(crate) fn len(&self) -> u64 {
+        match self {
+            Source::Mapped(m) => m.len() as u64,
+            Source::Memory(v) => v.len() as u64,
+            Source::File { len, .. } => *len,
+        }
+    }
+
+    /// The whole source as one slice, when it is in memory (mapped or owned).
+    pub(crate) fn as_slice(&self) -> Option<&[u8]> {
+        match self {
+            Source::Mapped(m) => Some(&m[..]),
+            Source::Memory(v) => Some(&v[..]),
+            Source::File { .. } => None,
+        }
+    }
+
+    /// A short name of the access path, for diagnostics.
+    pub(crate) fn kind(&self) -> &'static str {
+        match self {
+            Source::Mapped(_) => "mmap",
+            Source::Memory(_) => "memory",
+            Source::File { .. } => "read",
+        }
+    }
+
+    /// Call `f` with the bytes `[offset, offset + len)`.
+    ///
+    /// The range must lie inside the source (checked by the caller against
+    /// [`len`](Self::len)); an out-of-range request is an `UnexpectedEof` error.
+    pub(crate) fn with_bytes<R>(
+        &self,
+        offset: u64,
+        len: usize,
+        f: impl FnOnce(&[u8]) -> R,
+    ) -> io::Result<R> {
+        let end = offset.checked_add(len as u64);
+        if !matches!(end, Some(e) if e <= self.len()) {
+            return Err(io::Error::new(
+                io::ErrorKind::UnexpectedEof,
+                "byte range beyond the end of the capture",
+            ));
+        }
+        if let Some(all) = self.as_slice() {
+            let start = offset as usize;
+            return Ok(f(&all[start..start + len]));
+        }
+        let Source::File { file, .. } = self else {
+            unreachable!("as_slice covers the in-memory sources")
+        };
+        READ_SCRATCH.with(|cell| {
+            let mut buf = cell.borrow_mut();
+            buf.resize(len, 0);
+            {
+                let mut guard = file
+                    .lock()
+                    .map_err(|_| io::Error::other("capture file lock poisoned"))?;
+                guard.seek(SeekFrom::Start(offset))?;
+                guard.read_exact(&mut buf[..len])?;
+            }
+            Ok(f(&buf[..len]))
+        })
+    }
+}

@@ -1,0 +1,317 @@
+//! Command-line types (clap derive) and their conversion into library calls.
+//!
+//! Takes in: parsed arguments. Gives out: an [`Outcome`] or an [`iqaudit::Error`];
+//! [`exit_code`] is the one place that turns either into the process exit code
+//! (0 analysed and within limits, 1 a limit failed, 2 bad usage or unreadable
+//! input, 3 no training block found). Data goes to stdout, messages and progress
+//! to stderr as `iqaudit: <file>: <problem>`.
+
+use std::io::{IsTerminal, Write};
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use clap::{Args, Parser, Subcommand};
+use iqaudit::capture::stats::{capture_stats, info_report, InfoReport, StatsOptions};
+use iqaudit::{Capture, CaptureError, Error, OpenOptions, SampleFormat};
+
+mod profile_synth;
+use profile_synth::{ProfileArgs, SynthArgs};
+
+/// Audit recorded baseband IQ captures.
+#[derive(Debug, Parser)]
+#[command(name = "iqaudit", version, about)]
+pub struct Cli {
+    /// The command to run.
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// The commands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Describe what is in a capture: format, length, power, DC, clipping, bandwidth.
+    Info(InfoArgs),
+    /// Print an example link profile, or check one and print it with defaults filled in.
+    Profile(ProfileArgs),
+    /// Make a test capture with known ground truth (FILE + FILE.truth.json).
+    Synth(Box<SynthArgs>),
+}
+
+/// Arguments of `iqaudit info`.
+#[derive(Debug, Args)]
+pub struct InfoArgs {
+    /// The capture file (raw, WAV, or SigMF .sigmf-data/.sigmf-meta).
+    pub capture: PathBuf,
+
+    /// Raw sample format (cf32_le, cf32_be, cf64_le, ci16_le, ci16_be, ci8, cu8).
+    ///
+    /// Overrides a SigMF sidecar, the WAV header and the file extension. Names are
+    /// the SigMF datatype names.
+    #[arg(long, value_name = "F")]
+    pub format: Option<String>,
+
+    /// Sample rate in Hz (needed for durations and bandwidths in Hz).
+    ///
+    /// Overrides a SigMF sidecar's core:sample_rate and the WAV header's rate.
+    #[arg(long, value_name = "HZ", value_parser = parse_rate)]
+    pub sample_rate: Option<f64>,
+
+    /// Swap I and Q after reading (mirrors the spectrum).
+    ///
+    /// For recordings whose I and Q channels were wired or stored the other way
+    /// round.
+    #[arg(long)]
+    pub swap_iq: bool,
+
+    /// Print one JSON object (schema iqaudit.info/1) instead of text.
+    ///
+    /// The keys are documented in the library's `InfoReport` type.
+    #[arg(long)]
+    pub json: bool,
+}
+
+fn parse_rate(s: &str) -> Result<f64, String> {
+    match s.trim().parse::<f64>() {
+        Ok(v) if v.is_finite() && v > 0.0 => Ok(v),
+        _ => Err(format!("'{s}' is not a positive sample rate in Hz")),
+    }
+}
+
+/// How a command ended when it did not fail.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Outcome {
+    /// Analysed; every limit held (or there were none).
+    Ok,
+    /// Analysed, but a limit failed.
+    #[allow(dead_code)]
+    LimitFailed,
+    /// Analysed, but no training block was found.
+    #[allow(dead_code)]
+    NoTrainingFound,
+}
+
+/// Run one command.
+pub fn run(cli: Cli) -> Result<Outcome, Error> {
+    match cli.command {
+        Command::Info(args) => run_info(&args),
+        Command::Profile(args) => profile_synth::run_profile(&args),
+        Command::Synth(args) => {
+            // Recorded in the truth file: the program name without its path.
+            let argv: Vec<String> = std::iter::once("iqaudit".to_string())
+                .chain(std::env::args().skip(1))
+                .collect();
+            profile_synth::run_synth(&args, &argv)
+        }
+    }
+}
+
+/// The one mapping from outcome or error to the process exit code. Errors are
+/// printed here, once, as `iqaudit: <message>`; a closed stdout (broken pipe)
+/// exits quietly with 0.
+pub fn exit_code(result: Result<Outcome, Error>) -> ExitCode {
+    match result {
+        Ok(Outcome::Ok) => ExitCode::SUCCESS,
+        Ok(Outcome::LimitFailed) => ExitCode::from(1),
+        Ok(Outcome::NoTrainingFound) => ExitCode::from(3),
+        Err(Error::Io { ref source, .. }) if source.kind() == std::io::ErrorKind::BrokenPipe => {
+            ExitCode::SUCCESS
+        }
+        Err(e) => {
+            eprintln!("iqaudit: {e}");
+            ExitCode::from(2)
+        }
+    }
+}
+
+/// Samples above which `info` shows a progress bar (on a terminal).
+const PROGRESS_MIN_SAMPLES: usize = 64 << 20;
+
+fn run_info(args: &InfoArgs) -> Result<Outcome, Error> {
+    let format = match &args.format {
+        None => None,
+        Some(name) => {
+            Some(
+                name.parse::<SampleFormat>()
+                    .map_err(|e| CaptureError::BadFormatName {
+                        path: args.capture.clone(),
+                        found: e.found,
+                        accepted: e.accepted,
+                    })?,
+            )
+        }
+    };
+    let opts = OpenOptions {
+        format,
+        sample_rate_hz: args.sample_rate,
+        swap_iq: args.swap_iq,
+    };
+    let capture = Capture::open(&args.capture, &opts)?;
+    let stats_opts = StatsOptions::default();
+    let bar =
+        (!args.json && std::io::stderr().is_terminal() && capture.len() >= PROGRESS_MIN_SAMPLES)
+            .then(|| {
+                let bar = indicatif::ProgressBar::new(capture.len() as u64);
+                if let Ok(style) = indicatif::ProgressStyle::with_template(
+                    "{spinner} {bytes_per_sec:>0} reading {pos}/{len} samples [{bar:30}] {eta}",
+                ) {
+                    bar.set_style(style.progress_chars("=> "));
+                }
+                bar
+            });
+    let progress = |n: u64| {
+        if let Some(b) = &bar {
+            b.inc(n);
+        }
+    };
+    let stats = capture_stats(&capture, &stats_opts, &progress)?;
+    if let Some(b) = &bar {
+        b.finish_and_clear();
+    }
+    let report = info_report(&capture, &stats, &stats_opts);
+    for w in &report.warnings {
+        eprintln!(
+            "iqaudit: warning: {}: {}",
+            args.capture.display(),
+            w.message
+        );
+    }
+    let text = if args.json {
+        let mut s = serde_json::to_string_pretty(&report).map_err(|e| Error::Io {
+            path: PathBuf::from("<stdout>"),
+            source: e.into(),
+        })?;
+        s.push('\n');
+        s
+    } else {
+        render_info(&report, &capture)
+    };
+    let mut out = std::io::stdout().lock();
+    out.write_all(text.as_bytes())
+        .and_then(|_| out.flush())
+        .map_err(|source| Error::Io {
+            path: PathBuf::from("<stdout>"),
+            source,
+        })?;
+    Ok(Outcome::Ok)
+}
+
+fn opt(v: Option<f64>, digits: usize, unit: &str) -> String {
+    match v {
+        Some(x) => format!("{x:.digits$} {unit}"),
+        None => "n/a".to_string(),
+    }
+}
+
+fn hz(v: Option<f64>) -> String {
+    match v {
+        Some(x) if x.abs() >= 1e6 => format!("{:.6} MHz", x / 1e6),
+        Some(x) if x.abs() >= 1e3 => format!("{:.3} kHz", x / 1e3),
+        Some(x) => format!("{x:.1} Hz"),
+        None => "n/a (no sample rate; give --sample-rate)".to_string(),
+    }
+}
+
+/// The human-readable summary: one `key: value` line per figure.
+fn render_info(r: &InfoReport, capture: &Capture) -> String {
+    let mut s = String::new();
+    let mut line = |k: &str, v: String| {
+        s.push_str(&format!("{k:<24}{v}\n"));
+    };
+    line("capture", r.path.clone());
+    line("format", capture.format_description());
+    line("samples", r.samples.to_string());
+    line("sample rate", hz(r.sample_rate_hz));
+    line("centre frequency", hz(r.center_freq_hz));
+    line("duration", opt(r.duration_s, 6, "s"));
+    line("mean power", opt(r.mean_power_dbfs, 2, "dBFS"));
+    line("peak power", opt(r.peak_power_dbfs, 2, "dBFS"));
+    line("peak-to-average", opt(r.papr_db, 2, "dB"));
+    line(
+        "DC offset",
+        format!(
+            "I {:+.6}  Q {:+.6}  ({} rel. mean power)",
+            r.dc_i,
+            r.dc_q,
+            opt(r.dc_relative_db, 1, "dB")
+        ),
+    );
+    line(
+        "clipped",
+        format!("{} ({:.4} %)", r.clipped_samples, r.clipped_percent),
+    );
+    line("non-finite", r.non_finite_samples.to_string());
+    line(
+        "IQ imbalance (blind)",
+        format!(
+            "gain {}  phase {}",
+            opt(r.iq_gain_imbalance_db, 3, "dB"),
+            opt(r.iq_phase_imbalance_deg, 2, "deg")
+        ),
+    );
+    let bw = match (r.obw_hz, r.obw_fraction_of_rate) {
+        (Some(_), _) => format!(
+            "{} (from {} to {})",
+            hz(r.obw_hz),
+            hz(r.obw_lower_hz),
+            hz(r.obw_upper_hz)
+        ),
+        (None, Some(f)) => format!("{f:.5} × sample rate"),
+        (None, None) => "n/a".to_string(),
+    };
+    line(&format!("occupied bw {:.0} %", 100.0 * r.obw_fraction), bw);
+    if let (Some(n), Some(avg), Some(avail)) = (
+        r.psd_fft_len,
+        r.psd_segments_averaged,
+        r.psd_segments_available,
+    ) {
+        line(
+            "spectrum",
+            format!(
+                "Welch, Hann, {n}-point, 50 % overlap, {avg} of {avail} segments, bin {}",
+                match r.psd_resolution_hz {
+                    Some(_) => hz(r.psd_resolution_hz),
+                    None => format!("1/{n} of the rate"),
+                }
+            ),
+        );
+    }
+    s
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use clap::CommandFactory;
+
+    #[test]
+    fn the_clap_definition_is_internally_consistent() {
+        Cli::command().debug_assert();
+    }
+
+    #[test]
+    fn info_parses_format_rate_swap_and_json() {
+        let cli = Cli::try_parse_from([
+            "iqaudit",
+            "info",
+            "x.bin",
+            "--format",
+            "ci16_le",
+            "--sample-rate",
+            "2.4e6",
+            "--swap-iq",
+            "--json",
+        ])
+        .unwrap();
+        let Command::Info(a) = cli.command else {
+            panic!("not info")
+        };
+        assert_eq!(a.format.as_deref(), Some("ci16_le"));
+        assert_eq!(a.sample_rate, Some(2.4e6));
+        assert!(a.swap_iq && a.json);
+    }
+
+    #[test]
+    fn a_negative_sample_rate_is_a_usage_error() {
+        assert!(Cli::try_parse_from(["iqaudit", "info", "x", "--sample-rate", "-5"]).is_err());
+    }
+}

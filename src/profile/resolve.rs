@@ -1,0 +1,790 @@
+//! Resolution `Profile → ResolvedProfile`: range checks, cross-key rules and
+//! every default filled in. Takes in a parsed [`Profile`]; gives out plain
+//! `Serialize` data (embedded verbatim in reports) or one [`ProfileError`]
+//! naming the key path. Pure: reads no files (a symbols file's length is
+//! checked when its symbols are built).
+//!
+//! Defaults (also in the rustdoc of each schema field): pulse span 12 symbols;
+//! training modulation `qpsk` for PRBS; PRBS seed all
+//! ones and O.150 inversion; payload position `after`; channel fit 1 pre-cursor
+//! and 3 post-cursor taps, no DC or IQ terms; `mmse-dfe` with Nf = 8, Nb = the
+//! post-cursor taps (3 when `"auto"`), delay `"auto"`, carrier refinement on,
+//! tracking off; search threshold 0.5, `max_cfo_hz` = 2 % of the symbol rate
+//! (null when the profile has no sample rate: the analysis applies the same
+//! fraction once the capture's rate is known); no limits.
+
+use serde::{Deserialize, Serialize};
+
+use super::schema::{
+    Delay, EqualiserKind, PayloadPosition, PayloadRule, Profile, PulseShape, Sequence, TapCount,
+    Tracking,
+};
+use super::ProfileError;
+use crate::capture::SampleFormat;
+use crate::signal::BARKER_LENGTHS;
+use crate::signal::{Modulation, PrbsPattern};
+
+/// Default RRC span in symbols.
+pub const DEFAULT_SPAN_SYMBOLS: usize = 12;
+/// Default `max_cfo_hz` as a fraction of the symbol rate.
+pub const DEFAULT_MAX_CFO_FRACTION: f64 = 0.02;
+
+/// A profile with every default filled in and every value checked.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ResolvedProfile {
+    /// Capture storage (format and rate may still be null: the file decides).
+    pub capture: ResolvedCapture,
+    /// Samples per symbol (≥ 1).
+    pub samples_per_symbol: usize,
+    /// Symbol rate in Hz (`sample_rate_hz / samples_per_symbol`), null without a rate.
+    pub symbol_rate_hz: Option<f64>,
+    /// Pulse.
+    pub pulse: ResolvedPulse,
+    /// Training block.
+    pub training: ResolvedTraining,
+    /// Payload.
+    pub payload: ResolvedPayload,
+    /// Channel fit.
+    pub channel_fit: ResolvedChannelFit,
+    /// Equaliser.
+    pub equaliser: ResolvedEqualiser,
+    /// Search.
+    pub search: ResolvedSearch,
+    /// Limits (null = not checked).
+    pub limits: ResolvedLimits,
+}
+
+/// Resolved `capture`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ResolvedCapture {
+    /// Raw sample format, null when the file or sidecar must say.
+    pub format: Option<SampleFormat>,
+    /// Sample rate in Hz, null when the file or sidecar must say.
+    pub sample_rate_hz: Option<f64>,
+    /// Centre frequency in Hz, null when unknown.
+    pub center_freq_hz: Option<f64>,
+    /// Swap I and Q on reading.
+    pub swap_iq: bool,
+}
+
+/// Resolved `pulse`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ResolvedPulse {
+    /// Pulse shape.
+    pub shape: PulseShape,
+    /// Roll-off β in (0, 1].
+    pub rolloff: f64,
+    /// Span in symbols (≥ 1).
+    pub span_symbols: usize,
+}
+
+/// Resolved training sequence (tag `"kind"`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "kind", rename_all = "snake_case", deny_unknown_fields)]
+pub enum ResolvedSequence {
+    /// PRBS from a Fibonacci LFSR `x^n + x^a + 1` (`polynomial = [n, a]`).
+    Prbs {
+        /// Named pattern, null for a custom polynomial.
+        pattern: Option<PrbsPattern>,
+        /// `[n, a]`.
+        polynomial: [u32; 2],
+        /// Initial register state.
+        seed: u64,
+        /// Output bits inverted.
+        inverted: bool,
+        /// Length in symbols.
+        length: usize,
+    },
+    /// Barker code, one BPSK symbol per chip.
+    Barker {
+        /// Code length.
+        n: usize,
+    },
+    /// Zadoff-Chu.
+    ZadoffChu {
+        /// Root.
+        root: u32,
+        /// Length.
+        length: usize,
+        /// Cyclic shift.
+        shift: usize,
+    },
+    /// Explicit symbols `[re, im]`.
+    Symbols {
+        /// The symbols.
+        values: Vec<[f64; 2]>,
+    },
+    /// Symbols from a file.
+    SymbolsFile {
+        /// Path (relative to the working directory, or rebased onto the
+        /// profile's directory by `load_profile`).
+        path: String,
+    },
+}
+
+/// Resolved `training`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ResolvedTraining {
+    /// Constellation the bits map onto (null for Zadoff-Chu and explicit symbols).
+    pub modulation: Option<Modulation>,
+    /// The sequence.
+    pub sequence: ResolvedSequence,
+    /// Training length in symbols (null for a symbols file until it is read).
+    pub length_symbols: Option<usize>,
+}
+
+/// Resolved payload regeneration rule (tag `"kind"`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "kind", rename_all = "snake_case", deny_unknown_fields)]
+pub enum ResolvedPayloadRule {
+    /// PRBS bits on the payload modulation, restarted from `seed` every burst.
+    Prbs {
+        /// Named pattern, null for a custom polynomial.
+        pattern: Option<PrbsPattern>,
+        /// `[n, a]`.
+        polynomial: [u32; 2],
+        /// Initial register state.
+        seed: u64,
+        /// Output bits inverted.
+        inverted: bool,
+    },
+    /// Symbols from a file.
+    SymbolsFile {
+        /// Path.
+        path: String,
+    },
+}
+
+/// Resolved `payload`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ResolvedPayload {
+    /// Payload constellation.
+    pub modulation: Modulation,
+    /// Position relative to the training.
+    pub position: PayloadPosition,
+    /// Payload symbols before the training (0 for `after`).
+    pub before_symbols: usize,
+    /// Payload symbols after the training (0 for `before`).
+    pub after_symbols: usize,
+    /// Regeneration rule, null when the payload is unknown.
+    pub known: Option<ResolvedPayloadRule>,
+}
+
+/// Resolved `channel_fit`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ResolvedChannelFit {
+    /// Pre-cursor taps (or `"auto"`).
+    pub pre_cursor_taps: TapCount,
+    /// Post-cursor taps (or `"auto"`).
+    pub post_cursor_taps: TapCount,
+    /// Fit a DC term.
+    pub dc_offset: bool,
+    /// Fit an IQ-imbalance (conjugate) term.
+    pub iq_imbalance: bool,
+    /// Most taps in total the training supports (`training / 2`), null for a
+    /// symbols file until it is read.
+    pub max_total_taps: Option<usize>,
+}
+
+/// Resolved `equaliser`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ResolvedEqualiser {
+    /// Structure.
+    pub kind: EqualiserKind,
+    /// Feedforward taps Nf (≥ 1).
+    pub feedforward_taps: usize,
+    /// Feedback taps Nb (0 for `linear-mmse`).
+    pub feedback_taps: usize,
+    /// Decision delay.
+    pub delay: Delay,
+    /// Decision-directed carrier refinement.
+    pub carrier_refinement: bool,
+    /// Tracking.
+    pub tracking: Tracking,
+}
+
+/// Resolved `search`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ResolvedSearch {
+    /// Normalised correlation threshold in (0, 1].
+    pub threshold: f64,
+    /// Largest expected |CFO| in Hz; null = 2 % of the symbol rate once known.
+    pub max_cfo_hz: Option<f64>,
+}
+
+/// Resolved `limits` (null = not checked).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ResolvedLimits {
+    /// Largest RMS EVM, percent.
+    pub evm_rms_percent_max: Option<f64>,
+    /// Smallest MER, dB.
+    pub mer_db_min: Option<f64>,
+    /// Largest SER.
+    pub ser_max: Option<f64>,
+    /// Largest |CFO|, Hz.
+    pub cfo_hz_abs_max: Option<f64>,
+}
+
+impl ResolvedSearch {
+    /// `max_cfo_hz`, or the default fraction of the symbol rate for a capture
+    /// at `sample_rate_hz` with `samples_per_symbol`.
+    pub fn max_cfo_hz_at(&self, sample_rate_hz: f64, samples_per_symbol: usize) -> f64 {
+        self.max_cfo_hz
+            .unwrap_or(DEFAULT_MAX_CFO_FRACTION * sample_rate_hz / samples_per_symbol.max(1) as f64)
+    }
+}
+
+impl ResolvedProfile {
+    /// Payload symbols in one burst (before + after the training).
+    pub fn payload_symbols_per_burst(&self) -> usize {
+        self.payload.before_symbols + self.payload.after_symbols
+    }
+}
+
+fn invalid(key: &str, expected: impl Into<String>, found: impl std::fmt::Display) -> ProfileError {
+    ProfileError::InvalidValue {
+        key: key.to_string(),
+        expected: expected.into(),
+        found: found.to_string(),
+    }
+}
+
+/// A finite number strictly greater than zero.
+fn positive(key: &str, v: f64) -> Result<f64, ProfileError> {
+    if v.is_finite() && v > 0.0 {
+        Ok(v)
+    } else {
+        Err(invalid(key, "a finite number > 0", v))
+    }
+}
+
+/// A finite number ≥ 0.
+fn non_negative(key: &str, v: f64) -> Result<f64, ProfileError> {
+    if v.is_finite() && v >= 0.0 {
+        Ok(v)
+    } else {
+        Err(invalid(key, "a finite number >= 0", v))
+    }
+}
+
+/// `(n, a, inverted)` of a named pattern: ITU-T O.150 taps and inversion
+/// (from `signal::PrbsPattern`, REFERENCE-VALUES §3).
+fn pattern_params(p: PrbsPattern) -> (u32, u32, bool) {
+    let [n, a] = p.taps();
+    (n, a, p.inverted())
+}
+
+/// Checks and fills a PRBS description; `key` is the object's key path.
+fn resolve_prbs(
+    key: &str,
+    pattern: Option<PrbsPattern>,
+    polynomial: Option<[u32; 2]>,
+    seed: Option<u64>,
+    inverted: Option<bool>,
+) -> Result<(Option<PrbsPattern>, [u32; 2], u64, bool), ProfileError> {
+    let (n, a, inv_default) = match (pattern, polynomial) {
+        (Some(_), Some(_)) => {
+            return Err(ProfileError::Conflict {
+                key: format!("{key}.polynomial"),
+                problem: "give either `pattern` or `polynomial`, not both".into(),
+            })
+        }
+        (None, None) => {
+            return Err(ProfileError::Missing {
+                key: format!("{key}.pattern"),
+                hint: "name a pattern (prbs7, prbs9, prbs11, prbs15, prbs23, prbs31) or give \
+                       `polynomial: [n, a]` for x^n + x^a + 1"
+                    .into(),
+            })
+        }
+        (Some(p), None) => pattern_params(p),
+        (None, Some([n, a])) => {
+            if !(2..=63).contains(&n) || a == 0 || a >= n {
+                return Err(invalid(
+                    &format!("{key}.polynomial"),
+                    "[n, a] with 2 <= n <= 63 and 0 < a < n",
+                    format!("[{n}, {a}]"),
+                ));
+            }
+            (n, a, false)
+        }
+    };
+    let all_ones = (1u64 << n) - 1;
+    let seed = seed.unwrap_or(all_ones);
+    if seed == 0 || seed > all_ones {
+        return Err(invalid(
+            &format!("{key}.seed"),
+            format!("a non-zero register state below 2^{n} (1..={all_ones})"),
+            seed,
+        ));
+    }
+    Ok((pattern, [n, a], seed, inverted.unwrap_or(inv_default)))
+}
+
+fn gcd(mut a: u64, mut b: u64) -> u64 {
+    while b != 0 {
+        (a, b) = (b, a % b);
+    }
+    a
+}
+
+impl Profile {
+    /// Check every value and fill in every default. Reads no files.
+    pub fn resolve(&self) -> Result<ResolvedProfile, ProfileError> {
+        // capture
+        let c = &self.capture;
+        if let Some(r) = c.sample_rate_hz {
+            positive("capture.sample_rate_hz", r)?;
+        }
+        if let Some(f) = c.center_freq_hz {
+            if !f.is_finite() {
+                return Err(invalid("capture.center_freq_hz", "a finite number", f));
+            }
+        }
+        let capture = ResolvedCapture {
+            format: c.format,
+            sample_rate_hz: c.sample_rate_hz,
+            center_freq_hz: c.center_freq_hz,
+            swap_iq: c.swap_iq,
+        };
+        if self.samples_per_symbol == 0 {
+            return Err(invalid("samples_per_symbol", "an integer >= 1", 0));
+        }
+        let sps = self.samples_per_symbol as usize;
+        let symbol_rate_hz = c.sample_rate_hz.map(|r| r / sps as f64);
+
+        // pulse
+        let p = &self.pulse;
+        if !(p.rolloff.is_finite() && p.rolloff > 0.0 && p.rolloff <= 1.0) {
+            return Err(invalid("pulse.rolloff", "a roll-off in (0, 1]", p.rolloff));
+        }
+        let span = p.span_symbols.map_or(DEFAULT_SPAN_SYMBOLS, |s| s as usize);
+        if span == 0 {
+            return Err(invalid("pulse.span_symbols", "an integer >= 1", 0));
+        }
+        let pulse = ResolvedPulse {
+            shape: p.shape,
+            rolloff: p.rolloff,
+            span_symbols: span,
+        };
+
+        let training = self.resolve_training()?;
+        let payload = self.resolve_payload()?;
+        let channel_fit = self.resolve_channel_fit(training.length_symbols)?;
+        let equaliser = self.resolve_equaliser(&channel_fit)?;
+
+        // search
+        let s = &self.search;
+        let threshold = s.threshold.unwrap_or(0.5);
+        if !(threshold.is_finite() && threshold > 0.0 && threshold <= 1.0) {
+            return Err(invalid("search.threshold", "a number in (0, 1]", threshold));
+        }
+        let max_cfo_hz = match s.max_cfo_hz {
+            Some(v) => {
+                non_negative("search.max_cfo_hz", v)?;
+                if let Some(r) = c.sample_rate_hz {
+                    if v >= r / 2.0 {
+                        return Err(invalid(
+                            "search.max_cfo_hz",
+                            format!("less than half the sample rate ({} Hz)", r / 2.0),
+                            v,
+                        ));
+                    }
+                }
+                Some(v)
+            }
+            None => symbol_rate_hz.map(|rs| DEFAULT_MAX_CFO_FRACTION * rs),
+        };
+        let search = ResolvedSearch {
+            threshold,
+            max_cfo_hz,
+        };
+
+        // limits
+        let l = &self.limits;
+        if let Some(v) = l.evm_rms_percent_max {
+            non_negative("limits.evm_rms_percent_max", v)?;
+        }
+        if let Some(v) = l.mer_db_min {
+            if !v.is_finite() {
+                return Err(invalid("limits.mer_db_min", "a finite number of dB", v));
+            }
+        }
+        if let Some(v) = l.ser_max {
+            if !(v.is_finite() && (0.0..=1.0).contains(&v)) {
+                return Err(invalid("limits.ser_max", "a rate in [0, 1]", v));
+            }
+            if payload.known.is_none() {
+                return Err(ProfileError::Conflict {
+                    key: "limits.ser_max".into(),
+                    problem: "a SER limit needs a known payload; add payload.known or remove \
+                              the limit"
+                        .into(),
+                });
+            }
+        }
+        if let Some(v) = l.cfo_hz_abs_max {
+            non_negative("limits.cfo_hz_abs_max", v)?;
+        }
+        let limits = ResolvedLimits {
+            evm_rms_percent_max: l.evm_rms_percent_max,
+            mer_db_min: l.mer_db_min,
+            ser_max: l.ser_max,
+            cfo_hz_abs_max: l.cfo_hz_abs_max,
+        };
+
+        Ok(ResolvedProfile {
+            capture,
+            samples_per_symbol: sps,
+            symbol_rate_hz,
+            pulse,
+            training,
+            payload,
+            channel_fit,
+            equaliser,
+            search,
+            limits,
+        })
+    }
+
+    fn resolve_training(&self) -> Result<ResolvedTraining, ProfileError> {
+        let t = &self.training;
+        let key = "training.sequence";
+        let no_modulation = |kind: &str| -> Result<(), ProfileError> {
+            if t.modulation.is_some() {
+                Err(ProfileError::Conflict {
+                    key: "training.modulation".into(),
+                    problem: format!(
+                        "a {kind} sequence defines its symbols directly; remove the modulation"
+                    ),
+                })
+            } else {
+                Ok(())
+            }
+        };
+        let (modulation, sequence, length) = match &t.sequence {
+            Sequence::Prbs {
+                pattern,
+                polynomial,
+                seed,
+                inverted,
+                length,
+            } => {
+                let (pattern, polynomial, seed, inverted) =
+                    resolve_prbs(key, *pattern, *polynomial, *seed, *inverted)?;
+                if *length == 0 {
+                    return Err(invalid(&format!("{key}.length"), "an integer >= 1", 0));
+                }
+                (
+                    Some(t.modulation.unwrap_or(Modulation::Qpsk)),
+                    ResolvedSequence::Prbs {
+                        pattern,
+                        polynomial,
+                        seed,
+                        inverted,
+                        length: *length,
+                    },
+                    Some(*length),
+                )
+            }
+            Sequence::Barker { n } => {
+                if !BARKER_LENGTHS.contains(n) {
+                    return Err(invalid(
+                        &format!("{key}.n"),
+                        "one of 2, 3, 4, 5, 7, 11, 13",
+                        n,
+                    ));
+                }
+                no_modulation("barker")?;
+                (None, ResolvedSequence::Barker { n: *n }, Some(*n))
+            }
+            Sequence::ZadoffChu {
+                root,
+                length,
+                shift,
+            } => {
+                no_modulation("zadoff_chu")?;
+                if *length == 0 {
+                    return Err(invalid(&format!("{key}.length"), "an integer >= 1", 0));
+                }
+                if *root == 0 || *root as usize >= *length || gcd(*root as u64, *length as u64) != 1
+                {
+                    return Err(invalid(
+                        &format!("{key}.root"),
+                        format!("a root in 1..{length} coprime with the length {length}"),
+                        root,
+                    ));
+                }
+                if *shift >= *length {
+                    return Err(invalid(
+                        &format!("{key}.shift"),
+                        format!("a cyclic shift below the length {length}"),
+                        shift,
+                    ));
+                }
+                (
+                    None,
+                    ResolvedSequence::ZadoffChu {
+                        root: *root,
+                        length: *length,
+                        shift: *shift,
+                    },
+                    Some(*length),
+                )
+            }
+            Sequence::Symbols { values } => {
+                no_modulation("symbols")?;
+                if values.is_empty() {
+                    return Err(invalid(
+                        &format!("{key}.values"),
+                        "at least one [re, im] pair",
+                        "an empty list",
+                    ));
+                }
+                if let Some(i) = values
+                    .iter()
+                    .position(|v| !v[0].is_finite() || !v[1].is_finite())
+                {
+                    return Err(invalid(
+                        &format!("{key}.values[{i}]"),
+                        "finite numbers",
+                        format!("[{}, {}]", values[i][0], values[i][1]),
+                    ));
+                }
+                (
+                    None,
+                    ResolvedSequence::Symbols {
+                        values: values.clone(),
+                    },
+                    Some(values.len()),
+                )
+            }
+            Sequence::SymbolsFile { path } => {
+                no_modulation("symbols_file")?;
+                if path.is_empty() {
+                    return Err(invalid(&format!("{key}.path"), "a file path", "\"\""));
+                }
+                (
+                    None,
+                    ResolvedSequence::SymbolsFile { path: path.clone() },
+                    None,
+                )
+            }
+        };
+        Ok(ResolvedTraining {
+            modulation,
+            sequence,
+            length_symbols: length,
+        })
+    }
+
+    fn resolve_payload(&self) -> Result<ResolvedPayload, ProfileError> {
+        let p = &self.payload;
+        let position = p.position.unwrap_or(PayloadPosition::After);
+        let positive_len = |key: &str, v: Option<usize>, hint: &str| match v {
+            None => Err(ProfileError::Missing {
+                key: key.to_string(),
+                hint: hint.to_string(),
+            }),
+            Some(0) => Err(invalid(key, "an integer >= 1", 0)),
+            Some(n) => Ok(n),
+        };
+        let (before, after) = match position {
+            PayloadPosition::After | PayloadPosition::Before => {
+                for k in ["length_before_symbols", "length_after_symbols"] {
+                    let given = if k == "length_before_symbols" {
+                        p.length_before_symbols.is_some()
+                    } else {
+                        p.length_after_symbols.is_some()
+                    };
+                    if given {
+                        return Err(ProfileError::Conflict {
+                            key: format!("payload.{k}"),
+                            problem: "only for position \"both\"; use payload.length_symbols"
+                                .into(),
+                        });
+                    }
+                }
+                let n = positive_len(
+                    "payload.length_symbols",
+                    p.length_symbols,
+                    "give the payload length in symbols",
+                )?;
+                if position == PayloadPosition::After {
+                    (0, n)
+                } else {
+                    (n, 0)
+                }
+            }
+            PayloadPosition::Both => {
+                if p.length_symbols.is_some() {
+                    return Err(ProfileError::Conflict {
+                        key: "payload.length_symbols".into(),
+                        problem: "with position \"both\" give payload.length_before_symbols \
+                                  and payload.length_after_symbols instead"
+                            .into(),
+                    });
+                }
+                let hint = "position \"both\" needs the lengths on each side of the training";
+                (
+                    positive_len(
+                        "payload.length_before_symbols",
+                        p.length_before_symbols,
+                        hint,
+                    )?,
+                    positive_len("payload.length_after_symbols", p.length_after_symbols, hint)?,
+                )
+            }
+        };
+        let known = match &p.known {
+            None => None,
+            Some(PayloadRule::Prbs {
+                pattern,
+                polynomial,
+                seed,
+                inverted,
+            }) => {
+                let (pattern, polynomial, seed, inverted) =
+                    resolve_prbs("payload.known", *pattern, *polynomial, *seed, *inverted)?;
+                Some(ResolvedPayloadRule::Prbs {
+                    pattern,
+                    polynomial,
+                    seed,
+                    inverted,
+                })
+            }
+            Some(PayloadRule::SymbolsFile { path }) => {
+                if path.is_empty() {
+                    return Err(invalid("payload.known.path", "a file path", "\"\""));
+                }
+                Some(ResolvedPayloadRule::SymbolsFile { path: path.clone() })
+            }
+        };
+        Ok(ResolvedPayload {
+            modulation: p.modulation,
+            position,
+            before_symbols: before,
+            after_symbols: after,
+            known,
+        })
+    }
+
+    fn resolve_channel_fit(
+        &self,
+        training_len: Option<usize>,
+    ) -> Result<ResolvedChannelFit, ProfileError> {
+        let c = &self.channel_fit;
+        let pre = c.pre_cursor_taps.unwrap_or(TapCount::Fixed(1));
+        let post = c.post_cursor_taps.unwrap_or(TapCount::Fixed(3));
+        let fit = ResolvedChannelFit {
+            pre_cursor_taps: pre,
+            post_cursor_taps: post,
+            dc_offset: c.dc_offset.unwrap_or(false),
+            iq_imbalance: c.iq_imbalance.unwrap_or(false),
+            max_total_taps: training_len.map(|n| n / 2),
+        };
+        if let Some(n) = training_len {
+            check_training_fits(&fit, n)?;
+        }
+        Ok(fit)
+    }
+
+    fn resolve_equaliser(
+        &self,
+        fit: &ResolvedChannelFit,
+    ) -> Result<ResolvedEqualiser, ProfileError> {
+        let e = &self.equaliser;
+        let kind = e.kind.unwrap_or_default();
+        let nf = e.feedforward_taps.unwrap_or(8);
+        if nf == 0 {
+            return Err(invalid("equaliser.feedforward_taps", "an integer >= 1", 0));
+        }
+        let nb_default = match (kind, fit.post_cursor_taps) {
+            (EqualiserKind::LinearMmse, _) => 0,
+            (_, TapCount::Fixed(q)) => q,
+            (_, TapCount::Auto) => 3,
+        };
+        let nb = e.feedback_taps.unwrap_or(nb_default);
+        if kind == EqualiserKind::LinearMmse && nb != 0 {
+            return Err(ProfileError::Conflict {
+                key: "equaliser.feedback_taps".into(),
+                problem: format!(
+                    "a linear-mmse equaliser has no feedback filter; remove feedback_taps \
+                     (found {nb}) or choose kind zf-dfe or mmse-dfe"
+                ),
+            });
+        }
+        let delay = e.delay.unwrap_or(Delay::Auto);
+        if let Delay::Fixed(d) = delay {
+            if d >= nf {
+                return Err(invalid(
+                    "equaliser.delay",
+                    format!("\"auto\" or a delay below feedforward_taps ({nf})"),
+                    d,
+                ));
+            }
+        }
+        let tracking = e.tracking.unwrap_or_default();
+        match tracking {
+            Tracking::Off => {}
+            Tracking::Lms { mu } => {
+                positive("equaliser.tracking.mu", mu)?;
+            }
+            Tracking::Rls { lambda } => {
+                if !(lambda.is_finite() && lambda > 0.0 && lambda <= 1.0) {
+                    return Err(invalid(
+                        "equaliser.tracking.lambda",
+                        "a forgetting factor in (0, 1]",
+                        lambda,
+                    ));
+                }
+            }
+        }
+        Ok(ResolvedEqualiser {
+            kind,
+            feedforward_taps: nf,
+            feedback_taps: nb,
+            delay,
+            carrier_refinement: e.carrier_refinement.unwrap_or(true),
+            tracking,
+        })
+    }
+}
+
+/// The rule "a fit of `pre + post + 1` taps needs at least twice as many
+/// training symbols" (common practice: at least two equations per unknown for a
+/// usable least-squares fit). With `"auto"` counts, the fixed part plus one
+/// main tap must fit. Used at resolution and again once a symbols file is read.
+pub fn check_training_fits(
+    fit: &ResolvedChannelFit,
+    training_symbols: usize,
+) -> Result<(), ProfileError> {
+    let fixed = |t: TapCount| match t {
+        TapCount::Fixed(n) => n,
+        TapCount::Auto => 0,
+    };
+    let pre = fixed(fit.pre_cursor_taps);
+    let post = fixed(fit.post_cursor_taps);
+    let taps = pre + post + 1;
+    let needed = 2 * taps;
+    if training_symbols < needed {
+        return Err(ProfileError::TrainingTooShort {
+            key: "training.sequence".into(),
+            training_symbols,
+            taps,
+            pre,
+            post,
+            needed,
+        });
+    }
+    Ok(())
+}
