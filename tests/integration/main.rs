@@ -1,3 +1,4 @@
 mod profile;
+mod sample_captures;
 mod signal;
 mod synth;
