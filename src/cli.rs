@@ -14,7 +14,9 @@ use clap::{Args, Parser, Subcommand};
 use iqaudit::capture::stats::{capture_stats, info_report, InfoReport, StatsOptions};
 use iqaudit::{Capture, CaptureError, Error, OpenOptions, SampleFormat};
 
+mod analyse;
 mod profile_synth;
+use analyse::{AnalyseArgs, RecheckArgs};
 use profile_synth::{ProfileArgs, SynthArgs};
 
 /// Audit recorded baseband IQ captures.
@@ -29,6 +31,11 @@ pub struct Cli {
 /// The commands.
 #[derive(Debug, Subcommand)]
 pub enum Command {
+    /// Analyse one capture: find the training, fit the channel, equalise, report.
+    #[command(visible_alias = "analyze")]
+    Analyse(Box<AnalyseArgs>),
+    /// Re-run the analysis recorded in a report and say whether every figure reproduces.
+    Recheck(RecheckArgs),
     /// Describe what is in a capture: format, length, power, DC, clipping, bandwidth.
     Info(InfoArgs),
     /// Print an example link profile, or check one and print it with defaults filled in.
@@ -83,16 +90,23 @@ pub enum Outcome {
     /// Analysed; every limit held (or there were none).
     Ok,
     /// Analysed, but a limit failed.
-    #[allow(dead_code)]
     LimitFailed,
     /// Analysed, but no training block was found.
-    #[allow(dead_code)]
     NoTrainingFound,
+    /// `recheck`: some figure did not reproduce.
+    Differs,
 }
 
 /// Run one command.
 pub fn run(cli: Cli) -> Result<Outcome, Error> {
+    let argv = || -> Vec<String> {
+        std::iter::once("iqaudit".to_string())
+            .chain(std::env::args().skip(1))
+            .collect()
+    };
     match cli.command {
+        Command::Analyse(args) => analyse::run_analyse(&args, &argv()),
+        Command::Recheck(args) => analyse::run_recheck(&args),
         Command::Info(args) => run_info(&args),
         Command::Profile(args) => profile_synth::run_profile(&args),
         Command::Synth(args) => {
@@ -111,7 +125,7 @@ pub fn run(cli: Cli) -> Result<Outcome, Error> {
 pub fn exit_code(result: Result<Outcome, Error>) -> ExitCode {
     match result {
         Ok(Outcome::Ok) => ExitCode::SUCCESS,
-        Ok(Outcome::LimitFailed) => ExitCode::from(1),
+        Ok(Outcome::LimitFailed) | Ok(Outcome::Differs) => ExitCode::from(1),
         Ok(Outcome::NoTrainingFound) => ExitCode::from(3),
         Err(Error::Io { ref source, .. }) if source.kind() == std::io::ErrorKind::BrokenPipe => {
             ExitCode::SUCCESS

@@ -60,6 +60,7 @@ pub type Cf32 = Complex<f32>;
 /// One complex value in double precision (used where sums must not drift).
 pub type Cf64 = Complex<f64>;
 
+pub mod analyse;
 pub mod capture;
 pub mod channel;
 pub mod equalise;
@@ -67,6 +68,7 @@ mod error;
 pub mod profile;
 pub mod report;
 pub mod signal;
+pub mod sync;
 pub mod synth;
 
 pub use capture::{

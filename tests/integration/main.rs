@@ -1,4 +1,14 @@
+//! iqaudit integration tests: one binary, one module per topic.
+//!
+//! Takes in: committed vectors under tests/vectors and tests/data, and captures
+//! generated in per-test temporary directories. Gives out: pass/fail.
+
+mod bad_input;
+mod capture_formats;
+mod info_cli;
+mod large_capture;
 mod profile;
 mod sample_captures;
 mod signal;
 mod synth;
+mod util;
