@@ -2,7 +2,8 @@
 //! a single rustfft 4096-point FFT on the same machine.
 //!
 //! Takes in: optional `SYNC_BENCH_SAMPLES` (default 134 217 728 = 1 GiB of cf32) and
-//! `SYNC_BENCH_REPEATS` (default 3; the best run is reported). Gives out: a table on
+//! `SYNC_BENCH_REPEATS` (default 3; the best run is reported), `SYNC_BENCH_CASES` (1 = only
+//! the one-hypothesis case). Gives out: a table on
 //! stdout. The capture is built in memory: complex white noise (Es/N0 10 dB relative to
 //! the bursts) with one QPSK burst (127-symbol training, sps 4, RRC β 0.25, 8-symbol
 //! span) every 2^20 samples. Run with `cargo bench --bench sync`.

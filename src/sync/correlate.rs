@@ -195,7 +195,24 @@ impl OverlapSave {
     }
 
     fn inverse(&self, spec: &[Cf32], buf: &[Cf32], work: &mut [Cf32], fft_scratch: &mut [Cf32]) {
-        for ((w, &x), &s) in work.iter_mut().zip(buf.iter()).zip(spec.iter()) {
+        // Written out in groups of 4 so the compiler keeps it in SIMD registers.
+        let mut w4 = work.chunks_exact_mut(4);
+        let mut x4 = buf.chunks_exact(4);
+        let mut s4 = spec.chunks_exact(4);
+        for ((w, x), s) in (&mut w4).zip(&mut x4).zip(&mut s4) {
+            for k in 0..4 {
+                w[k] = Cf32::new(
+                    x[k].re * s[k].re - x[k].im * s[k].im,
+                    x[k].re * s[k].im + x[k].im * s[k].re,
+                );
+            }
+        }
+        for ((w, &x), &s) in w4
+            .into_remainder()
+            .iter_mut()
+            .zip(x4.remainder())
+            .zip(s4.remainder())
+        {
             *w = x * s;
         }
         self.inv.process_with_scratch(work, fft_scratch);
@@ -219,7 +236,7 @@ impl OverlapSave {
         threshold: f64,
         scratch: &mut [Cf32],
         c2: &mut [f32],
-        best: &mut [u32],
+        best: &mut [f32],
         emit: &mut impl FnMut(usize, f64, usize),
     ) {
         debug_assert!(first + count <= self.step());
@@ -240,11 +257,12 @@ impl OverlapSave {
             if h == 0 {
                 for ((c, b), v) in c2.iter_mut().zip(best.iter_mut()).zip(w) {
                     *c = v.norm_sqr();
-                    *b = 0;
+                    *b = 0.0;
                 }
             } else {
-                // Branch-free select so the loop vectorises.
-                let hu = h as u32;
+                // Branch-free select on same-width lanes (index held as f32, exact
+                // below 2^24) so the loop vectorises.
+                let hu = h as f32;
                 for ((c, b), v) in c2.iter_mut().zip(best.iter_mut()).zip(w) {
                     let p = v.norm_sqr();
                     let gt = p > *c;

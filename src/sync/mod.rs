@@ -338,7 +338,7 @@ struct Worker {
     chunk: Vec<Cf32>,
     scratch: Vec<Cf32>,
     c2: Vec<f32>,
-    best: Vec<u32>,
+    best: Vec<f32>,
 }
 
 /// The synchroniser: built once per training/pulse/config, shared across threads.
@@ -572,7 +572,7 @@ impl Synchroniser {
             chunk: vec![Cf32::new(0.0, 0.0); chunk_len + self.corr.ref_len() - 1],
             scratch: vec![Cf32::new(0.0, 0.0); self.corr.scratch_len()],
             c2: vec![0.0; step],
-            best: vec![0; step],
+            best: vec![0.0; step],
         }
     }
 
