@@ -741,10 +741,15 @@ fn region_warnings(
     let dc = sum / n;
     let mean_power = power / n;
     if mean_power > 0.0 && dc.norm_sqr() / mean_power > 0.01 {
+        let advice = if plan.burst_cfg.channel.dc_offset {
+            "the channel fit removes it (channel_fit.dc_offset is on)"
+        } else {
+            "enable channel_fit.dc_offset"
+        };
         warnings.push(Warning::new(
             WarningCode::StrongDc,
             format!(
-                "DC offset {:.1} dB relative to the burst power; enable channel_fit.dc_offset",
+                "DC offset {:.1} dB relative to the burst power; {advice}",
                 10.0 * (dc.norm_sqr() / mean_power).log10()
             ),
         ));

@@ -13,7 +13,7 @@
 //! inverse transform is folded into the stored reference spectra, so outputs are in
 //! the units of the direct sum above.
 //!
-//! The scan kernel ([`OverlapSave::scan_block`]) fuses the correlation with the
+//! The scan kernel (`OverlapSave::scan_block`) fuses the correlation with the
 //! normalised metric `ρ[n] = |c[n]|² / (E_r · E_w[n])` where `E_r = Σ|r|²` and
 //! `E_w[n] = Σ_{m<L} |x[n+m]|²` is the window energy, kept as an f64 running sum that
 //! restarts from a direct sum at every block start (so long captures cannot drift and
