@@ -242,7 +242,7 @@ fn synchroniser(profile: &ResolvedProfile, plan: &Plan) -> Result<Synchroniser, 
             .search
             .max_cfo_hz_at(plan.sample_rate_hz, plan.sps)
             .min(0.25 * plan.symbol_rate_hz),
-        threshold: Some(profile.search.threshold),
+        threshold: profile.search.threshold,
         min_spacing_samples: Some((plan.frame_symbols() * plan.sps).max(1)),
         cfo_segments: 4,
     };

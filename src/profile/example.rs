@@ -105,7 +105,7 @@ pub fn example_profile(opts: &ExampleOptions) -> Profile {
             tracking: Some(Tracking::Off),
         },
         search: SearchSection {
-            threshold: Some(0.5),
+            threshold: None,
             max_cfo_hz: Some(0.02 * opts.symbol_rate_hz),
         },
         limits: LimitsSection {

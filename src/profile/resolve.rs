@@ -9,7 +9,7 @@
 //! ones and O.150 inversion; payload position `after`; channel fit 1 pre-cursor
 //! and 3 post-cursor taps, no DC or IQ terms; `mmse-dfe` with Nf = 8, Nb = the
 //! post-cursor taps (3 when `"auto"`), delay `"auto"`, carrier refinement on,
-//! tracking off; search threshold 0.5, `max_cfo_hz` = 2 % of the symbol rate
+//! tracking off; search threshold derived from the false-alarm target (null), `max_cfo_hz` = 2 % of the symbol rate
 //! (null when the profile has no sample rate: the analysis applies the same
 //! fraction once the capture's rate is known); no limits.
 
@@ -214,8 +214,10 @@ pub struct ResolvedEqualiser {
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct ResolvedSearch {
-    /// Normalised correlation threshold in (0, 1].
-    pub threshold: f64,
+    /// Normalised correlation threshold in (0, 1]; null: derived by the
+    /// synchroniser from its false-alarm target (1e-3 expected false alarms per
+    /// 10⁸ noise samples, see `sync`), and recorded in each report's provenance.
+    pub threshold: Option<f64>,
     /// Largest expected |CFO| in Hz; null = 2 % of the symbol rate once known.
     pub max_cfo_hz: Option<f64>,
 }
@@ -384,9 +386,11 @@ impl Profile {
 
         // search
         let s = &self.search;
-        let threshold = s.threshold.unwrap_or(0.5);
-        if !(threshold.is_finite() && threshold > 0.0 && threshold <= 1.0) {
-            return Err(invalid("search.threshold", "a number in (0, 1]", threshold));
+        let threshold = s.threshold;
+        if let Some(t) = threshold {
+            if !(t.is_finite() && t > 0.0 && t <= 1.0) {
+                return Err(invalid("search.threshold", "a number in (0, 1]", t));
+            }
         }
         let max_cfo_hz = match s.max_cfo_hz {
             Some(v) => {

@@ -369,7 +369,8 @@ pub struct EqualiserSection {
 #[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct SearchSection {
-    /// Normalised correlation threshold in (0, 1] (default 0.5).
+    /// Normalised correlation threshold in (0, 1] (default: derived from the
+    /// synchroniser's false-alarm target, 1e-3 expected false alarms per 10⁸ samples).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub threshold: Option<f64>,
     /// Largest expected carrier offset in Hz (default 2 % of the symbol rate).

@@ -70,7 +70,7 @@ fn minimal_profile_gets_every_default_filled_in() {
     assert_eq!(r.equaliser.feedback_taps, 3);
     assert_eq!(r.equaliser.delay, Delay::Auto);
     assert_eq!(r.equaliser.tracking, Tracking::Off);
-    assert_eq!(r.search.threshold, 0.5);
+    assert_eq!(r.search.threshold, None);
     assert_eq!(r.search.max_cfo_hz, None);
     assert_eq!(r.search.max_cfo_hz_at(1e6, 4), 5000.0);
     assert_eq!(r.limits.ser_max, None);
