@@ -63,6 +63,7 @@ pub type Cf32 = Complex<f32>;
 /// One complex value in double precision (used where sums must not drift).
 pub type Cf64 = Complex<f64>;
 
+pub mod batch;
 pub mod capture;
 pub mod channel;
 pub mod equalise;

@@ -1,1 +1,2 @@
+mod batch;
 mod signal;
