@@ -14,6 +14,13 @@ use clap::{Args, Parser, Subcommand};
 use iqaudit::capture::stats::{capture_stats, info_report, InfoReport, StatsOptions};
 use iqaudit::{Capture, CaptureError, Error, OpenOptions, SampleFormat};
 
+mod analyse;
+mod batch;
+mod profile_synth;
+use analyse::{AnalyseArgs, RecheckArgs};
+use batch::BatchArgs;
+use profile_synth::{ProfileArgs, SynthArgs};
+
 /// Audit recorded baseband IQ captures.
 #[derive(Debug, Parser)]
 #[command(name = "iqaudit", version, about)]
@@ -26,8 +33,19 @@ pub struct Cli {
 /// The commands.
 #[derive(Debug, Subcommand)]
 pub enum Command {
+    /// Analyse one capture: find the training, fit the channel, equalise, report.
+    #[command(visible_alias = "analyze")]
+    Analyse(Box<AnalyseArgs>),
+    /// Analyse every capture under a folder in parallel: one report each plus a summary.
+    Batch(Box<BatchArgs>),
+    /// Re-run the analysis recorded in a report and say whether every figure reproduces.
+    Recheck(RecheckArgs),
     /// Describe what is in a capture: format, length, power, DC, clipping, bandwidth.
     Info(InfoArgs),
+    /// Print an example link profile, or check one and print it with defaults filled in.
+    Profile(ProfileArgs),
+    /// Make a test capture with known ground truth (FILE + FILE.truth.json).
+    Synth(Box<SynthArgs>),
 }
 
 /// Arguments of `iqaudit info`.
@@ -76,17 +94,35 @@ pub enum Outcome {
     /// Analysed; every limit held (or there were none).
     Ok,
     /// Analysed, but a limit failed.
-    #[allow(dead_code)]
     LimitFailed,
     /// Analysed, but no training block was found.
-    #[allow(dead_code)]
     NoTrainingFound,
+    /// `recheck`: some figure did not reproduce.
+    Differs,
+    /// `batch`: the exit code its outcome decided (see `iqaudit::batch`).
+    Exit(u8),
 }
 
 /// Run one command.
 pub fn run(cli: Cli) -> Result<Outcome, Error> {
+    let argv = || -> Vec<String> {
+        std::iter::once("iqaudit".to_string())
+            .chain(std::env::args().skip(1))
+            .collect()
+    };
     match cli.command {
+        Command::Analyse(args) => analyse::run_analyse(&args, &argv()),
+        Command::Batch(args) => batch::run_batch_cmd(&args, &argv()),
+        Command::Recheck(args) => analyse::run_recheck(&args),
         Command::Info(args) => run_info(&args),
+        Command::Profile(args) => profile_synth::run_profile(&args),
+        Command::Synth(args) => {
+            // Recorded in the truth file: the program name without its path.
+            let argv: Vec<String> = std::iter::once("iqaudit".to_string())
+                .chain(std::env::args().skip(1))
+                .collect();
+            profile_synth::run_synth(&args, &argv)
+        }
     }
 }
 
@@ -96,8 +132,9 @@ pub fn run(cli: Cli) -> Result<Outcome, Error> {
 pub fn exit_code(result: Result<Outcome, Error>) -> ExitCode {
     match result {
         Ok(Outcome::Ok) => ExitCode::SUCCESS,
-        Ok(Outcome::LimitFailed) => ExitCode::from(1),
+        Ok(Outcome::LimitFailed) | Ok(Outcome::Differs) => ExitCode::from(1),
         Ok(Outcome::NoTrainingFound) => ExitCode::from(3),
+        Ok(Outcome::Exit(code)) => ExitCode::from(code),
         Err(Error::Io { ref source, .. }) if source.kind() == std::io::ErrorKind::BrokenPipe => {
             ExitCode::SUCCESS
         }
@@ -287,7 +324,9 @@ mod tests {
             "--json",
         ])
         .unwrap();
-        let Command::Info(a) = cli.command;
+        let Command::Info(a) = cli.command else {
+            panic!("not info")
+        };
         assert_eq!(a.format.as_deref(), Some("ci16_le"));
         assert_eq!(a.sample_rate, Some(2.4e6));
         assert!(a.swap_iq && a.json);

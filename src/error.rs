@@ -23,6 +23,46 @@ pub enum Error {
         /// The OS error.
         source: std::io::Error,
     },
+    /// A link profile is missing, malformed or has a bad value (names the file and key).
+    #[error(transparent)]
+    Profile(#[from] crate::profile::ProfileError),
+    /// The synthesiser was given options it cannot honour, or could not write.
+    #[error(transparent)]
+    Synth(#[from] crate::synth::SynthError),
+    /// The synchroniser could not run (bad settings, or a read failed mid-search).
+    #[error("synchronisation: {0}")]
+    Sync(#[from] crate::sync::SyncError),
+    /// The channel fit or an equaliser design failed (e.g. a training that cannot
+    /// excite every tap).
+    #[error("channel and equaliser: {0}")]
+    Equalise(#[from] crate::equalise::EqualiseError),
+    /// An output file could not be written.
+    #[error(transparent)]
+    Write(#[from] crate::report::write::WriteError),
+    /// A report given to `recheck` cannot be used.
+    #[error("{}: {message}", path.display())]
+    Report {
+        /// The report file.
+        path: PathBuf,
+        /// What is wrong with it.
+        message: String,
+    },
+    /// The capture named in a report is not the one that was analysed.
+    #[error("{}: the capture changed since the report was written (SHA-256 {found}, report says {expected})", path.display())]
+    InputChanged {
+        /// The capture.
+        path: PathBuf,
+        /// SHA-256 recorded in the report.
+        expected: String,
+        /// SHA-256 of the file now.
+        found: String,
+    },
+    /// A batch could not run (bad folder, output not writable, no captures).
+    #[error(transparent)]
+    Batch(#[from] crate::batch::BatchError),
+    /// Per-shard summaries could not be merged.
+    #[error(transparent)]
+    Merge(#[from] crate::batch::MergeError),
     /// The command line is inconsistent in a way clap cannot see.
     #[error("{message}")]
     Usage {

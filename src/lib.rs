@@ -53,9 +53,6 @@
 //!   samples counted from 0.
 #![deny(missing_docs)]
 
-pub mod profile;
-pub mod synth;
-
 use num_complex::Complex;
 
 /// One complex baseband sample or symbol, single precision.
@@ -63,20 +60,26 @@ pub type Cf32 = Complex<f32>;
 /// One complex value in double precision (used where sums must not drift).
 pub type Cf64 = Complex<f64>;
 
+pub mod analyse;
 pub mod batch;
 pub mod capture;
 pub mod channel;
 pub mod equalise;
 mod error;
+pub mod profile;
 pub mod report;
 pub mod signal;
+pub mod sync;
+pub mod synth;
 
 pub use capture::{
     write_capture, Capture, CaptureError, Container, OpenOptions, ReadStats, SampleFormat,
     WavEncoding, WriteSpec, WriteStats,
 };
 pub use error::Error;
+pub use profile::{load_profile, Profile, ProfileError, ResolvedProfile};
 pub use signal::{Constellation, Modulation};
+pub use synth::{GroundTruth, SynthError, SynthSpec};
 
 #[cfg(test)]
 mod testutil;

@@ -63,6 +63,7 @@ use rand_chacha::ChaCha8Rng;
 use rand_distr::StandardNormal;
 use serde::{Deserialize, Serialize};
 
+use crate::capture::{write_capture, Container, SampleFormat, WavEncoding, WriteSpec};
 use crate::profile::{Modulation, ProfileError, ResolvedProfile};
 use crate::signal::{rrc_impulse, Constellation};
 use crate::{Cf32, Cf64};
@@ -692,6 +693,113 @@ pub fn run(spec: &SynthSpec) -> Result<Synthesised, SynthError> {
         bursts,
     };
     Ok(Synthesised { samples, truth })
+}
+
+/// Where and how [`write_outputs`] stores the capture.
+#[derive(Debug, Clone, PartialEq)]
+pub struct OutputSpec {
+    /// Raw layout or WAV encoding.
+    pub container: Container,
+    /// Also write a SigMF sidecar (raw layouts only).
+    pub sigmf_sidecar: bool,
+    /// Centre frequency for the sidecar, Hz (default: the profile's).
+    pub center_freq_hz: Option<f64>,
+}
+
+/// Parse an output format: a SigMF raw name (`cf32_le`, `ci16_le`, …) or a WAV
+/// encoding written `wav_pcm8`, `wav_pcm16`, `wav_pcm24`, `wav_pcm32`,
+/// `wav_float32` (the names `capture::Container` displays).
+pub fn parse_container(text: &str) -> Result<Container, SynthError> {
+    if let Ok(f) = text.parse::<SampleFormat>() {
+        return Ok(Container::Raw(f));
+    }
+    WavEncoding::ALL
+        .iter()
+        .find(|e| format!("wav_{e}") == text)
+        .map(|&e| Container::Wav(e))
+        .ok_or_else(|| {
+            let wav: Vec<String> = WavEncoding::ALL
+                .iter()
+                .map(|e| format!("wav_{e}"))
+                .collect();
+            bad(
+                "--format",
+                format!(
+                    "one of {}, {}",
+                    SampleFormat::accepted_names(),
+                    wav.join(", ")
+                ),
+                text,
+            )
+        })
+}
+
+/// The container [`write_outputs`] uses when none is named: a `.wav` file gets
+/// 16-bit PCM; otherwise the profile's `capture.format`, else the format the
+/// reader infers from the extension, else `cf32_le`.
+pub fn default_container(out: &Path, profile: &ResolvedProfile) -> Container {
+    let ext = out
+        .extension()
+        .and_then(|e| e.to_str())
+        .map(|e| e.to_ascii_lowercase());
+    if ext.as_deref() == Some("wav") {
+        return Container::Wav(WavEncoding::Pcm16);
+    }
+    let f = profile
+        .capture
+        .format
+        .or_else(|| ext.as_deref().and_then(SampleFormat::from_extension))
+        .unwrap_or(SampleFormat::Cf32Le);
+    Container::Raw(f)
+}
+
+/// Synthesise and write the capture (atomically, via `capture::write_capture`),
+/// its SigMF sidecar when asked, and `FILE.truth.json`. `command` is recorded
+/// in the truth. Returns the truth as written.
+pub fn write_outputs(
+    spec: &SynthSpec,
+    out: &Path,
+    output: &OutputSpec,
+    command: Option<String>,
+) -> Result<GroundTruth, SynthError> {
+    let Synthesised { samples, mut truth } = run(spec)?;
+    let write_spec = WriteSpec {
+        container: output.container,
+        sample_rate_hz: truth.sample_rate_hz,
+        center_freq_hz: output
+            .center_freq_hz
+            .or(spec.profile.capture.center_freq_hz),
+        sigmf_sidecar: output.sigmf_sidecar,
+        description: Some(format!(
+            "iqaudit synth test stimulus, seed {}, {} bursts",
+            spec.seed, spec.bursts
+        )),
+    };
+    let stats = write_capture(out, &samples, &write_spec).map_err(|e| SynthError::Write {
+        path: out.to_path_buf(),
+        message: e.to_string(),
+    })?;
+    drop(samples);
+    truth.command = command;
+    truth.capture = Some(TruthCapture {
+        file: out
+            .file_name()
+            .map(|f| f.to_string_lossy().into_owned())
+            .unwrap_or_default(),
+        format: output.container.to_string(),
+        clipped: stats.clipped,
+    });
+    let tpath = truth_path(out);
+    let mut json = serde_json::to_string_pretty(&truth).map_err(|e| SynthError::Write {
+        path: tpath.clone(),
+        message: e.to_string(),
+    })?;
+    json.push('\n');
+    crate::report::write::write_atomic(&tpath, json.as_bytes()).map_err(|e| SynthError::Write {
+        path: tpath.clone(),
+        message: e.to_string(),
+    })?;
+    Ok(truth)
 }
 
 /// The truth file path for a capture: `FILE.truth.json` beside it.

@@ -60,47 +60,26 @@ pub use progress::ProgressMode;
 pub use shard::{shard_of, Shard, ShardParseError};
 pub use summary::{merge_summaries, MergeError, RowVerdict, SummaryRow};
 
+use crate::profile::ResolvedProfile;
+use crate::report::provenance::sha256_bytes;
 use crate::report::schema::Report;
 use crate::report::write::{ensure_not_an_input, write_atomic, AtomicFile, WriteError};
 use progress::Progress;
 use rayon::prelude::*;
-use sha2::{Digest, Sha256};
 use std::fs::{self, File};
-use std::io::{self, Read, Write};
+use std::io::{self, Write};
 use std::path::{Path, PathBuf};
 use std::sync::Mutex;
 use walk::Entry;
 
-/// Read buffer of [`sha256_file`].
-const HASH_BUFFER_BYTES: usize = 1 << 20;
+pub use crate::report::provenance::sha256_file;
 
-/// SHA-256 of a file's contents as lowercase hex, streamed through a 1 MiB
-/// buffer (memory does not grow with the file).
-pub fn sha256_file(path: &Path) -> io::Result<String> {
-    let mut file = File::open(path)?;
-    let mut hasher = Sha256::new();
-    let mut buf = vec![0u8; HASH_BUFFER_BYTES];
-    loop {
-        let n = match file.read(&mut buf) {
-            Ok(0) => break,
-            Ok(n) => n,
-            Err(e) if e.kind() == io::ErrorKind::Interrupted => continue,
-            Err(e) => return Err(e),
-        };
-        hasher.update(&buf[..n]);
-    }
-    Ok(hex(&hasher.finalize()))
-}
-
-/// Lowercase hex of bytes.
-pub fn hex(bytes: &[u8]) -> String {
-    const DIGITS: &[u8; 16] = b"0123456789abcdef";
-    let mut s = String::with_capacity(bytes.len() * 2);
-    for &b in bytes {
-        s.push(DIGITS[usize::from(b >> 4)] as char);
-        s.push(DIGITS[usize::from(b & 15)] as char);
-    }
-    s
+/// SHA-256 of a resolved profile exactly as `analyse` records it in
+/// `report.provenance.profile_sha256` (SHA-256 of the compact JSON of the
+/// resolved profile): the identity [`BatchOptions::profile_sha256`] wants.
+pub fn profile_sha256(profile: &ResolvedProfile) -> Result<String, serde_json::Error> {
+    let value = serde_json::to_value(profile)?;
+    Ok(sha256_bytes(value.to_string().as_bytes()))
 }
 
 /// The bytes of a report file: pretty JSON plus a final newline. `analyse
@@ -170,6 +149,11 @@ pub struct BatchOptions {
     /// SHA-256 of the resolved profile, as the job writes it in
     /// `report.provenance.profile_sha256`; used to decide whether a report is up to date.
     pub profile_sha256: String,
+    /// The sample-format override the job applies (`report.provenance.format_override`);
+    /// a report made with a different override is not reused.
+    pub format_override: Option<String>,
+    /// The sample-rate override the job applies, Hz (`report.provenance.sample_rate_override_hz`).
+    pub sample_rate_override_hz: Option<f64>,
     /// Set to stop handing out captures (signals, tests).
     pub cancel: CancelFlag,
 }
@@ -186,6 +170,8 @@ impl BatchOptions {
             globs: Vec::new(),
             progress: ProgressMode::Auto,
             profile_sha256: profile_sha256.to_string(),
+            format_override: None,
+            sample_rate_override_hz: None,
             cancel: CancelFlag::new(),
         }
     }
@@ -262,6 +248,22 @@ impl BatchOutcome {
         }
         exit_code_of(&self.counts)
     }
+}
+
+/// The exit class of a finished summary (e.g. merged shards): 2 if any row is
+/// `unreadable` or `error`, else 1 if any is `fail` or `no-training`, else 0.
+pub fn exit_code_for_rows(rows: &[SummaryRow]) -> u8 {
+    let mut c = BatchCounts::default();
+    for r in rows {
+        match r.verdict {
+            RowVerdict::Pass => c.passed += 1,
+            RowVerdict::Fail => c.failed_limits += 1,
+            RowVerdict::NoTraining => c.no_training += 1,
+            RowVerdict::Unreadable => c.unreadable += 1,
+            RowVerdict::Error => c.errors += 1,
+        }
+    }
+    exit_code_of(&c)
 }
 
 fn exit_code_of(c: &BatchCounts) -> u8 {
@@ -585,7 +587,11 @@ fn try_reuse(
 ) -> Option<SummaryRow> {
     let text = fs::read(report_path).ok()?;
     let report: Report = serde_json::from_slice(&text).ok()?;
-    if report.provenance.profile_sha256 != opts.profile_sha256 || report.input.size_bytes != e.bytes
+    let p = &report.provenance;
+    if p.profile_sha256 != opts.profile_sha256
+        || p.format_override != opts.format_override
+        || p.sample_rate_override_hz != opts.sample_rate_override_hz
+        || report.input.size_bytes != e.bytes
     {
         return None;
     }
@@ -673,12 +679,10 @@ mod tests {
             sha256_file(&p).unwrap(),
             "cdc76e5c9914fb9281a1c7e284d73e67f1809a48a497200e046d39ccc7112cd0"
         );
-        let big: Vec<u8> = (0..(3 * HASH_BUFFER_BYTES + 5))
-            .map(|i| (i % 251) as u8)
-            .collect();
+        let big: Vec<u8> = (0..(3 * (1 << 20) + 5)).map(|i| (i % 251) as u8).collect();
         let p = dir.path().join("big");
         fs::write(&p, &big).unwrap();
-        assert_eq!(sha256_file(&p).unwrap(), hex(&Sha256::digest(&big)));
+        assert_eq!(sha256_file(&p).unwrap(), sha256_bytes(&big));
         let p = dir.path().join("empty");
         fs::write(&p, b"").unwrap();
         // Source: FIPS 180-4 (SHA-256 of the empty message), NIST example values.

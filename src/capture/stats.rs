@@ -723,7 +723,11 @@ mod tests {
         let st = capture_stats(&c, &StatsOptions::default(), &|_| {}).unwrap();
         let total = st.psd.as_ref().unwrap().total_power();
         let d = 10.0 * (total / st.mean_power).log10();
-        assert!(d.abs() < 0.1, "PSD total {total} vs mean power {}: {d} dB", st.mean_power);
+        assert!(
+            d.abs() < 0.1,
+            "PSD total {total} vs mean power {}: {d} dB",
+            st.mean_power
+        );
     }
 
     // Common practice: a complex tone exp(+j2πk0 n/N) lies in bin k0, and the
@@ -778,7 +782,10 @@ mod tests {
                 "B={b}: {} vs {expect}",
                 obw.width()
             );
-            assert!((0.5 * (obw.lower + obw.upper) - centre).abs() <= bin, "centre {centre}");
+            assert!(
+                (0.5 * (obw.lower + obw.upper) - centre).abs() <= bin,
+                "centre {centre}"
+            );
         }
     }
 

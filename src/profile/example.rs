@@ -3,12 +3,12 @@
 //! with a few fields overridable. Takes in [`ExampleOptions`], gives out a
 //! complete [`Profile`] in which every key is written out.
 
-use super::names::SampleFormat;
 use super::schema::{
     CaptureSection, ChannelFitSection, Delay, EqualiserKind, EqualiserSection, LimitsSection,
     PayloadPosition, PayloadRule, PayloadSection, Profile, PulseSection, PulseShape, SearchSection,
     Sequence, TapCount, Tracking, TrainingSection,
 };
+use crate::capture::SampleFormat;
 use crate::signal::{Modulation, PrbsPattern};
 
 /// What `profile new` lets the user change; the rest is the crane link.

@@ -25,14 +25,13 @@
 //! `serde_path_to_error`) and, for JSON errors, the line and column.
 
 mod example;
-mod names;
 mod resolve;
 mod schema;
 mod symbols;
 
+pub use crate::capture::SampleFormat;
 pub use crate::signal::{Modulation, PrbsPattern};
 pub use example::{example_profile, ExampleOptions};
-pub use names::SampleFormat;
 pub use resolve::check_training_fits;
 pub use symbols::PayloadSymbols;
 

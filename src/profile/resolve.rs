@@ -15,12 +15,12 @@
 
 use serde::{Deserialize, Serialize};
 
-use super::names::SampleFormat;
 use super::schema::{
     Delay, EqualiserKind, PayloadPosition, PayloadRule, Profile, PulseShape, Sequence, TapCount,
     Tracking,
 };
 use super::ProfileError;
+use crate::capture::SampleFormat;
 use crate::signal::BARKER_LENGTHS;
 use crate::signal::{Modulation, PrbsPattern};
 

@@ -9,7 +9,7 @@ use std::path::Path;
 
 use serde::{Deserialize, Deserializer, Serialize, Serializer};
 
-use super::names::SampleFormat;
+use crate::capture::SampleFormat;
 use crate::signal::{Modulation, PrbsPattern};
 
 /// A complete link profile as parsed from JSON (before defaults are checked and

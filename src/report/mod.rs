@@ -6,6 +6,8 @@
 pub mod compare;
 pub mod metrics;
 pub mod plots;
+pub mod provenance;
 pub mod schema;
 pub mod svg;
+pub mod text;
 pub mod write;

@@ -145,8 +145,10 @@ pub struct ChannelReport {
     pub snr_db: f64,
     /// Fitted DC term `[re, im]`; `null` when not fitted.
     pub dc: Option<Complex2>,
-    /// Magnitude of the fitted image (IQ-imbalance) term relative to the main tap, dB; `null` when not fitted.
-    pub image_rejection_db: Option<f64>,
+    /// Power of the fitted conjugate (image, IQ-imbalance) taps relative to the direct taps, dB; `null` when not fitted.
+    pub image_level_db: Option<f64>,
+    /// How the tap counts were chosen: `fixed` or `mdl`.
+    pub span_choice: String,
     /// Channel frequency response: `[f, |H(f)| dB]` with f in cycles/symbol from −0.5 to 0.5.
     pub response_db: Vec<[f64; 2]>,
 }
@@ -283,6 +285,12 @@ pub struct Provenance {
     pub tool_version: String,
     /// SHA-256 of the canonical JSON of the resolved profile.
     pub profile_sha256: String,
+    /// Sample format given on the command line (overrides profile and file), if any.
+    pub format_override: Option<String>,
+    /// Sample rate given on the command line, Hz, if any.
+    pub sample_rate_override_hz: Option<f64>,
+    /// Detection threshold actually used (the profile's, or the one derived from the false-alarm target).
+    pub threshold: f64,
     /// Command that re-runs the analysis and compares every figure.
     pub recheck: String,
 }

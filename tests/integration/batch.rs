@@ -68,6 +68,9 @@ fn minimal_report(path: &Path, result: VerdictResult, profile_sha: &str) -> Repo
         provenance: Provenance {
             tool_version: env!("CARGO_PKG_VERSION").into(),
             profile_sha256: profile_sha.to_string(),
+            format_override: None,
+            sample_rate_override_hz: None,
+            threshold: 0.5,
             recheck: "iqaudit recheck".into(),
         },
     }

@@ -1,2 +1,15 @@
+//! iqaudit integration tests: one binary, one module per topic.
+//!
+//! Takes in: committed vectors under tests/vectors and tests/data, and captures
+//! generated in per-test temporary directories. Gives out: pass/fail.
+
+mod bad_input;
 mod batch;
+mod batch_cli;
+mod capture_formats;
+mod info_cli;
+mod large_capture;
+mod profile;
 mod signal;
+mod synth;
+mod util;

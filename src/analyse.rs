@@ -1,0 +1,997 @@
+//! The main job: analyse one capture against a link profile.
+//!
+//! Takes a capture path, a [`ResolvedProfile`] and [`AnalyseOptions`]; gives a
+//! [`Report`] (schema `iqaudit-report/1`). The stages run in data-flow order:
+//!
+//! 1. `capture` — open the file (memory map, chunked decoding);
+//! 2. `signal` — build the training symbols, the known payload (if any), the
+//!    RRC pulse and the payload constellation from the profile;
+//! 3. `sync` — search the whole capture for the training block (overlap-save
+//!    correlation, in parallel over chunks), then refine each burst's CFO,
+//!    timing and phase and cut out matched-filtered symbol-rate samples;
+//! 4. `channel` + `equalise` — least-squares channel fit over the training,
+//!    decision-directed carrier refinement, and every equaliser on the burst
+//!    (the profile's choice is reported; the linear MMSE equaliser and the genie
+//!    DFE are run beside it for comparison);
+//! 5. `report` — EVM, MER, SER/BER, error runs, warnings, verdict.
+//!
+//! Bursts are processed in parallel and collected in capture order; all sums are
+//! taken in index order, so the report is identical for any thread count.
+//!
+//! ## Frame indexing
+//!
+//! For a burst, symbol index 0 is the first training symbol. A payload before
+//! the training occupies indices `−B..0`, the training `0..L`, a payload after it
+//! `L..L+A`. Payload symbol numbers in the report (error runs, peak EVM, plots)
+//! count the payload symbols in time order: the `B` symbols before the training
+//! first, then the `A` after it.
+
+use crate::capture::{Capture, OpenOptions, SampleFormat};
+use crate::channel::{ChannelFitConfig, SpanChoice, TapSpan};
+use crate::equalise::tracking::{AdaptMode, TrackingConfig};
+use crate::equalise::{process_burst, BurstConfig, BurstOutput, BurstView, EqualisedSymbols};
+use crate::profile::ResolvedProfile;
+use crate::profile::{Delay, EqualiserKind, TapCount, Tracking};
+use crate::report::metrics::{
+    error_runs, run_length_histogram, ErrorPropagation, ErrorRate, EvmAccumulator,
+};
+use crate::report::provenance::{sha256_bytes, sha256_file};
+use crate::report::schema::{
+    BurstMetrics, BurstReport, ChannelReport, EqualiserReport, InputInfo, LimitCheck, Provenance,
+    Report, Summary, ToolInfo, Trace, Verdict, VerdictResult, Warning, WarningCode, SCHEMA,
+};
+use crate::signal::{rrc_taps, Constellation};
+use crate::sync::{BurstSync, ChunkReader, SampleSource, SyncConfig, Synchroniser};
+use crate::{Cf32, Cf64, Error};
+use rayon::prelude::*;
+use std::path::{Path, PathBuf};
+
+/// Confidence level of every error-rate interval in the report.
+pub const CONFIDENCE: f64 = 0.95;
+/// Most equalised symbols kept per burst for the constellation plot.
+pub const TRACE_POINTS: usize = 2000;
+/// Samples either side of a burst's first-symbol instant kept for the sync-metric plot, in symbols.
+const SYNC_TRACE_SYMBOLS: usize = 16;
+
+/// Options of one analysis besides the profile (command-line overrides).
+#[derive(Debug, Clone, Default)]
+pub struct AnalyseOptions {
+    /// Sample format given on the command line (overrides the profile and the file).
+    pub format: Option<SampleFormat>,
+    /// Sample rate given on the command line, Hz.
+    pub sample_rate_hz: Option<f64>,
+    /// The command line, recorded in the report.
+    pub command: Vec<String>,
+}
+
+/// Everything prepared once per capture and shared by all bursts.
+struct Plan {
+    training: Vec<Cf32>,
+    known_before: Option<Vec<Cf32>>,
+    known_after: Option<Vec<Cf32>>,
+    before: usize,
+    after: usize,
+    constellation: Constellation,
+    burst_cfg: BurstConfig,
+    margin: usize,
+    sps: usize,
+    sample_rate_hz: f64,
+    symbol_rate_hz: f64,
+    center_freq_hz: Option<f64>,
+}
+
+fn usage(message: impl Into<String>) -> Error {
+    Error::Usage {
+        message: message.into(),
+    }
+}
+
+/// The capture format the profile asks for, converted to the capture layer's type.
+fn profile_format(profile: &ResolvedProfile) -> Result<Option<SampleFormat>, Error> {
+    let Some(f) = &profile.capture.format else {
+        return Ok(None);
+    };
+    let name = serde_json::to_value(f)
+        .ok()
+        .and_then(|v| v.as_str().map(str::to_string))
+        .unwrap_or_default();
+    name.parse::<SampleFormat>().map(Some).map_err(|_| {
+        usage(format!(
+            "profile: capture.format '{name}' is not a readable format"
+        ))
+    })
+}
+
+/// Open options for a capture analysed with `profile` and `opts`.
+pub fn open_options(
+    profile: &ResolvedProfile,
+    opts: &AnalyseOptions,
+) -> Result<OpenOptions, Error> {
+    Ok(OpenOptions {
+        format: match opts.format {
+            Some(f) => Some(f),
+            None => profile_format(profile)?,
+        },
+        sample_rate_hz: opts.sample_rate_hz.or(profile.capture.sample_rate_hz),
+        swap_iq: profile.capture.swap_iq,
+    })
+}
+
+fn burst_config(profile: &ResolvedProfile) -> BurstConfig {
+    let mut cfg = BurstConfig::default();
+    let fit = &profile.channel_fit;
+    let max_total = fit.max_total_taps.unwrap_or(16).max(1);
+    let span = match (fit.pre_cursor_taps, fit.post_cursor_taps) {
+        (TapCount::Fixed(pre), TapCount::Fixed(post)) => TapSpan::Fixed { pre, post },
+        (pre, post) => {
+            let cap = |t: TapCount, default: usize| match t {
+                TapCount::Fixed(n) => n,
+                TapCount::Auto => default,
+            };
+            let max_pre = cap(pre, (max_total / 4).clamp(1, 8));
+            let max_post = cap(post, (max_total / 2).clamp(1, 16));
+            TapSpan::Auto { max_pre, max_post }
+        }
+    };
+    cfg.channel = ChannelFitConfig {
+        span,
+        dc_offset: fit.dc_offset,
+        iq_imbalance: fit.iq_imbalance,
+        ..ChannelFitConfig::default()
+    };
+    let eq = &profile.equaliser;
+    cfg.ff_taps = eq.feedforward_taps.max(1);
+    cfg.fb_taps = eq.feedback_taps;
+    cfg.delay = match eq.delay {
+        Delay::Auto => None,
+        Delay::Fixed(d) => Some(d),
+    };
+    cfg.carrier.enabled = eq.carrier_refinement;
+    cfg.tracking = match eq.tracking {
+        Tracking::Off => TrackingConfig::default(),
+        Tracking::Lms { mu } => TrackingConfig {
+            mode: AdaptMode::Lms,
+            lms_step: mu as f32,
+            ..TrackingConfig::default()
+        },
+        Tracking::Rls { lambda } => TrackingConfig {
+            mode: AdaptMode::Rls,
+            rls_forgetting: lambda as f32,
+            ..TrackingConfig::default()
+        },
+    };
+    cfg
+}
+
+/// Name of the equaliser result the profile asks to report.
+fn chosen_name(profile: &ResolvedProfile) -> &'static str {
+    match (profile.equaliser.kind, profile.equaliser.tracking) {
+        (EqualiserKind::ZfDfe, _) => "zf-dfe",
+        (EqualiserKind::LinearMmse, _) => "linear-mmse",
+        (EqualiserKind::MmseDfe, Tracking::Off) => "mmse-dfe",
+        (EqualiserKind::MmseDfe, Tracking::Lms { .. }) => "mmse-dfe-lms",
+        (EqualiserKind::MmseDfe, Tracking::Rls { .. }) => "mmse-dfe-rls",
+    }
+}
+
+fn tracking_name(t: Tracking) -> &'static str {
+    match t {
+        Tracking::Off => "off",
+        Tracking::Lms { .. } => "lms",
+        Tracking::Rls { .. } => "rls",
+    }
+}
+
+impl Plan {
+    fn new(profile: &ResolvedProfile, capture: &Capture) -> Result<Plan, Error> {
+        let sample_rate_hz = capture.sample_rate_hz().ok_or_else(|| {
+            usage(format!(
+                "{}: sample rate unknown: give capture.sample_rate_hz in the profile, a SigMF sidecar, or --sample-rate",
+                capture.path().display()
+            ))
+        })?;
+        let sps = profile.samples_per_symbol;
+        let training = profile.training_symbols()?;
+        let payload = profile.payload_symbols()?;
+        let (known_before, known_after) = match payload {
+            Some(p) => (Some(p.before), Some(p.after)),
+            None => (None, None),
+        };
+        let burst_cfg = burst_config(profile);
+        let taps_span = match burst_cfg.channel.span {
+            TapSpan::Fixed { pre, post } => pre + post + 1,
+            TapSpan::Auto { max_pre, max_post } => max_pre + max_post + 1,
+        };
+        Ok(Plan {
+            training,
+            known_before,
+            known_after,
+            before: profile.payload.before_symbols,
+            after: profile.payload.after_symbols,
+            constellation: Constellation::new(profile.payload.modulation),
+            margin: burst_cfg.ff_taps + burst_cfg.fb_taps + taps_span + 4,
+            burst_cfg,
+            sps,
+            sample_rate_hz,
+            symbol_rate_hz: sample_rate_hz / sps as f64,
+            center_freq_hz: profile.capture.center_freq_hz.or(capture.center_freq_hz()),
+        })
+    }
+
+    fn frame_symbols(&self) -> usize {
+        self.before + self.training.len() + self.after
+    }
+}
+
+/// The synchroniser for a plan, with the threshold to use.
+fn synchroniser(profile: &ResolvedProfile, plan: &Plan) -> Result<Synchroniser, Error> {
+    let pulse = rrc_taps(profile.pulse.rolloff, profile.pulse.span_symbols, plan.sps);
+    let cfg = SyncConfig {
+        sps: plan.sps,
+        sample_rate_hz: plan.sample_rate_hz,
+        max_cfo_hz: profile
+            .search
+            .max_cfo_hz_at(plan.sample_rate_hz, plan.sps)
+            .min(0.25 * plan.symbol_rate_hz),
+        threshold: Some(profile.search.threshold),
+        min_spacing_samples: Some((plan.frame_symbols() * plan.sps).max(1)),
+        cfo_segments: 4,
+    };
+    Ok(Synchroniser::new(&plan.training, &pulse, cfg)?)
+}
+
+/// Analyse one capture (see the module documentation).
+///
+/// # Errors
+/// Unreadable capture, unusable profile, or a failure of a stage that is not a
+/// per-burst problem. A capture without training is not an error: its report has
+/// no bursts and the verdict `no-training`.
+pub fn analyse_capture(
+    path: &Path,
+    profile: &ResolvedProfile,
+    opts: &AnalyseOptions,
+) -> Result<Report, Error> {
+    let open = open_options(profile, opts)?;
+    let capture = Capture::open(path, &open)?;
+    let plan = Plan::new(profile, &capture)?;
+    let sync = synchroniser(profile, &plan)?;
+    let src = ChunkReader::new(capture.len(), |s, out: &mut [Cf32]| {
+        capture.read_into(s, out).map(|_| ())
+    });
+    let mut warnings = Vec::new();
+    if capture.trailing_bytes() > 0 {
+        warnings.push(Warning::new(
+            WarningCode::TrailingBytes,
+            format!(
+                "{} trailing bytes do not make a whole sample and were ignored",
+                capture.trailing_bytes()
+            ),
+        ));
+    }
+    let bursts: Vec<BurstReport> = if capture.len() < sync.min_capture_len() {
+        warnings.push(Warning::new(
+            WarningCode::NoTrainingFound,
+            format!(
+                "the capture holds {} samples, fewer than the {} the training block needs",
+                capture.len(),
+                sync.min_capture_len()
+            ),
+        ));
+        Vec::new()
+    } else {
+        let detections = sync.search_source(&src)?;
+        detections
+            .par_iter()
+            .enumerate()
+            .map(|(k, det)| {
+                let bs = sync.refine(&src, det)?;
+                analyse_burst(k, &bs, &plan, profile, &sync, &src, &capture)
+            })
+            .collect::<Result<Vec<_>, Error>>()?
+    };
+    if bursts.is_empty()
+        && !warnings
+            .iter()
+            .any(|w| w.code == WarningCode::NoTrainingFound)
+    {
+        warnings.push(Warning::new(
+            WarningCode::NoTrainingFound,
+            format!(
+                "no training block above the threshold {:.3}; check the profile's training and sample rate, or lower search.threshold",
+                sync.threshold()
+            ),
+        ));
+    }
+    let summary = summarise(&bursts);
+    let verdict = judge(profile, &bursts, &summary);
+    let profile_value =
+        serde_json::to_value(profile).map_err(|e| usage(format!("profile: {e}")))?;
+    let profile_sha = sha256_bytes(profile_value.to_string().as_bytes());
+    let size_bytes = capture.file_len_bytes();
+    let sha256 = sha256_file(path).map_err(|source| Error::Io {
+        path: path.to_path_buf(),
+        source,
+    })?;
+    Ok(Report {
+        schema: SCHEMA.to_string(),
+        tool: ToolInfo {
+            name: "iqaudit".into(),
+            version: env!("CARGO_PKG_VERSION").into(),
+        },
+        command: opts.command.clone(),
+        input: InputInfo {
+            path: path.display().to_string(),
+            size_bytes,
+            sha256,
+            format: capture.format_description(),
+            sample_rate_hz: plan.sample_rate_hz,
+            center_freq_hz: plan.center_freq_hz,
+            samples: capture.len() as u64,
+        },
+        profile: profile_value,
+        bursts,
+        summary,
+        verdict,
+        warnings,
+        provenance: Provenance {
+            tool_version: env!("CARGO_PKG_VERSION").into(),
+            profile_sha256: profile_sha,
+            format_override: opts.format.map(|f| f.name().to_string()),
+            sample_rate_override_hz: opts.sample_rate_hz,
+            threshold: sync.threshold(),
+            recheck: "iqaudit recheck REPORT.json".into(),
+        },
+    })
+}
+
+/// Indices (into the extracted vector) of the payload symbols, in payload order.
+fn payload_indices(plan: &Plan, offset: usize) -> impl Iterator<Item = usize> + '_ {
+    let before = offset - plan.before..offset;
+    let t_end = offset + plan.training.len();
+    before.chain(t_end..t_end + plan.after)
+}
+
+#[allow(clippy::too_many_arguments)]
+fn analyse_burst<S: SampleSource + ?Sized>(
+    index: usize,
+    bs: &BurstSync,
+    plan: &Plan,
+    profile: &ResolvedProfile,
+    sync: &Synchroniser,
+    src: &S,
+    capture: &Capture,
+) -> Result<BurstReport, Error> {
+    let mut warnings = Vec::new();
+    let l = plan.training.len();
+    let offset = plan.margin + plan.before;
+    let first = -((plan.before + plan.margin) as i64);
+    let last = (l + plan.after + plan.margin) as i64;
+    let mut y = vec![Cf32::new(0.0, 0.0); (last - first) as usize];
+    let span = sync.extract_symbols(src, bs, first..last, &mut y)?;
+    // Which payload symbols exist in the capture.
+    let avail = (span.available.start - first) as usize..(span.available.end - first) as usize;
+    let all_payload: Vec<usize> = payload_indices(plan, offset).collect();
+    let present: Vec<(usize, usize)> = all_payload
+        .iter()
+        .enumerate()
+        .filter(|(_, i)| avail.contains(i))
+        .map(|(p, &i)| (p, i))
+        .collect();
+    let truncated = present.len() < all_payload.len();
+    if truncated {
+        warnings.push(Warning::new(
+            WarningCode::BurstTruncated,
+            format!(
+                "the capture cuts this burst: {} of {} payload symbols present",
+                present.len(),
+                all_payload.len()
+            ),
+        ));
+    }
+
+    // Known symbols laid out like `y` (zeros in the margins).
+    let known: Option<Vec<Cf32>> = match (&plan.known_before, &plan.known_after) {
+        (Some(b), Some(a)) => {
+            let mut k = vec![Cf32::new(0.0, 0.0); y.len()];
+            k[offset - b.len()..offset].copy_from_slice(b);
+            k[offset..offset + l].copy_from_slice(&plan.training);
+            k[offset + l..offset + l + a.len()].copy_from_slice(a);
+            Some(k)
+        }
+        _ => None,
+    };
+    let view = BurstView {
+        y: &y,
+        training: &plan.training,
+        offset,
+        slicer: &plan.constellation,
+        known: known.as_deref(),
+    };
+    let out = process_burst(&view, &plan.burst_cfg)?;
+
+    // The reported equaliser: the profile's choice, or the MMSE-DFE if it refused.
+    let wanted = chosen_name(profile);
+    let (name, filters, eq) = match pick(&out, wanted) {
+        Some(r) => (wanted, r.0, r.1),
+        None => {
+            let why = match out.get(wanted).map(|r| &r.outcome) {
+                Some(Err(e)) => e.to_string(),
+                _ => "it did not run".to_string(),
+            };
+            warnings.push(Warning::new(
+                WarningCode::MainTapWeak,
+                format!("{wanted} refused ({why}); figures are from the mmse-dfe"),
+            ));
+            let (f, s) = pick(&out, "mmse-dfe").ok_or_else(|| {
+                usage(format!(
+                    "burst {index}: no equaliser could run on this burst ({why})"
+                ))
+            })?;
+            ("mmse-dfe", f, s)
+        }
+    };
+
+    // Figures of merit over the payload present.
+    let c = &plan.constellation;
+    let known_payload: Option<Vec<Cf32>> = known
+        .as_ref()
+        .map(|k| present.iter().map(|&(_, i)| k[i]).collect());
+    let z: Vec<Cf32> = present.iter().map(|&(_, i)| eq.soft[i]).collect();
+    let decided: Vec<Cf32> = present
+        .iter()
+        .map(|&(_, i)| c.points()[eq.labels[i]])
+        .collect();
+    let reference = known_payload.as_deref().unwrap_or(&decided);
+    let mut acc = EvmAccumulator::default();
+    acc.add(&z, reference, 0);
+    let fig = acc.figures();
+    let payload_numbers: Vec<usize> = present.iter().map(|&(p, _)| p).collect();
+
+    let (ser, ber, runs, wrong, propagation) = match &known_payload {
+        Some(kp) => {
+            let true_labels: Vec<usize> = kp.iter().map(|s| c.slice(*s)).collect();
+            let labels: Vec<usize> = present.iter().map(|&(_, i)| eq.labels[i]).collect();
+            let wrong: Vec<bool> = labels
+                .iter()
+                .zip(&true_labels)
+                .map(|(a, b)| a != b)
+                .collect();
+            let sym_err = wrong.iter().filter(|w| **w).count() as u64;
+            let bit_err: u64 = labels
+                .iter()
+                .zip(&true_labels)
+                .map(|(a, b)| u64::from((a ^ b).count_ones()))
+                .sum();
+            let n = labels.len() as u64;
+            let bits = n * c.bits_per_symbol() as u64;
+            let runs: Vec<_> = error_runs(wrong.iter().copied())
+                .into_iter()
+                .map(|mut r| {
+                    r.start = payload_numbers[r.start];
+                    r
+                })
+                .collect();
+            let genie_errors = pick(&out, "genie-mmse-dfe").map(|(_, g)| {
+                present
+                    .iter()
+                    .zip(&true_labels)
+                    .filter(|(&(_, i), t)| g.labels[i] != **t)
+                    .count() as u64
+            });
+            let dfe_errors = pick(&out, "mmse-dfe").map(|(_, d)| {
+                present
+                    .iter()
+                    .zip(&true_labels)
+                    .filter(|(&(_, i), t)| d.labels[i] != **t)
+                    .count() as u64
+            });
+            let prop = match (dfe_errors, genie_errors) {
+                (Some(d), Some(g)) => Some(ErrorPropagation::new(d, g)),
+                _ => None,
+            };
+            let wrong_idx: Vec<usize> = wrong
+                .iter()
+                .enumerate()
+                .filter(|(_, w)| **w)
+                .map(|(j, _)| payload_numbers[j])
+                .collect();
+            (
+                ErrorRate::new(sym_err, n, CONFIDENCE),
+                ErrorRate::new(bit_err, bits, CONFIDENCE),
+                runs,
+                wrong_idx,
+                prop,
+            )
+        }
+        None => (None, None, Vec::new(), Vec::new(), None),
+    };
+    if let Some(p) = &propagation {
+        if let Some(m) = p.multiplication {
+            if m > 2.0 && p.dfe_errors >= 10 {
+                warnings.push(Warning::new(
+                    WarningCode::ErrorPropagation,
+                    format!(
+                        "decision feedback multiplied the errors {:.1}× ({} against {} with true symbols fed back)",
+                        m, p.dfe_errors, p.genie_errors
+                    ),
+                ));
+            }
+        }
+    }
+
+    // Linear MMSE for comparison, with the same reference.
+    let linear_evm = pick(&out, "linear-mmse").and_then(|(_, s)| {
+        let zl: Vec<Cf32> = present.iter().map(|&(_, i)| s.soft[i]).collect();
+        let refl: Vec<Cf32> = match &known_payload {
+            Some(k) => k.clone(),
+            None => present
+                .iter()
+                .map(|&(_, i)| c.points()[s.labels[i]])
+                .collect(),
+        };
+        crate::report::metrics::evm(&zl, &refl).map(|f| f.evm_rms_percent)
+    });
+
+    let ch = &out.channel;
+    let channel = channel_report(ch);
+    let main_power = ch.taps[ch.pre].norm_sqr();
+    let strongest = ch.taps.iter().map(|t| t.norm_sqr()).fold(0.0, f64::max);
+    if main_power < 0.5 * strongest {
+        warnings.push(Warning::new(
+            WarningCode::MainTapWeak,
+            format!(
+                "the main tap is {:.1} dB below the strongest tap; consider more pre-cursor taps",
+                10.0 * (strongest / main_power.max(1e-300)).log10()
+            ),
+        ));
+    }
+    if bs.metric < 1.25 * sync.threshold() {
+        warnings.push(Warning::new(
+            WarningCode::WeakCorrelation,
+            format!(
+                "correlation peak {:.3} is close to the threshold {:.3}",
+                bs.metric,
+                sync.threshold()
+            ),
+        ));
+    }
+    region_warnings(bs, plan, capture, &mut warnings)?;
+
+    let refined_hz = out.carrier.refined_cfo_cycles_per_symbol * plan.symbol_rate_hz;
+    let cfo_hz = bs.cfo_hz + refined_hz;
+    let n_payload = present.len();
+    let metrics = BurstMetrics {
+        reference: if known_payload.is_some() {
+            "known-payload".into()
+        } else {
+            "decisions".into()
+        },
+        symbols: n_payload,
+        evm_rms_percent: fig.map(|f| f.evm_rms_percent).unwrap_or(0.0),
+        evm_rms_db: fig.and_then(|f| f.evm_rms_db),
+        evm_peak_percent: fig.map(|f| f.evm_peak_percent).unwrap_or(0.0),
+        evm_peak_symbol: fig
+            .map(|f| payload_numbers.get(f.evm_peak_index).copied().unwrap_or(0))
+            .unwrap_or(0),
+        mer_db: fig.and_then(|f| f.mer_db),
+        ser,
+        ber,
+        run_length_histogram: run_length_histogram(&runs),
+        error_runs: runs,
+        error_propagation: propagation,
+    };
+    let trace = trace(bs, sync, src, plan, &z, &payload_numbers, reference, wrong)?;
+    Ok(BurstReport {
+        index,
+        start_sample: bs.start_sample.max(0) as u64,
+        timing_frac_samples: bs.timing_frac,
+        sync_metric: bs.metric,
+        cfo_hz,
+        cfo_training_hz: bs.cfo_hz,
+        cfo_ppm: plan
+            .center_freq_hz
+            .filter(|f| *f > 0.0)
+            .map(|f| cfo_hz / f * 1e6),
+        phase_rad: bs.phase_rad,
+        truncated,
+        payload_symbols: n_payload,
+        channel,
+        equaliser: EqualiserReport {
+            kind: name.to_string(),
+            feedforward_taps: filters.ff.len(),
+            feedback_taps: filters.fb.len(),
+            decision_delay: filters.delay,
+            predicted_snr_db: finite(filters.predicted_snr_unbiased_db),
+            achieved_snr_db: metrics.mer_db,
+            linear_mmse_evm_percent: linear_evm,
+            tracking: tracking_name(profile.equaliser.tracking).to_string(),
+        },
+        metrics,
+        trace,
+        warnings,
+    })
+}
+
+fn finite(x: f64) -> Option<f64> {
+    x.is_finite().then_some(x)
+}
+
+/// The filters and symbols of the equaliser called `name`, if it ran.
+fn pick<'a>(
+    out: &'a BurstOutput,
+    name: &str,
+) -> Option<(&'a crate::equalise::DfeFilters, &'a EqualisedSymbols)> {
+    match out.get(name).map(|r| &r.outcome) {
+        Some(Ok((f, s))) => Some((f, s)),
+        _ => None,
+    }
+}
+
+/// Channel figures for the report.
+fn channel_report(ch: &crate::channel::ChannelEstimate) -> ChannelReport {
+    let main = ch.taps[ch.pre].norm().max(1e-300);
+    let powers: Vec<f64> = ch.taps.iter().map(|t| t.norm_sqr()).collect();
+    let total: f64 = powers.iter().sum::<f64>().max(1e-300);
+    let mean: f64 = powers
+        .iter()
+        .enumerate()
+        .map(|(i, p)| i as f64 * p)
+        .sum::<f64>()
+        / total;
+    let spread = (powers
+        .iter()
+        .enumerate()
+        .map(|(i, p)| (i as f64 - mean).powi(2) * p)
+        .sum::<f64>()
+        / total)
+        .sqrt();
+    const GRID: usize = 128;
+    let response_db = (0..=GRID)
+        .map(|g| {
+            let f = g as f64 / GRID as f64 - 0.5;
+            let h: Cf64 = ch
+                .taps
+                .iter()
+                .enumerate()
+                .map(|(i, t)| {
+                    let k = i as f64 - ch.pre as f64;
+                    t * Cf64::from_polar(1.0, -2.0 * std::f64::consts::PI * f * k)
+                })
+                .sum();
+            [f, 20.0 * h.norm().max(1e-12).log10()]
+        })
+        .collect();
+    ChannelReport {
+        taps: ch.taps.iter().map(|t| [t.re, t.im]).collect(),
+        taps_db: ch
+            .taps
+            .iter()
+            .map(|t| 20.0 * (t.norm().max(1e-300) / main).log10())
+            .collect(),
+        main_index: ch.pre,
+        pre_cursor: ch.pre,
+        post_cursor: ch.post,
+        significant_taps: ch.significant_taps,
+        delay_spread_symbols: spread,
+        noise_variance: ch.noise_var,
+        snr_db: ch.snr_db,
+        dc: ch.dc.map(|d| [d.re, d.im]),
+        image_level_db: ch.conj_taps.as_ref().map(|g| {
+            let gp: f64 = g.iter().map(|v| v.norm_sqr()).sum();
+            10.0 * (gp.max(1e-300) / total).log10()
+        }),
+        span_choice: match ch.span_choice {
+            SpanChoice::Fixed => "fixed".into(),
+            SpanChoice::Mdl { .. } => "mdl".into(),
+        },
+        response_db,
+    }
+}
+
+/// Clipping, non-finite samples and DC over the burst's own samples.
+fn region_warnings(
+    bs: &BurstSync,
+    plan: &Plan,
+    capture: &Capture,
+    warnings: &mut Vec<Warning>,
+) -> Result<(), Error> {
+    let sps = plan.sps as i64;
+    let lo = (bs.start_sample - plan.before as i64 * sps).max(0) as usize;
+    let hi = ((bs.start_sample + (plan.training.len() + plan.after) as i64 * sps).max(0) as usize)
+        .min(capture.len());
+    if hi <= lo {
+        return Ok(());
+    }
+    let mut buf = vec![Cf32::new(0.0, 0.0); hi - lo];
+    let stats = capture.read_into(lo, &mut buf)?;
+    if stats.clipped > 0 {
+        warnings.push(Warning::new(
+            WarningCode::Clipping,
+            format!(
+                "{} of the burst's {} samples sit at full scale; reduce the receiver gain",
+                stats.clipped,
+                buf.len()
+            ),
+        ));
+    }
+    if stats.non_finite > 0 {
+        warnings.push(Warning::new(
+            WarningCode::NonFiniteSamples,
+            format!(
+                "{} NaN or infinite samples in the burst were replaced by 0",
+                stats.non_finite
+            ),
+        ));
+    }
+    let n = buf.len() as f64;
+    let (mut sum, mut power) = (Cf64::new(0.0, 0.0), 0.0f64);
+    for s in &buf {
+        sum += Cf64::new(f64::from(s.re), f64::from(s.im));
+        power += f64::from(s.norm_sqr());
+    }
+    let dc = sum / n;
+    let mean_power = power / n;
+    if mean_power > 0.0 && dc.norm_sqr() / mean_power > 0.01 {
+        warnings.push(Warning::new(
+            WarningCode::StrongDc,
+            format!(
+                "DC offset {:.1} dB relative to the burst power; enable channel_fit.dc_offset",
+                10.0 * (dc.norm_sqr() / mean_power).log10()
+            ),
+        ));
+    }
+    Ok(())
+}
+
+#[allow(clippy::too_many_arguments)]
+fn trace<S: SampleSource + ?Sized>(
+    bs: &BurstSync,
+    sync: &Synchroniser,
+    src: &S,
+    plan: &Plan,
+    z: &[Cf32],
+    numbers: &[usize],
+    reference: &[Cf32],
+    wrong: Vec<usize>,
+) -> Result<Trace, Error> {
+    let n = z.len();
+    let stride = n.div_ceil(TRACE_POINTS).max(1);
+    let constellation: Vec<[f64; 3]> = (0..n)
+        .step_by(stride)
+        .map(|j| [numbers[j] as f64, f64::from(z[j].re), f64::from(z[j].im)])
+        .collect();
+    let shown: std::collections::BTreeSet<usize> =
+        constellation.iter().map(|p| p[0] as usize).collect();
+    let wrong: Vec<usize> = wrong.into_iter().filter(|w| shown.contains(w)).collect();
+    let block = (n / 200).max(16);
+    let mut evm_blocks = Vec::new();
+    let mut j = 0;
+    while j < n {
+        let e = (j + block).min(n);
+        if let Some(f) = crate::report::metrics::evm(&z[j..e], &reference[j..e]) {
+            evm_blocks.push([numbers[j] as f64, f.evm_rms_percent]);
+        }
+        j = e;
+    }
+    let half = SYNC_TRACE_SYMBOLS * plan.sps;
+    let centre = bs.start_sample.max(0) as usize;
+    let from = centre.saturating_sub(half);
+    let values = sync.metric(src, from..centre + half + 1)?;
+    let sync_metric = values
+        .iter()
+        .enumerate()
+        .map(|(i, v)| [(from + i) as f64 - centre as f64, *v])
+        .collect();
+    Ok(Trace {
+        constellation,
+        wrong,
+        evm_blocks,
+        sync_metric,
+    })
+}
+
+fn summarise(bursts: &[BurstReport]) -> Summary {
+    let mut s = Summary {
+        bursts: bursts.len(),
+        ..Summary::default()
+    };
+    if bursts.is_empty() {
+        return s;
+    }
+    // Combine per-burst EVM exactly: Σ|e|² = EVM²·Σ|s|², Σ|s|² ≈ n·P (weights by symbols).
+    let (mut err, mut refp, mut worst) = (0.0f64, 0.0f64, 0.0f64);
+    for b in bursts {
+        let n = b.metrics.symbols as f64;
+        let e = (b.metrics.evm_rms_percent / 100.0).powi(2);
+        err += e * n;
+        refp += n;
+        worst = worst.max(b.metrics.evm_rms_percent);
+    }
+    if refp > 0.0 {
+        let evm = (err / refp).sqrt();
+        s.evm_rms_percent = Some(100.0 * evm);
+        s.mer_db = (evm > 0.0).then(|| -20.0 * evm.log10());
+    }
+    s.evm_worst_percent = Some(worst);
+    let total = |f: &dyn Fn(&BurstReport) -> Option<ErrorRate>| -> Option<ErrorRate> {
+        let mut any = false;
+        let (mut e, mut t) = (0u64, 0u64);
+        for b in bursts {
+            if let Some(r) = f(b) {
+                any = true;
+                e += r.errors;
+                t += r.trials;
+            }
+        }
+        if any {
+            ErrorRate::new(e, t, CONFIDENCE)
+        } else {
+            None
+        }
+    };
+    s.ser = total(&|b| b.metrics.ser);
+    s.ber = total(&|b| b.metrics.ber);
+    s.cfo_abs_max_hz = bursts.iter().map(|b| b.cfo_hz.abs()).reduce(f64::max);
+    s.longest_error_run = bursts
+        .iter()
+        .flat_map(|b| b.metrics.error_runs.iter().map(|r| r.length))
+        .max()
+        .unwrap_or(0);
+    s
+}
+
+fn judge(profile: &ResolvedProfile, bursts: &[BurstReport], summary: &Summary) -> Verdict {
+    if bursts.is_empty() {
+        return Verdict {
+            result: VerdictResult::NoTraining,
+            checks: Vec::new(),
+        };
+    }
+    let lim = &profile.limits;
+    let mut checks = Vec::new();
+    let mut check = |name: &str, threshold: Option<f64>, measured: Option<f64>, upper: bool| {
+        if let (Some(t), Some(m)) = (threshold, measured) {
+            checks.push(LimitCheck {
+                limit: name.to_string(),
+                threshold: t,
+                measured: m,
+                pass: if upper { m <= t } else { m >= t },
+            });
+        }
+    };
+    check(
+        "limits.evm_rms_percent_max",
+        lim.evm_rms_percent_max,
+        summary.evm_worst_percent,
+        true,
+    );
+    let worst_mer = bursts
+        .iter()
+        .map(|b| b.metrics.mer_db.unwrap_or(f64::INFINITY))
+        .reduce(f64::min);
+    check("limits.mer_db_min", lim.mer_db_min, worst_mer, false);
+    check(
+        "limits.ser_max",
+        lim.ser_max,
+        summary.ser.map(|r| r.rate),
+        true,
+    );
+    check(
+        "limits.cfo_hz_abs_max",
+        lim.cfo_hz_abs_max,
+        summary.cfo_abs_max_hz,
+        true,
+    );
+    let result = if checks.iter().all(|c| c.pass) {
+        VerdictResult::Pass
+    } else {
+        VerdictResult::Fail
+    };
+    Verdict { result, checks }
+}
+
+/// Where `recheck` finds the capture a report names: the recorded path as given
+/// (relative to the working directory), else relative to the report's folder.
+pub fn locate_input(report_path: &Path, recorded: &str) -> PathBuf {
+    let p = PathBuf::from(recorded);
+    if p.exists() || p.is_absolute() {
+        return p;
+    }
+    match report_path.parent() {
+        Some(dir) if dir.join(&p).exists() => dir.join(p),
+        _ => p,
+    }
+}
+
+/// What `recheck` found.
+#[derive(Debug, Clone)]
+pub struct RecheckResult {
+    /// The capture that was re-analysed.
+    pub input: PathBuf,
+    /// Figures that did not reproduce (empty when every figure did).
+    pub differences: Vec<crate::report::compare::Difference>,
+    /// Number of numeric figures compared.
+    pub figures: usize,
+}
+
+fn count_numbers(v: &serde_json::Value) -> usize {
+    match v {
+        serde_json::Value::Number(_) => 1,
+        serde_json::Value::Array(a) => a.iter().map(count_numbers).sum(),
+        serde_json::Value::Object(o) => o.values().map(count_numbers).sum(),
+        _ => 0,
+    }
+}
+
+/// Re-run the analysis recorded in a report and compare every figure exactly.
+///
+/// # Errors
+/// [`Error::Report`] when the report cannot be read or is not an
+/// `iqaudit-report/1` document; [`Error::Io`] when the capture is missing;
+/// [`Error::InputChanged`] when its SHA-256 differs from the recorded one; and
+/// any error of [`analyse_capture`].
+pub fn recheck(report_path: &Path) -> Result<RecheckResult, Error> {
+    let bad = |message: String| Error::Report {
+        path: report_path.to_path_buf(),
+        message,
+    };
+    let text = std::fs::read_to_string(report_path).map_err(|source| Error::Io {
+        path: report_path.to_path_buf(),
+        source,
+    })?;
+    let recorded: serde_json::Value =
+        serde_json::from_str(&text).map_err(|e| bad(format!("not valid JSON ({e})")))?;
+    let schema = recorded
+        .get("schema")
+        .and_then(|s| s.as_str())
+        .unwrap_or("");
+    if schema != SCHEMA {
+        return Err(bad(format!(
+            "schema is '{schema}', expected '{SCHEMA}' (not an iqaudit report?)"
+        )));
+    }
+    let report: Report = serde_json::from_value(recorded.clone())
+        .map_err(|e| bad(format!("does not match the {SCHEMA} schema: {e}")))?;
+    if !crate::report::provenance::is_sha256_hex(&report.input.sha256) {
+        return Err(bad(format!(
+            "input.sha256 '{}' is not a 64-digit hex SHA-256",
+            report.input.sha256
+        )));
+    }
+    let input = locate_input(report_path, &report.input.path);
+    let found = sha256_file(&input).map_err(|source| Error::Io {
+        path: input.clone(),
+        source,
+    })?;
+    if !found.eq_ignore_ascii_case(&report.input.sha256) {
+        return Err(Error::InputChanged {
+            path: input,
+            expected: report.input.sha256.clone(),
+            found,
+        });
+    }
+    let profile: ResolvedProfile = serde_json::from_value(report.profile.clone())
+        .map_err(|e| bad(format!("the recorded profile is not usable: {e}")))?;
+    let format = match &report.provenance.format_override {
+        Some(name) => Some(name.parse::<SampleFormat>().map_err(|_| {
+            bad(format!(
+                "provenance.format_override '{name}' is not a format"
+            ))
+        })?),
+        None => None,
+    };
+    let opts = AnalyseOptions {
+        format,
+        sample_rate_hz: report.provenance.sample_rate_override_hz,
+        command: report.command.clone(),
+    };
+    let mut again = analyse_capture(&input, &profile, &opts)?;
+    again.input.path = report.input.path.clone();
+    let again = serde_json::to_value(&again).map_err(|e| bad(e.to_string()))?;
+    let differences = crate::report::compare::differences(&recorded, &again, &["command"]);
+    Ok(RecheckResult {
+        input,
+        differences,
+        figures: count_numbers(&recorded),
+    })
+}

@@ -1,0 +1,209 @@
+//! `iqaudit analyse` / `analyze` and `iqaudit recheck`: argument types and the
+//! thin glue that turns them into library calls and output files.
+
+use std::io::{IsTerminal, Write};
+use std::path::{Path, PathBuf};
+
+use clap::Args;
+use iqaudit::analyse::{analyse_capture, recheck, AnalyseOptions};
+use iqaudit::profile::load_profile;
+use iqaudit::report::plots::write_plots;
+use iqaudit::report::schema::{Report, VerdictResult};
+use iqaudit::report::write::{ensure_not_an_input, write_atomic};
+use iqaudit::{CaptureError, Constellation, Error, SampleFormat};
+
+use super::Outcome;
+
+/// Arguments of `iqaudit analyse`.
+#[derive(Debug, Args)]
+pub struct AnalyseArgs {
+    /// The capture file (raw, WAV, or SigMF .sigmf-data/.sigmf-meta).
+    pub capture: PathBuf,
+
+    /// Link profile (JSON). Default: CAPTURE.profile.json beside the capture.
+    ///
+    /// The profile says how the signal was built: samples per symbol, pulse,
+    /// training block, payload, equaliser settings, search settings and limits.
+    /// `iqaudit profile new` prints a complete example.
+    #[arg(long, short = 'p', value_name = "P")]
+    pub profile: Option<PathBuf>,
+
+    /// Write the JSON report here (atomically; never over the capture).
+    #[arg(long, short = 'r', value_name = "R.json")]
+    pub report: Option<PathBuf>,
+
+    /// Write SVG plots and an offline index.html into this folder.
+    #[arg(long, value_name = "DIR")]
+    pub plots: Option<PathBuf>,
+
+    /// Print the JSON report on stdout instead of the summary.
+    #[arg(long)]
+    pub json: bool,
+
+    /// Raw sample format, overriding the profile, a SigMF sidecar and the extension.
+    ///
+    /// One of the SigMF datatype names: cf32_le, cf32_be, cf64_le, ci16_le,
+    /// ci16_be, ci8, cu8.
+    #[arg(long, value_name = "F")]
+    pub format: Option<String>,
+
+    /// Sample rate in Hz, overriding the profile and the file.
+    #[arg(long, value_name = "HZ", value_parser = super::parse_rate)]
+    pub sample_rate: Option<f64>,
+
+    /// Worker threads (default: all cores). Results are identical for any value.
+    #[arg(long, short = 'j', value_name = "N")]
+    pub jobs: Option<usize>,
+}
+
+/// Arguments of `iqaudit recheck`.
+#[derive(Debug, Args)]
+pub struct RecheckArgs {
+    /// A report written by `iqaudit analyse --report`.
+    pub report: PathBuf,
+}
+
+/// `CAPTURE.profile.json` beside the capture.
+pub fn default_profile_path(capture: &Path) -> PathBuf {
+    let mut s = capture.as_os_str().to_owned();
+    s.push(".profile.json");
+    PathBuf::from(s)
+}
+
+fn outcome_of(report: &Report) -> Outcome {
+    match report.verdict.result {
+        VerdictResult::Pass => Outcome::Ok,
+        VerdictResult::Fail => Outcome::LimitFailed,
+        VerdictResult::NoTraining => Outcome::NoTrainingFound,
+    }
+}
+
+fn stdout_err(source: std::io::Error) -> Error {
+    Error::Io {
+        path: PathBuf::from("<stdout>"),
+        source,
+    }
+}
+
+/// Fail early when an output could not be written or would replace the capture.
+fn check_output(path: &Path, capture: &Path) -> Result<(), Error> {
+    ensure_not_an_input(path, &[capture])?;
+    let dir = match path.parent() {
+        Some(d) if !d.as_os_str().is_empty() => d,
+        _ => Path::new("."),
+    };
+    if !dir.is_dir() {
+        return Err(Error::Usage {
+            message: format!(
+                "{}: the folder for this output does not exist",
+                path.display()
+            ),
+        });
+    }
+    Ok(())
+}
+
+/// Run `iqaudit analyse`.
+pub fn run_analyse(args: &AnalyseArgs, argv: &[String]) -> Result<Outcome, Error> {
+    let profile_path = args
+        .profile
+        .clone()
+        .unwrap_or_else(|| default_profile_path(&args.capture));
+    if args.profile.is_none() && !profile_path.exists() {
+        return Err(Error::Usage {
+            message: format!(
+                "{}: no profile given and {} does not exist; write one with `iqaudit profile new > {}` and edit it, or pass --profile",
+                args.capture.display(),
+                profile_path.display(),
+                profile_path.display()
+            ),
+        });
+    }
+    let format = match &args.format {
+        None => None,
+        Some(name) => {
+            Some(
+                name.parse::<SampleFormat>()
+                    .map_err(|e| CaptureError::BadFormatName {
+                        path: args.capture.clone(),
+                        found: e.found,
+                        accepted: e.accepted,
+                    })?,
+            )
+        }
+    };
+    if let Some(r) = &args.report {
+        check_output(r, &args.capture)?;
+    }
+    if let Some(d) = &args.plots {
+        ensure_not_an_input(d, &[&args.capture])?;
+    }
+    let profile = load_profile(&profile_path)?;
+    let opts = AnalyseOptions {
+        format,
+        sample_rate_hz: args.sample_rate,
+        command: argv.to_vec(),
+    };
+    let run = || analyse_capture(&args.capture, &profile, &opts);
+    let report = match args.jobs {
+        Some(n) => rayon::ThreadPoolBuilder::new()
+            .num_threads(n.max(1))
+            .build()
+            .map_err(|e| Error::Usage {
+                message: format!("--jobs {n}: cannot start the worker threads ({e})"),
+            })?
+            .install(run)?,
+        None => run()?,
+    };
+    let json = serde_json::to_string_pretty(&report).map_err(|e| stdout_err(e.into()))? + "\n";
+    if let Some(r) = &args.report {
+        write_atomic(r, json.as_bytes())?;
+    }
+    if let Some(d) = &args.plots {
+        let ideal = Constellation::new(profile.payload.modulation);
+        write_plots(&report, ideal.points(), report.provenance.threshold, d)?;
+    }
+    let mut out = std::io::stdout().lock();
+    if args.json {
+        out.write_all(json.as_bytes()).map_err(stdout_err)?;
+    } else {
+        let colour = std::io::stdout().is_terminal()
+            && std::env::var_os("NO_COLOR").is_none()
+            && std::env::var("TERM").map(|t| t != "dumb").unwrap_or(true);
+        out.write_all(iqaudit::report::text::render(&report, colour).as_bytes())
+            .map_err(stdout_err)?;
+    }
+    out.flush().map_err(stdout_err)?;
+    Ok(outcome_of(&report))
+}
+
+/// Run `iqaudit recheck`.
+pub fn run_recheck(args: &RecheckArgs) -> Result<Outcome, Error> {
+    let r = recheck(&args.report)?;
+    let mut out = std::io::stdout().lock();
+    let text = if r.differences.is_empty() {
+        format!(
+            "every figure reproduces: {} numbers in {} match a fresh analysis of {}\n",
+            r.figures,
+            args.report.display(),
+            r.input.display()
+        )
+    } else {
+        let mut s = format!(
+            "{} figure(s) in {} do not reproduce:\n",
+            r.differences.len(),
+            args.report.display()
+        );
+        for d in &r.differences {
+            s.push_str(&format!("  {d}\n"));
+        }
+        s
+    };
+    out.write_all(text.as_bytes()).map_err(stdout_err)?;
+    out.flush().map_err(stdout_err)?;
+    Ok(if r.differences.is_empty() {
+        Outcome::Ok
+    } else {
+        Outcome::Differs
+    })
+}

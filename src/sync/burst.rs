@@ -1,0 +1,196 @@
+//! Per-burst refinement and symbol extraction.
+//!
+//! Takes in: a [`SampleSource`], a [`Detection`] from the search, or a [`BurstSync`].
+//! Gives out: [`BurstSync`] (fractional timing, CFO, phase) and matched-filtered,
+//! timing- and CFO-corrected symbol-rate samples for a range of symbol indices
+//! (0 = first training symbol, negative before it).
+//!
+//! A symbol is *available* when its instant lies inside the capture
+//! (`0 ≤ t₀ + k·sps ≤ len − 1`). Samples the matched filter or the interpolator need
+//! beyond either end of the capture are taken as zero, so the outermost symbols of a
+//! burst that touches a capture edge are computed with part of their pulse missing.
+use std::ops::Range;
+
+use super::timing::{best_instant, interpolate, SINC_HALF};
+use super::{
+    cfo, read_padded, rotation, BurstSync, Detection, SampleSource, SymbolSpan, SyncError,
+    Synchroniser,
+};
+use crate::signal::rrc::matched_filter_into;
+use crate::{Cf32, Cf64};
+
+/// Symbols processed per piece in [`Synchroniser::extract_symbols`] (bounds memory).
+const EXTRACT_PIECE_SYMBOLS: i64 = 4096;
+
+impl Synchroniser {
+    /// Matched-filter outputs centred on capture samples `first .. first + count`, from
+    /// samples de-rotated by `exp(−j2π·f·(n − t_ref))` (`f` in cycles/sample).
+    fn mf_region<S: SampleSource + ?Sized>(
+        &self,
+        src: &S,
+        first: i64,
+        count: usize,
+        f: f64,
+        t_ref: f64,
+    ) -> Result<Vec<Cf32>, SyncError> {
+        let d = (self.pulse.len() - 1) / 2;
+        let mut x = vec![Cf32::new(0.0, 0.0); count + self.pulse.len() - 1];
+        let start = first - d as i64;
+        read_padded(src, start, &mut x)?;
+        for (i, v) in x.iter_mut().enumerate() {
+            *v *= rotation(-f, (start + i as i64) as f64 - t_ref);
+        }
+        let mut y = vec![Cf32::new(0.0, 0.0); x.len()];
+        matched_filter_into(&x, &self.pulse, &mut y);
+        y.truncate(d + count);
+        y.drain(..d);
+        Ok(y)
+    }
+
+    /// Refine a detection: coarse CFO from segment phases, fractional timing, fine CFO
+    /// (Kay) and carrier phase. See the module docs of [`crate::sync`].
+    pub fn refine<S: SampleSource + ?Sized>(
+        &self,
+        src: &S,
+        det: &Detection,
+    ) -> Result<BurstSync, SyncError> {
+        let fs = self.cfg.sample_rate_hz;
+        let sps = self.cfg.sps;
+        let n0 = det.start_sample as i64;
+        let f_h = det.cfo_hypothesis_hz / fs;
+
+        // Coarse: segment correlations at the detected lag against the hypothesis reference.
+        let l = self.reference.len();
+        let mut x = vec![Cf32::new(0.0, 0.0); l];
+        read_padded(src, n0 - self.head as i64, &mut x)?;
+        let s = self.cfg.cfo_segments.min(l).max(1);
+        let seg = l / s;
+        let segs: Vec<Cf64> = (0..s)
+            .map(|j| {
+                (j * seg..(j + 1) * seg)
+                    .map(|m| {
+                        let r = self.reference[m] * rotation(f_h, m as f64);
+                        let p = r.conj() * x[m];
+                        Cf64::new(f64::from(p.re), f64::from(p.im))
+                    })
+                    .sum()
+            })
+            .collect();
+        let f_coarse = f_h + cfo::segment_frequency(&segs, seg as f64);
+
+        // Region of matched-filter outputs covering the training ± margin.
+        let n = self.training.len();
+        let margin = (sps + 2 + SINC_HALF) as i64;
+        let first = n0 - margin;
+        let count = (n - 1) * sps + 2 * margin as usize + 1;
+        let mut f = f_coarse;
+        let mut t0 = n0 as f64;
+        let mut radius = sps;
+        for _ in 0..2 {
+            let y = self.mf_region(src, first, count, f, t0)?;
+            let pos = best_instant(&y, &self.training, sps, t0 - first as f64, radius);
+            t0 = first as f64 + pos;
+            let u: Vec<Cf64> = self
+                .training
+                .iter()
+                .enumerate()
+                .map(|(k, tk)| {
+                    let z = interpolate(&y, pos + (k * sps) as f64) * tk.conj();
+                    Cf64::new(f64::from(z.re), f64::from(z.im))
+                })
+                .collect();
+            f += cfo::kay_frequency(&u) / (std::f64::consts::TAU * sps as f64);
+            radius = 1;
+        }
+        // Final: re-time once with the fine CFO, then phase and gain at t0.
+        let y = self.mf_region(src, first, count, f, t0)?;
+        let pos = best_instant(&y, &self.training, sps, t0 - first as f64, 1);
+        t0 = first as f64 + pos;
+        let y = self.mf_region(src, first, count, f, t0)?;
+        let pos = t0 - first as f64;
+        let corr: Cf64 = self
+            .training
+            .iter()
+            .enumerate()
+            .map(|(k, tk)| {
+                let z = interpolate(&y, pos + (k * sps) as f64) * tk.conj();
+                Cf64::new(f64::from(z.re), f64::from(z.im))
+            })
+            .sum();
+        let t_energy: f64 = self.training.iter().map(|t| f64::from(t.norm_sqr())).sum();
+        let start_sample = (t0 + 0.5).floor() as i64;
+        let len = src.len() as f64;
+        let spsf = sps as f64;
+        let k_lo = (-t0 / spsf).ceil() as i64;
+        let k_hi = ((len - 1.0 - t0) / spsf).floor() as i64 + 1;
+        Ok(BurstSync {
+            start_sample,
+            timing_frac: t0 - start_sample as f64,
+            metric: det.metric,
+            cfo_hz: f * fs,
+            cfo_coarse_hz: f_coarse * fs,
+            phase_rad: corr.arg(),
+            training_gain: corr.norm() / t_energy,
+            symbols_in_capture: k_lo..k_hi.max(k_lo),
+        })
+    }
+
+    /// Matched-filtered, timing- and CFO-corrected symbol-rate samples for symbol indices
+    /// `symbols` (0 = first training symbol): `out[i]` is symbol `symbols.start + i`,
+    /// sampled at `t₀ + k·sps` after multiplying the capture by `exp(−j2π·cfo·(n−t₀)/fs)`.
+    /// Symbols outside the capture are written as 0 and excluded from the returned
+    /// [`SymbolSpan::available`] (a truncated burst is processed as far as it goes).
+    ///
+    /// # Panics
+    /// If `out.len()` differs from the length of `symbols` (or `symbols` is reversed).
+    pub fn extract_symbols<S: SampleSource + ?Sized>(
+        &self,
+        src: &S,
+        burst: &BurstSync,
+        symbols: Range<i64>,
+        out: &mut [Cf32],
+    ) -> Result<SymbolSpan, SyncError> {
+        assert!(symbols.start <= symbols.end, "reversed symbol range");
+        assert_eq!(
+            out.len() as i64,
+            symbols.end - symbols.start,
+            "output length must match the symbol range"
+        );
+        out.fill(Cf32::new(0.0, 0.0));
+        let a = symbols.start.max(burst.symbols_in_capture.start);
+        let b = symbols.end.min(burst.symbols_in_capture.end).max(a);
+        let t0 = burst.instant();
+        let f = burst.cfo_hz / self.cfg.sample_rate_hz;
+        let spsf = self.cfg.sps as f64;
+        let h = SINC_HALF as i64;
+        let mut k = a;
+        while k < b {
+            let k_end = (k + EXTRACT_PIECE_SYMBOLS).min(b);
+            let t_first = t0 + k as f64 * spsf;
+            let t_last = t0 + (k_end - 1) as f64 * spsf;
+            let first = t_first.floor() as i64 - h;
+            let count = (t_last.floor() as i64 + h + 1 - first) as usize;
+            let y = self.mf_region(src, first, count, f, t0)?;
+            for kk in k..k_end {
+                let t = t0 + kk as f64 * spsf - first as f64;
+                out[(kk - symbols.start) as usize] = interpolate(&y, t);
+            }
+            k = k_end;
+        }
+        Ok(SymbolSpan {
+            requested: symbols,
+            available: a..b,
+        })
+    }
+
+    /// Convenience: search, refine every detection, in capture order.
+    pub fn synchronise<S: SampleSource + ?Sized>(
+        &self,
+        src: &S,
+    ) -> Result<Vec<BurstSync>, SyncError> {
+        self.search_source(src)?
+            .iter()
+            .map(|d| self.refine(src, d))
+            .collect()
+    }
+}

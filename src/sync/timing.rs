@@ -1,0 +1,171 @@
+//! Fractional-delay interpolation and the fractional timing search.
+//!
+//! Takes in: complex samples ([`Cf32`]) at the capture rate, real pulse taps (odd
+//! length, centre tap at `(len − 1)/2`), training symbols.
+//! Gives out: values of matched-filter outputs (computed with
+//! [`crate::signal::rrc::matched_filter_into`]) at fractional instants (windowed-sinc
+//! interpolation), and the fractional instant (in samples)
+//! that maximises the training correlation `|Σ_k conj(t_k)·y(τ + k·sps)|²`.
+//!
+//! Interpolator: a 16-tap Blackman-windowed sinc, `y(n + μ) = Σ_{i=−7}^{8} y[n+i]·
+//! sinc(μ − i)·w(μ − i)`. The matched-filter output of an RRC link at `sps ≥ 2`
+//! occupies `|f| ≤ (1+β)/(2·sps) ≤ 0.25` cycles/sample, where this kernel's error is
+//! below −60 dB (measured in the tests against an exactly band-limited signal), far
+//! inside the 0.05-sample timing target; 4-point cubic Lagrange is also measured there
+//! for comparison.
+use crate::{Cf32, Cf64};
+
+/// Half-length of the windowed-sinc kernel (taps = `2·SINC_HALF`).
+pub const SINC_HALF: usize = 8;
+
+#[inline]
+fn windowed_sinc(x: f64) -> f64 {
+    let h = SINC_HALF as f64;
+    if x.abs() >= h {
+        return 0.0;
+    }
+    let s = if x.abs() < 1e-12 {
+        1.0
+    } else {
+        let px = std::f64::consts::PI * x;
+        px.sin() / px
+    };
+    let a = std::f64::consts::PI * x / h;
+    s * (0.42 + 0.5 * a.cos() + 0.08 * (2.0 * a).cos())
+}
+
+/// Value of `y` at fractional position `t` (index units); samples outside `y` count as 0.
+pub fn interpolate(y: &[Cf32], t: f64) -> Cf32 {
+    let n = t.floor();
+    let mu = t - n;
+    let n = n as i64;
+    let mut acc = Cf32::new(0.0, 0.0);
+    for i in -(SINC_HALF as i64) + 1..=SINC_HALF as i64 {
+        let j = n + i;
+        if j < 0 || j >= y.len() as i64 {
+            continue;
+        }
+        acc += y[j as usize] * windowed_sinc(mu - i as f64) as f32;
+    }
+    acc
+}
+
+/// Training correlation at fractional offset `t` (index into `y` of the first symbol),
+/// accumulated in f64.
+pub fn training_correlation(y: &[Cf32], training: &[Cf32], sps: usize, t: f64) -> Cf64 {
+    training
+        .iter()
+        .enumerate()
+        .map(|(k, s)| {
+            let z = s.conj() * interpolate(y, t + (k * sps) as f64);
+            Cf64::new(f64::from(z.re), f64::from(z.im))
+        })
+        .sum()
+}
+
+/// Maximise `|training_correlation(t)|²` for `t` in `[centre − radius, centre + radius]`:
+/// a scan on the whole-sample grid, then golden-section refinement over ±1 sample
+/// around the best grid point, to `1e-4` samples.
+pub fn best_instant(y: &[Cf32], training: &[Cf32], sps: usize, centre: f64, radius: usize) -> f64 {
+    let obj = |t: f64| training_correlation(y, training, sps, t).norm_sqr();
+    let mut best_t = centre;
+    let mut best_v = obj(centre);
+    for d in 1..=radius as i64 {
+        for t in [centre - d as f64, centre + d as f64] {
+            let v = obj(t);
+            if v > best_v {
+                best_v = v;
+                best_t = t;
+            }
+        }
+    }
+    golden_max(obj, best_t - 1.0, best_t + 1.0, 1e-4)
+}
+
+/// Golden-section search for the maximum of a unimodal `f` on `[a, b]`.
+pub fn golden_max(f: impl Fn(f64) -> f64, mut a: f64, mut b: f64, tol: f64) -> f64 {
+    let g = (5f64.sqrt() - 1.0) / 2.0;
+    let mut c = b - g * (b - a);
+    let mut d = a + g * (b - a);
+    let mut fc = f(c);
+    let mut fd = f(d);
+    while b - a > tol {
+        if fc >= fd {
+            b = d;
+            d = c;
+            fd = fc;
+            c = b - g * (b - a);
+            fc = f(c);
+        } else {
+            a = c;
+            c = d;
+            fc = fd;
+            d = a + g * (b - a);
+            fd = f(d);
+        }
+    }
+    (a + b) / 2.0
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// An exactly band-limited test signal: a sum of complex tones below `fmax`.
+    fn tones(t: f64, fmax: f64) -> Cf32 {
+        let mut acc = num_complex::Complex::<f64>::new(0.0, 0.0);
+        for (i, (a, f)) in [(1.0, 0.37), (0.6, -0.81), (0.4, 0.95), (0.3, -0.12)]
+            .iter()
+            .enumerate()
+        {
+            acc += num_complex::Complex::<f64>::from_polar(
+                *a,
+                std::f64::consts::TAU * f * fmax * t + i as f64,
+            );
+        }
+        Cf32::new(acc.re as f32, acc.im as f32)
+    }
+
+    fn cubic_lagrange(y: &[Cf32], t: f64) -> Cf32 {
+        let n = t.floor() as usize;
+        let mu = t - t.floor();
+        let (p0, p1, p2, p3) = (y[n - 1], y[n], y[n + 1], y[n + 2]);
+        let m = mu as f32;
+        p0 * (-m * (m - 1.0) * (m - 2.0) / 6.0)
+            + p1 * ((m + 1.0) * (m - 1.0) * (m - 2.0) / 2.0)
+            + p2 * (-(m + 1.0) * m * (m - 2.0) / 2.0)
+            + p3 * ((m + 1.0) * m * (m - 1.0) / 6.0)
+    }
+
+    #[test]
+    fn windowed_sinc_interpolates_a_band_limited_signal_to_minus_60_db() {
+        // Reference: the analytic signal itself at the fractional instants.
+        // Band edge 0.25 cycles/sample = (1+β)/(2·sps) for β = 1, sps = 2 (worst RRC case
+        // we support at sps ≥ 2); at sps 4, β 0.25 the edge is 0.156.
+        for &fmax in &[0.156f64, 0.25] {
+            let y: Vec<Cf32> = (0..200).map(|n| tones(n as f64, fmax)).collect();
+            let (mut es, mut el, mut p) = (0.0f64, 0.0f64, 0.0f64);
+            for i in 0..400 {
+                let t = 60.0 + i as f64 * 0.2 + 0.037;
+                let want = tones(t, fmax);
+                es += (interpolate(&y, t) - want).norm_sqr() as f64;
+                el += (cubic_lagrange(&y, t) - want).norm_sqr() as f64;
+                p += want.norm_sqr() as f64;
+            }
+            let sinc_db = 10.0 * (es / p).log10();
+            let lag_db = 10.0 * (el / p).log10();
+            eprintln!("fmax {fmax}: windowed sinc {sinc_db:.1} dB, cubic Lagrange {lag_db:.1} dB");
+            assert!(
+                sinc_db < -60.0,
+                "windowed-sinc error {sinc_db} dB at fmax {fmax}"
+            );
+            assert!(sinc_db < lag_db, "sinc should beat cubic Lagrange");
+        }
+    }
+
+    #[test]
+    fn golden_section_finds_the_peak_of_a_parabola() {
+        let t = golden_max(|x| -(x - 0.3172).powi(2), -1.0, 1.0, 1e-6);
+        assert!((t - 0.3172).abs() < 1e-5);
+    }
+}

@@ -1,0 +1,186 @@
+//! `iqaudit info` end to end: figures against closed-form values of synthetic
+//! captures, the JSON object, warnings and exit codes.
+
+use iqaudit::{write_capture, Cf32, Container, SampleFormat, WavEncoding, WriteSpec};
+use serde_json::Value;
+
+use crate::util::{iqaudit, stderr_of, tempdir};
+
+fn info_json(args: &[&std::ffi::OsStr]) -> (Value, String) {
+    let out = iqaudit()
+        .arg("info")
+        .args(args)
+        .arg("--json")
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(0), "{}", stderr_of(&out));
+    (
+        serde_json::from_slice(&out.stdout).unwrap(),
+        stderr_of(&out),
+    )
+}
+
+fn close(v: &Value, expect: f64, tol: f64) {
+    let x = v.as_f64().unwrap_or(f64::NAN);
+    assert!((x - expect).abs() <= tol, "{x} vs {expect} ± {tol}");
+}
+
+// Closed forms (exact arithmetic): a complex tone A·exp(j2πfn) has mean power
+// A², peak A², so mean = peak = 20·log10(A) dBFS and PAPR 0 dB; adding a DC of d
+// on I alone gives dc_i = d (the tone's mean over whole cycles is 0).
+#[test]
+fn a_tone_with_dc_gives_closed_form_power_peak_papr_and_dc() {
+    let dir = tempdir();
+    let p = dir.path().join("tone.cf32");
+    let (a, d, n) = (0.5f64, 0.01f64, 65_536usize);
+    let x: Vec<Cf32> = (0..n)
+        .map(|t| {
+            let ph = 2.0 * std::f64::consts::PI * 1024.0 * t as f64 / n as f64;
+            Cf32::new((a * ph.cos() + d) as f32, (a * ph.sin()) as f32)
+        })
+        .collect();
+    let spec = WriteSpec {
+        container: Container::Raw(SampleFormat::Cf32Le),
+        sample_rate_hz: 1e6,
+        center_freq_hz: Some(915e6),
+        sigmf_sidecar: true,
+        description: None,
+    };
+    write_capture(&p, &x, &spec).unwrap();
+    let (j, _) = info_json(&[p.as_os_str()]);
+    assert_eq!(j["schema"], "iqaudit.info/1");
+    assert_eq!(j["samples"], n as u64);
+    assert_eq!(j["format"], "cf32_le");
+    assert_eq!(j["format_source"], "sigmf");
+    close(&j["sample_rate_hz"], 1e6, 0.0);
+    close(&j["center_freq_hz"], 915e6, 0.0);
+    close(&j["duration_s"], n as f64 / 1e6, 1e-12);
+    let mean = a * a + d * d; // cross term averages to 0 over whole cycles
+    close(&j["mean_power_dbfs"], 10.0 * mean.log10(), 1e-4);
+    let peak = (a + d) * (a + d);
+    close(&j["peak_power_dbfs"], 10.0 * peak.log10(), 1e-4);
+    close(&j["papr_db"], 10.0 * (peak / mean).log10(), 1e-4);
+    close(&j["dc_i"], d, 1e-6);
+    close(&j["dc_q"], 0.0, 1e-6);
+    close(&j["dc_relative_db"], 10.0 * (d * d / mean).log10(), 0.01);
+    assert_eq!(j["clipped_samples"], 0);
+    assert_eq!(j["warnings"], serde_json::json!([]));
+    // Tone at 1024/65536·1 MHz = 15625 Hz: nearly all power in one bin region.
+    close(&j["psd_resolution_hz"], 1e6 / 4096.0, 1e-9);
+    let lo = j["obw_lower_hz"].as_f64().unwrap();
+    let hi = j["obw_upper_hz"].as_f64().unwrap();
+    assert!(
+        lo < 15_625.0 && hi > 15_625.0 && hi - lo < 4.0 * 1e6 / 4096.0,
+        "{lo}..{hi}"
+    );
+}
+
+#[test]
+fn clipping_non_finite_and_trailing_bytes_are_counted_and_warned_about() {
+    let dir = tempdir();
+    let p = dir.path().join("bad-values.cf32");
+    let mut bytes = Vec::new();
+    for v in [
+        0.1f32,
+        0.2,
+        f32::NAN,
+        0.0,
+        1.0,
+        0.5,
+        0.3,
+        f32::NEG_INFINITY,
+        -0.1,
+        0.0,
+    ] {
+        bytes.extend_from_slice(&v.to_le_bytes());
+    }
+    bytes.extend_from_slice(&[1, 2, 3]); // a partial sample
+    std::fs::write(&p, &bytes).unwrap();
+    let (j, err) = info_json(&[p.as_os_str()]);
+    assert_eq!(j["samples"], 5);
+    assert_eq!(j["trailing_bytes"], 3);
+    assert_eq!(j["non_finite_samples"], 2);
+    assert_eq!(j["clipped_samples"], 1);
+    close(&j["clipped_percent"], 20.0, 1e-12);
+    // Non-finite samples count as 0: mean power over 5 samples.
+    let mean = (0.01 + 0.04 + 1.0 + 0.25 + 0.01) / 5.0;
+    close(&j["mean_power_dbfs"], 10.0 * f64::log10(mean), 1e-5);
+    for key in [
+        "mean_power_dbfs",
+        "peak_power_dbfs",
+        "papr_db",
+        "dc_i",
+        "dc_q",
+    ] {
+        assert!(
+            j[key].as_f64().is_some_and(f64::is_finite),
+            "{key}: {}",
+            j[key]
+        );
+    }
+    assert!(err.contains("3 trailing byte(s) ignored"), "{err}");
+    assert!(err.contains("bad-values.cf32"), "{err}");
+    let kinds: Vec<_> = j["warnings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|w| w["kind"].clone())
+        .collect();
+    assert_eq!(kinds, ["trailing_bytes", "clipping", "non_finite"]);
+}
+
+#[test]
+fn text_output_names_every_figure_and_wav_rate_comes_from_the_header() {
+    let dir = tempdir();
+    let p = dir.path().join("crane.wav");
+    let x: Vec<Cf32> = (0..5000)
+        .map(|k| Cf32::new((k % 7) as f32 * 0.1, -0.2))
+        .collect();
+    let spec = WriteSpec {
+        container: Container::Wav(WavEncoding::Pcm16),
+        sample_rate_hz: 96_000.0,
+        center_freq_hz: None,
+        sigmf_sidecar: false,
+        description: None,
+    };
+    write_capture(&p, &x, &spec).unwrap();
+    let out = iqaudit().arg("info").arg(&p).output().unwrap();
+    assert_eq!(out.status.code(), Some(0));
+    let text = String::from_utf8(out.stdout).unwrap();
+    for key in [
+        "wav_pcm16",
+        "96.000 kHz",
+        "mean power",
+        "peak-to-average",
+        "DC offset",
+        "clipped",
+        "non-finite",
+        "IQ imbalance",
+        "occupied bw 99 %",
+        "Welch",
+    ] {
+        assert!(text.contains(key), "missing {key} in\n{text}");
+    }
+}
+
+#[test]
+fn stdout_closed_early_is_not_an_error() {
+    let dir = tempdir();
+    let p = dir.path().join("z.cu8");
+    std::fs::write(&p, vec![128u8; 4096]).unwrap();
+    // `head -c 0` closes the pipe at once; iqaudit must not report an error.
+    let out = std::process::Command::new("sh")
+        .arg("-c")
+        .arg(format!(
+            "'{}' info '{}' | head -c 0; echo ${{PIPESTATUS[0]:-0}}",
+            assert_cmd::cargo::cargo_bin("iqaudit").display(),
+            p.display()
+        ))
+        .output()
+        .unwrap();
+    assert!(
+        !String::from_utf8_lossy(&out.stderr).contains("iqaudit:"),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+}
