@@ -203,8 +203,10 @@ pub(crate) fn outcome_line(row: &SummaryRow, reused: bool) -> String {
     if let (Some(e), Some(w)) = (row.evm_rms_percent, row.evm_worst_percent) {
         s.push_str(&format!(", EVM {e:.2} % rms (worst {w:.2} %)"));
     }
-    if let Some(ser) = row.ser {
-        s.push_str(&format!(", SER {ser:.3e}"));
+    match row.ser {
+        Some(0.0) => s.push_str(", SER 0"),
+        Some(ser) => s.push_str(&format!(", SER {ser:.2e}")),
+        None => {}
     }
     if reused {
         s.push_str(" (report up to date, not re-run)");
