@@ -5,7 +5,7 @@
 //! throughput, ETA — and one line per worker naming its current file), or one
 //! plain line per capture (`path: outcome [done/total]`), or nothing until the
 //! final line (`--quiet`). Failures are always `path: problem` lines (except
-//! when quiet). The final line is printed by the caller through [`Progress::line`].
+//! when quiet). The final line is printed whatever the mode.
 //!
 //! Every event takes a short lock only around writing a line; no lock is held
 //! while a capture is being analysed.
