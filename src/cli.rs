@@ -15,8 +15,10 @@ use iqaudit::capture::stats::{capture_stats, info_report, InfoReport, StatsOptio
 use iqaudit::{Capture, CaptureError, Error, OpenOptions, SampleFormat};
 
 mod analyse;
+mod batch;
 mod profile_synth;
 use analyse::{AnalyseArgs, RecheckArgs};
+use batch::BatchArgs;
 use profile_synth::{ProfileArgs, SynthArgs};
 
 /// Audit recorded baseband IQ captures.
@@ -34,6 +36,8 @@ pub enum Command {
     /// Analyse one capture: find the training, fit the channel, equalise, report.
     #[command(visible_alias = "analyze")]
     Analyse(Box<AnalyseArgs>),
+    /// Analyse every capture under a folder in parallel: one report each plus a summary.
+    Batch(Box<BatchArgs>),
     /// Re-run the analysis recorded in a report and say whether every figure reproduces.
     Recheck(RecheckArgs),
     /// Describe what is in a capture: format, length, power, DC, clipping, bandwidth.
@@ -95,6 +99,8 @@ pub enum Outcome {
     NoTrainingFound,
     /// `recheck`: some figure did not reproduce.
     Differs,
+    /// `batch`: the exit code its outcome decided (see `iqaudit::batch`).
+    Exit(u8),
 }
 
 /// Run one command.
@@ -106,6 +112,7 @@ pub fn run(cli: Cli) -> Result<Outcome, Error> {
     };
     match cli.command {
         Command::Analyse(args) => analyse::run_analyse(&args, &argv()),
+        Command::Batch(args) => batch::run_batch_cmd(&args, &argv()),
         Command::Recheck(args) => analyse::run_recheck(&args),
         Command::Info(args) => run_info(&args),
         Command::Profile(args) => profile_synth::run_profile(&args),
@@ -127,6 +134,7 @@ pub fn exit_code(result: Result<Outcome, Error>) -> ExitCode {
         Ok(Outcome::Ok) => ExitCode::SUCCESS,
         Ok(Outcome::LimitFailed) | Ok(Outcome::Differs) => ExitCode::from(1),
         Ok(Outcome::NoTrainingFound) => ExitCode::from(3),
+        Ok(Outcome::Exit(code)) => ExitCode::from(code),
         Err(Error::Io { ref source, .. }) if source.kind() == std::io::ErrorKind::BrokenPipe => {
             ExitCode::SUCCESS
         }

@@ -57,6 +57,12 @@ pub enum Error {
         /// SHA-256 of the file now.
         found: String,
     },
+    /// A batch could not run (bad folder, output not writable, no captures).
+    #[error(transparent)]
+    Batch(#[from] crate::batch::BatchError),
+    /// Per-shard summaries could not be merged.
+    #[error(transparent)]
+    Merge(#[from] crate::batch::MergeError),
     /// The command line is inconsistent in a way clap cannot see.
     #[error("{message}")]
     Usage {

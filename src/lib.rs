@@ -61,6 +61,7 @@ pub type Cf32 = Complex<f32>;
 pub type Cf64 = Complex<f64>;
 
 pub mod analyse;
+pub mod batch;
 pub mod capture;
 pub mod channel;
 pub mod equalise;

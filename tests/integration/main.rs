@@ -4,6 +4,8 @@
 //! generated in per-test temporary directories. Gives out: pass/fail.
 
 mod bad_input;
+mod batch;
+mod batch_cli;
 mod capture_formats;
 mod info_cli;
 mod large_capture;
