@@ -35,7 +35,7 @@ use crate::profile::{Delay, EqualiserKind, TapCount, Tracking};
 use crate::report::metrics::{
     error_runs, run_length_histogram, ErrorPropagation, ErrorRate, EvmAccumulator,
 };
-use crate::report::provenance::{sha256_bytes, sha256_file};
+use crate::report::provenance::sha256_file;
 use crate::report::schema::{
     BurstMetrics, BurstReport, ChannelReport, EqualiserReport, InputInfo, LimitCheck, Provenance,
     Report, Summary, ToolInfo, Trace, Verdict, VerdictResult, Warning, WarningCode, SCHEMA,
@@ -315,7 +315,8 @@ pub fn analyse_capture(
     let verdict = judge(profile, &bursts, &summary);
     let profile_value =
         serde_json::to_value(profile).map_err(|e| usage(format!("profile: {e}")))?;
-    let profile_sha = sha256_bytes(profile_value.to_string().as_bytes());
+    let profile_sha = crate::report::provenance::profile_sha256(profile)
+        .map_err(|e| usage(format!("profile: {e}")))?;
     let size_bytes = capture.file_len_bytes();
     let sha256 = sha256_file(path).map_err(|source| Error::Io {
         path: path.to_path_buf(),

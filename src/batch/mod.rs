@@ -60,8 +60,6 @@ pub use progress::ProgressMode;
 pub use shard::{shard_of, Shard, ShardParseError};
 pub use summary::{merge_summaries, MergeError, RowVerdict, SummaryRow};
 
-use crate::profile::ResolvedProfile;
-use crate::report::provenance::sha256_bytes;
 use crate::report::schema::Report;
 use crate::report::write::{ensure_not_an_input, write_atomic, AtomicFile, WriteError};
 use progress::Progress;
@@ -74,21 +72,7 @@ use walk::Entry;
 
 pub use crate::report::provenance::sha256_file;
 
-/// SHA-256 of a resolved profile exactly as `analyse` records it in
-/// `report.provenance.profile_sha256` (SHA-256 of the compact JSON of the
-/// resolved profile): the identity [`BatchOptions::profile_sha256`] wants.
-pub fn profile_sha256(profile: &ResolvedProfile) -> Result<String, serde_json::Error> {
-    let value = serde_json::to_value(profile)?;
-    Ok(sha256_bytes(value.to_string().as_bytes()))
-}
-
-/// The bytes of a report file: pretty JSON plus a final newline. `analyse
-/// --report` should write the same bytes so batch and single reports agree.
-pub fn report_json(report: &Report) -> Result<Vec<u8>, serde_json::Error> {
-    let mut v = serde_json::to_vec_pretty(report)?;
-    v.push(b'\n');
-    Ok(v)
-}
+pub use crate::report::provenance::{profile_sha256, report_json};
 
 /// What kind of failure a job had; decides the row's verdict and the exit class.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -682,7 +666,10 @@ mod tests {
         let big: Vec<u8> = (0..(3 * (1 << 20) + 5)).map(|i| (i % 251) as u8).collect();
         let p = dir.path().join("big");
         fs::write(&p, &big).unwrap();
-        assert_eq!(sha256_file(&p).unwrap(), sha256_bytes(&big));
+        assert_eq!(
+            sha256_file(&p).unwrap(),
+            crate::report::provenance::sha256_bytes(&big)
+        );
         let p = dir.path().join("empty");
         fs::write(&p, b"").unwrap();
         // Source: FIPS 180-4 (SHA-256 of the empty message), NIST example values.

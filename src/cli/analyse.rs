@@ -155,9 +155,10 @@ pub fn run_analyse(args: &AnalyseArgs, argv: &[String]) -> Result<Outcome, Error
             .install(run)?,
         None => run()?,
     };
-    let json = serde_json::to_string_pretty(&report).map_err(|e| stdout_err(e.into()))? + "\n";
+    let json =
+        iqaudit::report::provenance::report_json(&report).map_err(|e| stdout_err(e.into()))?;
     if let Some(r) = &args.report {
-        write_atomic(r, json.as_bytes())?;
+        write_atomic(r, &json)?;
     }
     if let Some(d) = &args.plots {
         let ideal = Constellation::new(profile.payload.modulation);
@@ -165,7 +166,7 @@ pub fn run_analyse(args: &AnalyseArgs, argv: &[String]) -> Result<Outcome, Error
     }
     let mut out = std::io::stdout().lock();
     if args.json {
-        out.write_all(json.as_bytes()).map_err(stdout_err)?;
+        out.write_all(&json).map_err(stdout_err)?;
     } else {
         let colour = std::io::stdout().is_terminal()
             && std::env::var_os("NO_COLOR").is_none()

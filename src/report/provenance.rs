@@ -39,6 +39,23 @@ pub fn sha256_bytes(bytes: &[u8]) -> String {
     hex(&Sha256::digest(bytes))
 }
 
+/// SHA-256 of a resolved profile as every report records it in
+/// `provenance.profile_sha256`: the hash of the compact JSON of the resolved profile.
+pub fn profile_sha256(
+    profile: &crate::profile::ResolvedProfile,
+) -> Result<String, serde_json::Error> {
+    let value = serde_json::to_value(profile)?;
+    Ok(sha256_bytes(value.to_string().as_bytes()))
+}
+
+/// The bytes of a report file: pretty JSON plus a final newline (the same for
+/// `analyse --report` and `batch`).
+pub fn report_json(report: &crate::report::schema::Report) -> Result<Vec<u8>, serde_json::Error> {
+    let mut v = serde_json::to_vec_pretty(report)?;
+    v.push(b'\n');
+    Ok(v)
+}
+
 /// Whether `s` looks like a SHA-256 in lowercase or uppercase hex.
 pub fn is_sha256_hex(s: &str) -> bool {
     s.len() == 64 && s.bytes().all(|b| b.is_ascii_hexdigit())
