@@ -335,7 +335,7 @@ fn qpsk_ser_at_8_db_on_awgn_is_inside_the_99_percent_binomial_interval_of_proaki
     let (cap, truth) = synth(
         dir.path(),
         &prof,
-        "awgn.cf32",
+        "awgn.ci16",
         &[
             "--esn0-db",
             "8",
@@ -383,7 +383,7 @@ fn a_burst_with_strong_post_cursor_isi_shows_error_propagation_and_runs_that_sum
     let (cap, truth) = synth(
         dir.path(),
         &prof,
-        "isi.cf32",
+        "isi.ci16",
         &[
             "--esn0-db",
             "9",
