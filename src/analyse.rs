@@ -117,6 +117,47 @@ pub fn open_options(
     })
 }
 
+/// Open the capture with the precedence of the product contract: `--format` /
+/// `--sample-rate` first, then what the file says (SigMF sidecar, WAV header),
+/// then the profile's `capture.format` / `capture.sample_rate_hz`, then the file
+/// extension. [`open_options`] alone would let the profile override the file.
+///
+/// # Errors
+/// The capture cannot be opened.
+pub fn open_capture(
+    path: &Path,
+    profile: &ResolvedProfile,
+    opts: &AnalyseOptions,
+) -> Result<Capture, Error> {
+    use crate::capture::FormatSource;
+    let with_profile = open_options(profile, opts)?;
+    // First let the file speak: only the command-line overrides.
+    let explicit = OpenOptions {
+        format: opts.format,
+        sample_rate_hz: opts.sample_rate_hz,
+        swap_iq: profile.capture.swap_iq,
+    };
+    if let Ok(c) = Capture::open(path, &explicit) {
+        let file_says = opts.format.is_some()
+            || matches!(
+                c.format_source(),
+                FormatSource::Sigmf | FormatSource::WavHeader
+            );
+        if file_says {
+            if c.sample_rate_hz().is_some() || with_profile.sample_rate_hz.is_none() {
+                return Ok(c);
+            }
+            // The file gave the format but no rate: take the profile's rate.
+            let rate = OpenOptions {
+                sample_rate_hz: with_profile.sample_rate_hz,
+                ..explicit
+            };
+            return Ok(Capture::open(path, &rate)?);
+        }
+    }
+    Ok(Capture::open(path, &with_profile)?)
+}
+
 fn burst_config(profile: &ResolvedProfile) -> BurstConfig {
     let mut cfg = BurstConfig::default();
     let fit = &profile.channel_fit;
@@ -251,8 +292,7 @@ pub fn analyse_capture(
     profile: &ResolvedProfile,
     opts: &AnalyseOptions,
 ) -> Result<Report, Error> {
-    let open = open_options(profile, opts)?;
-    let capture = Capture::open(path, &open)?;
+    let capture = open_capture(path, profile, opts)?;
     let plan = Plan::new(profile, &capture)?;
     let sync = synchroniser(profile, &plan)?;
     let src = ChunkReader::new(capture.len(), |s, out: &mut [Cf32]| {
@@ -312,6 +352,12 @@ pub fn analyse_capture(
         path: path.to_path_buf(),
         source,
     })?;
+    // The capture layer labels any format passed in its options "from --format";
+    // here it may have come from the profile instead.
+    let mut format = capture.format_description();
+    if opts.format.is_none() && capture.format_source() == crate::capture::FormatSource::Option {
+        format = format.replacen("from --format", "from the profile", 1);
+    }
     Ok(Report {
         schema: SCHEMA.to_string(),
         tool: ToolInfo {
@@ -323,7 +369,7 @@ pub fn analyse_capture(
             path: path.display().to_string(),
             size_bytes,
             sha256,
-            format: capture.format_description(),
+            format,
             sample_rate_hz: plan.sample_rate_hz,
             center_freq_hz: plan.center_freq_hz,
             samples: capture.len() as u64,

@@ -743,3 +743,54 @@ fn the_json_report_is_byte_identical_for_one_and_four_worker_threads() {
         );
     }
 }
+
+#[test]
+fn the_report_says_the_sample_format_came_from_the_profile_when_no_format_option_was_given() {
+    // Regression: input.format read "ci16_le (from --format)" although only the
+    // profile's capture.format named it.
+    let dir = tempdir();
+    let prof = one_tap_profile(dir.path());
+    let (cap, _) = synth(
+        dir.path(),
+        &prof,
+        "label.ci16",
+        &["--seed", "1", "--no-sigmf"],
+    );
+    let (_, r) = analyse_json(&cap, &prof, &[]);
+    let format = r["input"]["format"].as_str().unwrap();
+    assert!(format.contains("from the profile"), "{format}");
+    let (_, r) = analyse_json(&cap, &prof, &["--format", "ci16_le"]);
+    let format = r["input"]["format"].as_str().unwrap();
+    assert!(format.contains("from --format"), "{format}");
+}
+
+#[test]
+fn a_wav_capture_is_read_by_its_header_even_when_the_profile_names_a_raw_format() {
+    // Regression: the profile's capture.format ("ci16_le" in the example) was
+    // forced onto WAV files and SigMF recordings, so a float WAV was decoded as
+    // 16-bit integers, header included. PRODUCT.md: the profile gives the
+    // format "unless the file or a SigMF sidecar says".
+    let dir = tempdir();
+    let prof = one_tap_profile(dir.path());
+    let (cap, truth) = synth(
+        dir.path(),
+        &prof,
+        "cab.wav",
+        &[
+            "--format",
+            "wav_float32",
+            "--esn0-db",
+            "25",
+            "--bursts",
+            "2",
+            "--seed",
+            "3",
+        ],
+    );
+    let (code, r) = analyse_json(&cap, &prof, &[]);
+    let format = r["input"]["format"].as_str().unwrap();
+    assert!(format.contains("from WAV header"), "{format}");
+    assert_eq!(code, 0);
+    assert_eq!(r["bursts"].as_array().unwrap().len(), truth.bursts.len());
+    assert_eq!(r["summary"]["ser"]["errors"], 0);
+}
