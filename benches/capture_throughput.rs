@@ -1,2 +1,128 @@
-//! Placeholder replaced below.
-fn main() {}
+//! Capture throughput benchmark (not a test; run with `cargo bench --bench capture_throughput`).
+//!
+//! Takes in: optional arguments `SIZE_MIB` (default 1024) and `DIR` (default the
+//! system temp dir). Gives out: a table on stdout, in samples per second, of
+//! (1) a plain page-cache read of each file, (2) conversion to `Cf32` through
+//! `Capture::read_into` on one thread, for `ci16_le` and `cf32_le`, and (3) the
+//! whole `info` computation (`capture_stats` + `info_report`) on all threads.
+//! Files are filled with pseudo-random codes and read once before timing so
+//! every figure is a warm page-cache figure; each figure is the best of three runs. Record results in docs/performance.md.
+
+use std::io::{Read, Write};
+use std::path::Path;
+use std::time::Instant;
+
+use iqaudit::capture::stats::{capture_stats, info_report, StatsOptions};
+use iqaudit::{Capture, Cf32, OpenOptions, SampleFormat};
+
+fn fill(path: &Path, bytes: u64, format: SampleFormat) {
+    let mut f = std::io::BufWriter::new(std::fs::File::create(path).unwrap());
+    let mut state = 0x9E37_79B9_7F4A_7C15u64;
+    let mut buf = vec![0u8; 1 << 20];
+    let mut left = bytes;
+    while left > 0 {
+        for word in buf.chunks_exact_mut(8) {
+            state ^= state << 13;
+            state ^= state >> 7;
+            state ^= state << 17;
+            let v = match format {
+                // Two f32 components in [-0.5, 0.5): finite floats.
+                SampleFormat::Cf32Le => {
+                    let a = ((state >> 40) as f32 / 16_777_216.0) - 0.5;
+                    let b = (((state >> 8) & 0xFF_FFFF) as f32 / 16_777_216.0) - 0.5;
+                    let mut w = [0u8; 8];
+                    w[..4].copy_from_slice(&a.to_le_bytes());
+                    w[4..].copy_from_slice(&b.to_le_bytes());
+                    u64::from_le_bytes(w)
+                }
+                _ => state,
+            };
+            word.copy_from_slice(&v.to_le_bytes());
+        }
+        let n = left.min(buf.len() as u64) as usize;
+        f.write_all(&buf[..n]).unwrap();
+        left -= n as u64;
+    }
+    f.flush().unwrap();
+}
+
+fn plain_read(path: &Path) -> f64 {
+    let mut f = std::fs::File::open(path).unwrap();
+    let mut buf = vec![0u8; 1 << 20];
+    let t = Instant::now();
+    let mut total = 0u64;
+    let mut x = 0u8;
+    loop {
+        let n = f.read(&mut buf).unwrap();
+        if n == 0 {
+            break;
+        }
+        x ^= buf[n - 1];
+        total += n as u64;
+    }
+    std::hint::black_box(x);
+    total as f64 / t.elapsed().as_secs_f64()
+}
+
+fn convert(cap: &Capture) -> f64 {
+    let mut out = vec![Cf32::default(); 1 << 16];
+    let t = Instant::now();
+    let mut start = 0;
+    let mut acc = 0.0f32;
+    while start < cap.len() {
+        let n = out.len().min(cap.len() - start);
+        cap.read_into(start, &mut out[..n]).unwrap();
+        acc += out[n - 1].re;
+        start += n;
+    }
+    std::hint::black_box(acc);
+    cap.len() as f64 / t.elapsed().as_secs_f64()
+}
+
+fn main() {
+    let args: Vec<String> = std::env::args()
+        .skip(1)
+        .filter(|a| a != "--bench")
+        .collect();
+    let mib: u64 = args.first().and_then(|s| s.parse().ok()).unwrap_or(1024);
+    let dir = args
+        .get(1)
+        .map(std::path::PathBuf::from)
+        .unwrap_or_else(std::env::temp_dir);
+    println!("| file | size | plain read (M samples/s) | read_into, 1 thread (M samples/s) | ratio | info, {} threads (M samples/s) |", rayon::current_num_threads());
+    println!("|---|---|---|---|---|---|");
+    for format in [SampleFormat::Ci16Le, SampleFormat::Cf32Le] {
+        let path = dir.join(format!("iqaudit-bench.{}", format.name()));
+        fill(&path, mib << 20, format);
+        let bps = format.bytes_per_sample() as f64;
+        plain_read(&path); // warm the page cache
+                           // Best of three for every figure: the machine may be shared.
+        let best = |f: &dyn Fn() -> f64| (0..3).map(|_| f()).fold(0.0f64, f64::max);
+        let read = best(&|| plain_read(&path)) / bps;
+        let opts = OpenOptions {
+            format: Some(format),
+            ..OpenOptions::default()
+        };
+        let cap = Capture::open(&path, &opts).unwrap();
+        convert(&cap); // fault the map in
+        let conv = best(&|| convert(&cap));
+        let so = StatsOptions::default();
+        let info = best(&|| {
+            let t = Instant::now();
+            let st = capture_stats(&cap, &so, &|_| {}).unwrap();
+            std::hint::black_box(info_report(&cap, &st, &so));
+            cap.len() as f64 / t.elapsed().as_secs_f64()
+        });
+        println!(
+            "| {} | {} MiB | {:.0} | {:.0} | {:.0} % | {:.0} |",
+            format.name(),
+            mib,
+            read / 1e6,
+            conv / 1e6,
+            100.0 * conv / read,
+            info / 1e6
+        );
+        drop(cap);
+        let _ = std::fs::remove_file(&path);
+    }
+}

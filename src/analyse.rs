@@ -165,13 +165,20 @@ fn burst_config(profile: &ResolvedProfile) -> BurstConfig {
     let span = match (fit.pre_cursor_taps, fit.post_cursor_taps) {
         (TapCount::Fixed(pre), TapCount::Fixed(post)) => TapSpan::Fixed { pre, post },
         (pre, post) => {
-            let cap = |t: TapCount, default: usize| match t {
-                TapCount::Fixed(n) => n,
-                TapCount::Auto => default,
+            // A fixed count is tried alone (min = max); "auto" tries 0 up to a cap
+            // the training supports.
+            let range = |t: TapCount, cap: usize| match t {
+                TapCount::Fixed(n) => (n, n),
+                TapCount::Auto => (0, cap),
             };
-            let max_pre = cap(pre, (max_total / 4).clamp(1, 8));
-            let max_post = cap(post, (max_total / 2).clamp(1, 16));
-            TapSpan::Auto { max_pre, max_post }
+            let (min_pre, max_pre) = range(pre, (max_total / 4).clamp(1, 8));
+            let (min_post, max_post) = range(post, (max_total / 2).clamp(1, 16));
+            TapSpan::Auto {
+                min_pre,
+                max_pre,
+                min_post,
+                max_post,
+            }
         }
     };
     cfg.channel = ChannelFitConfig {
@@ -241,7 +248,9 @@ impl Plan {
         let burst_cfg = burst_config(profile);
         let taps_span = match burst_cfg.channel.span {
             TapSpan::Fixed { pre, post } => pre + post + 1,
-            TapSpan::Auto { max_pre, max_post } => max_pre + max_post + 1,
+            TapSpan::Auto {
+                max_pre, max_post, ..
+            } => max_pre + max_post + 1,
         };
         Ok(Plan {
             training,
@@ -778,10 +787,15 @@ fn region_warnings(
     let dc = sum / n;
     let mean_power = power / n;
     if mean_power > 0.0 && dc.norm_sqr() / mean_power > 0.01 {
+        let advice = if plan.burst_cfg.channel.dc_offset {
+            "the channel fit removes it (channel_fit.dc_offset is on)"
+        } else {
+            "enable channel_fit.dc_offset"
+        };
         warnings.push(Warning::new(
             WarningCode::StrongDc,
             format!(
-                "DC offset {:.1} dB relative to the burst power; enable channel_fit.dc_offset",
+                "DC offset {:.1} dB relative to the burst power; {advice}",
                 10.0 * (dc.norm_sqr() / mean_power).log10()
             ),
         ));

@@ -660,7 +660,7 @@ impl Capture {
     /// A one-line description, e.g. `"ci16_le (raw, from extension)"`.
     pub fn format_description(&self) -> String {
         let src = match self.format_source {
-            FormatSource::Option => "from --format",
+            FormatSource::Option => "as given by --format or the profile",
             FormatSource::Sigmf => "from SigMF sidecar",
             FormatSource::WavHeader => "from WAV header",
             FormatSource::Extension => "from file extension",

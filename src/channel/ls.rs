@@ -12,7 +12,7 @@
 //! orthogonal to the regressor's column space, and the condition number is the
 //! ratio of the extreme singular values of `R` (equal to those of the regressor).
 //!
-//! Automatic span: every `(P, Q)` with `P ≤ max_pre`, `Q ≤ max_post` is fitted on
+//! Automatic span: every `(P, Q)` in the configured ranges is fitted on
 //! the common window of the largest model (so all candidates see the same `M`
 //! observations) and the one minimising
 //! `MDL = M·ln(RSS/M) + K·ln(M)` is kept (Rissanen, "Modeling by shortest data
@@ -81,11 +81,23 @@ pub fn fit_channel(
         TapSpan::Fixed { pre, post } => {
             fit_fixed(yt, training, pre, post, cfg, SpanChoice::Fixed, None)
         }
-        TapSpan::Auto { max_pre, max_post } => {
+        TapSpan::Auto {
+            min_pre,
+            max_pre,
+            min_post,
+            max_post,
+        } => {
+            if min_pre > max_pre || min_post > max_post {
+                return Err(ChannelError::BadConfig {
+                    key: "span",
+                    expected: "min ≤ max for the pre- and post-cursor counts",
+                    found: format!("pre {min_pre}..={max_pre}, post {min_post}..={max_post}"),
+                });
+            }
             let mut best: Option<(f64, usize, usize)> = None;
             let mut first_err = None;
-            for pre in 0..=max_pre {
-                for post in 0..=max_post {
+            for pre in min_pre..=max_pre {
+                for post in min_post..=max_post {
                     let window = (max_post, n.saturating_sub(max_pre));
                     match solve_model(yt, training, pre, post, cfg, Some(window)) {
                         Ok((s, m)) => {
@@ -443,7 +455,9 @@ mod tests {
         let y = burst(9, &x, &taps, 1, 0.01);
         let auto = ChannelFitConfig {
             span: TapSpan::Auto {
+                min_pre: 0,
                 max_pre: 3,
+                min_post: 0,
                 max_post: 5,
             },
             ..ChannelFitConfig::default()
@@ -451,6 +465,18 @@ mod tests {
         let e = fit_channel(&y, &x, 0, &auto).unwrap();
         assert_eq!((e.pre, e.post), (1, 2), "MDL chose {:?}", e.span_choice);
         assert!(matches!(e.span_choice, SpanChoice::Mdl { .. }));
+        // Pre-cursor count fixed at 1, post-cursor count automatic.
+        let mixed = ChannelFitConfig {
+            span: TapSpan::Auto {
+                min_pre: 1,
+                max_pre: 1,
+                min_post: 0,
+                max_post: 6,
+            },
+            ..ChannelFitConfig::default()
+        };
+        let e = fit_channel(&y, &x, 0, &mixed).unwrap();
+        assert_eq!((e.pre, e.post), (1, 2));
         // Over-fitted span: the extra (zero) taps are not significant.
         let e = fit_channel(&y, &x, 0, &cfg(3, 5)).unwrap();
         assert_eq!(e.significant_taps, 4, "taps {:?}", e.taps);

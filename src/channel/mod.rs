@@ -86,11 +86,16 @@ pub enum TapSpan {
         /// post-cursor taps `Q`
         post: usize,
     },
-    /// Choose `P ≤ max_pre`, `Q ≤ max_post` by the MDL criterion (Rissanen 1978),
-    /// see [`fit_channel`].
+    /// Choose `P ∈ [min_pre, max_pre]`, `Q ∈ [min_post, max_post]` by the MDL
+    /// criterion (Rissanen 1978), see [`fit_channel`]. A count that is fixed
+    /// while the other is automatic has `min == max`.
     Auto {
+        /// smallest `P` tried
+        min_pre: usize,
         /// largest `P` tried
         max_pre: usize,
+        /// smallest `Q` tried
+        min_post: usize,
         /// largest `Q` tried
         max_post: usize,
     },

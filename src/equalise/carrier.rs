@@ -18,6 +18,10 @@
 //!    burst (least squares, `n` the index into `y`), rotate `y` by
 //!    `e^{−j(2πν·n + φ)}` and refit the channel.
 //!
+//! A fitted DC term (`ChannelFitConfig::dc_offset`) is subtracted from `y`
+//! first. The conjugate (IQ-imbalance) taps are reported by the fit but not
+//! equalised: the equalisers are strictly linear in `y`.
+//!
 //! The equalisers then run on the corrected samples with a narrower phase loop
 //! (`tracking_loop`) for what a straight line cannot describe.
 //!
@@ -183,6 +187,14 @@ pub(crate) fn refine_carrier(
 ) -> Result<(Vec<Cf32>, ChannelEstimate, CarrierReport), EqualiseError> {
     let fit0 = fit_channel(burst.y, burst.training, burst.offset, &cfg.channel)?;
     let train_nu = training_phase_slope(burst.y, burst.training, burst.offset, &fit0);
+    // A fitted DC term is a receiver offset (not rotated by the carrier):
+    // remove it before anything rotates the samples.
+    let mut base = burst.y.to_vec();
+    if let Some(d) = fit0.dc {
+        let d = Cf32::new(d.re as f32, d.im as f32);
+        base.iter_mut().for_each(|v| *v -= d);
+    }
+    let burst = &BurstView { y: &base, ..*burst };
     let mut report = CarrierReport {
         enabled: cfg.carrier.enabled,
         training_cfo_cycles_per_symbol: train_nu,
@@ -190,7 +202,12 @@ pub(crate) fn refine_carrier(
         phase_rad: 0.0,
     };
     if !cfg.carrier.enabled {
-        return Ok((burst.y.to_vec(), fit0, report));
+        let fit = if fit0.dc.is_some() {
+            fit_channel(&base, burst.training, burst.offset, &cfg.channel)?
+        } else {
+            fit0
+        };
+        return Ok((base, fit, report));
     }
     let ch = DesignInput {
         taps: &fit0.taps,

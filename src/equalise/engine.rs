@@ -14,7 +14,7 @@
 
 use super::tracking::{AdaptMode, PhaseLoop, TrackingConfig};
 use super::Slicer;
-use crate::Cf32;
+use crate::{Cf32, Cf64};
 use std::ops::Range;
 
 /// Caller-side description of one forward pass.
@@ -52,10 +52,13 @@ pub(crate) struct Adapt {
     pub mode: AdaptMode,
     mu: f32,
     lambda: f32,
-    /// RLS inverse correlation matrix, row-major `n×n`.
-    p: Vec<Cf32>,
-    u: Vec<Cf32>,
-    pu: Vec<Cf32>,
+    /// RLS inverse correlation matrix, row-major `n×n`, in f64 and kept exactly
+    /// Hermitian (upper triangle updated, lower mirrored): in f32 the
+    /// conventional RLS recursion loses positive-definiteness after a few
+    /// thousand updates and diverges.
+    p: Vec<Cf64>,
+    u: Vec<Cf64>,
+    pu: Vec<Cf64>,
 }
 
 impl Adapt {
@@ -75,12 +78,13 @@ impl Adapt {
         a.mu = cfg.lms_step;
         a.lambda = cfg.rls_forgetting;
         if cfg.mode == AdaptMode::Rls {
-            a.p = vec![Cf32::new(0.0, 0.0); n * n];
+            let z = Cf64::new(0.0, 0.0);
+            a.p = vec![z; n * n];
             for i in 0..n {
-                a.p[i * n + i] = Cf32::new(1.0 / cfg.rls_delta, 0.0);
+                a.p[i * n + i] = Cf64::new(1.0 / cfg.rls_delta as f64, 0.0);
             }
-            a.u = vec![Cf32::new(0.0, 0.0); n];
-            a.pu = vec![Cf32::new(0.0, 0.0); n];
+            a.u = vec![z; n];
+            a.pu = vec![z; n];
         }
         a
     }
@@ -128,6 +132,12 @@ pub(crate) fn run_pass(
             *h = pass.truth[n as usize];
         }
     }
+    if adapt.mode == AdaptMode::Off {
+        fixed_filter_pass(
+            pass, f, cons, pll, &ypad, left, &mut hist, soft, labels, phase,
+        );
+        return;
+    }
     let ntot = nf + nb;
     for n in start..end {
         let i = n - start;
@@ -163,7 +173,14 @@ pub(crate) fn run_pass(
             };
             p.update(err);
         }
-        match adapt.mode {
+        // A non-finite output (NaN/inf sample in the window) must not reach
+        // the adaptive taps: skip the update for that symbol.
+        let mode = if z.re.is_finite() && z.im.is_finite() {
+            adapt.mode
+        } else {
+            AdaptMode::Off
+        };
+        match mode {
             AdaptMode::Off => {}
             AdaptMode::Lms => {
                 let e = d - z;
@@ -181,34 +198,39 @@ pub(crate) fn run_pass(
             }
             AdaptMode::Rls => {
                 let e = d - z;
+                let e64 = Cf64::new(e.re as f64, e.im as f64);
                 let rc = rot.conj();
+                let w64 = |v: Cf32| Cf64::new(v.re as f64, v.im as f64);
                 for (u, v) in adapt.u.iter_mut().zip(win) {
-                    *u = v * rc;
+                    *u = w64(v * rc);
                 }
-                for (u, v) in adapt.u[nf..].iter_mut().zip(&hist[i..i + nb]) {
-                    *u = -v;
+                for (u, v) in adapt.u[nf..].iter_mut().zip(past) {
+                    *u = -w64(*v);
                 }
-                // z = wᵀu = vᴴu with v = conj(w): RLS on v, then w = conj(v).
+                // z = wᵀu = vᴴu with v = conj(w): RLS on v (Haykin), then w = conj(v).
                 // pu = P·u, den = λ + uᴴ·P·u, k = pu/den,
                 // v ← v + k·e*, i.e. w ← w + conj(k)·e; P ← (P − k·uᴴ·P)/λ.
+                let z64 = Cf64::new(0.0, 0.0);
                 for r in 0..ntot {
                     let row = &adapt.p[r * ntot..(r + 1) * ntot];
-                    let mut s = zero;
+                    let mut s = z64;
                     for (pv, uv) in row.iter().zip(&adapt.u) {
                         s += pv * uv;
                     }
                     adapt.pu[r] = s;
                 }
-                let mut upu = zero;
+                let mut upu = z64;
                 for (uv, pv) in adapt.u.iter().zip(&adapt.pu) {
                     upu += uv.conj() * pv;
                 }
-                let den = adapt.lambda + upu.re;
+                let lambda = adapt.lambda as f64;
+                let den = lambda + upu.re;
                 if den > 1e-12 && den.is_finite() {
                     let inv = 1.0 / den;
                     for t in 0..ntot {
                         let k = adapt.pu[t] * inv;
-                        let dw = k.conj() * e;
+                        let dw = k.conj() * e64;
+                        let dw = Cf32::new(dw.re as f32, dw.im as f32);
                         if t < nf {
                             f.ffr[t] += dw;
                         } else {
@@ -216,17 +238,112 @@ pub(crate) fn run_pass(
                         }
                     }
                     // P is Hermitian, so uᴴP = (P·u)ᴴ = puᴴ.
-                    let il = 1.0 / adapt.lambda;
+                    let il = 1.0 / lambda;
                     for r in 0..ntot {
                         let kr = adapt.pu[r] * inv;
-                        for c in 0..ntot {
-                            let v = &mut adapt.p[r * ntot + c];
-                            *v = (*v - kr * adapt.pu[c].conj()) * il;
+                        for c in r..ntot {
+                            let v = (adapt.p[r * ntot + c] - kr * adapt.pu[c].conj()) * il;
+                            adapt.p[r * ntot + c] = v;
+                            adapt.p[c * ntot + r] = v.conj();
                         }
+                        let dgl = &mut adapt.p[r * ntot + r];
+                        dgl.im = 0.0;
                     }
                 }
             }
         }
         hist[i + nb] = d;
+    }
+}
+
+/// Symbols per block of the fixed-filter fast path.
+const BLOCK: usize = 256;
+
+/// Fast path when the filters do not adapt: the feedforward output does not
+/// depend on decisions (the phase loop rotates it afterwards), so it is
+/// computed block by block as a FIR vectorised over the output index (split
+/// real/imaginary arrays, one axpy per tap); only the feedback, the rotation,
+/// the slicer and the loop stay in the serial per-symbol recursion.
+#[allow(clippy::too_many_arguments)]
+fn fixed_filter_pass(
+    pass: &Pass<'_>,
+    f: &LoopFilters,
+    cons: &dyn Slicer,
+    mut pll: Option<&mut PhaseLoop>,
+    ypad: &[Cf32],
+    left: usize,
+    hist: &mut [Cf32],
+    soft: &mut [Cf32],
+    labels: &mut [usize],
+    phase: &mut [f32],
+) {
+    let Range { start, end } = pass.range.clone();
+    let nf = f.ffr.len();
+    let nb = f.fbr.len();
+    let (wr, wi): (Vec<f32>, Vec<f32>) = f.ffr.iter().map(|w| (w.re, w.im)).unzip();
+    let (br, bi): (Vec<f32>, Vec<f32>) = f.fbr.iter().map(|w| (w.re, w.im)).unzip();
+    let mut yr = vec![0f32; BLOCK + nf];
+    let mut yi = vec![0f32; BLOCK + nf];
+    let mut accr = vec![0f32; BLOCK];
+    let mut acci = vec![0f32; BLOCK];
+    let points = cons.points();
+    let mut n0 = start;
+    while n0 < end {
+        let m = BLOCK.min(end - n0);
+        let base0 = (n0 as isize + f.lag - (nf as isize - 1) + left as isize) as usize;
+        for (k, v) in ypad[base0..base0 + m + nf - 1].iter().enumerate() {
+            yr[k] = v.re;
+            yi[k] = v.im;
+        }
+        accr[..m].fill(0.0);
+        acci[..m].fill(0.0);
+        for t in 0..nf {
+            let (a, b) = (wr[t], wi[t]);
+            let (xr, xi) = (&yr[t..t + m], &yi[t..t + m]);
+            for (((or, oi), &vr), &vi) in accr[..m]
+                .iter_mut()
+                .zip(acci[..m].iter_mut())
+                .zip(xr)
+                .zip(xi)
+            {
+                *or += a * vr - b * vi;
+                *oi += a * vi + b * vr;
+            }
+        }
+        for k in 0..m {
+            let n = n0 + k;
+            let i = n - start;
+            let mut z = Cf32::new(accr[k], acci[k]);
+            if let Some(p) = pll.as_deref() {
+                z *= p.phasor().conj();
+            }
+            let past = &hist[i..i + nb];
+            let (mut sr, mut si) = (0f32, 0f32);
+            for ((d, &a), &b) in past.iter().zip(&br).zip(&bi) {
+                sr += a * d.re - b * d.im;
+                si += a * d.im + b * d.re;
+            }
+            z -= Cf32::new(sr, si);
+            let label = cons.slice(z);
+            let d = if pass.truth_range.contains(&n) {
+                pass.truth[n]
+            } else {
+                points[label]
+            };
+            soft[n] = z;
+            labels[n] = label;
+            if let Some(p) = pll.as_deref_mut() {
+                phase[n] = p.phase as f32;
+                let dn = d.norm_sqr();
+                let err = if dn > 0.0 {
+                    (z * d.conj()).im / dn
+                } else {
+                    0.0
+                };
+                p.update(err);
+            }
+            hist[i + nb] = d;
+        }
+        n0 += m;
     }
 }

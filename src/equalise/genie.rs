@@ -31,7 +31,12 @@ impl GenieDfe {
             ..opts
         };
         let core = DfeCore::design(ch, opts, |c| {
-            design_mmse_dfe(c, nf, nb, delay.map(|d| d.min(nf + c.taps.len() - 2)))
+            design_mmse_dfe(
+                c,
+                nf,
+                nb,
+                delay.map(|d| d.min((nf + c.taps.len()).saturating_sub(2))),
+            )
         })?;
         Ok(GenieDfe {
             core,

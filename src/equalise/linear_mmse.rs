@@ -25,7 +25,12 @@ impl LinearMmse {
         opts: RunOptions,
     ) -> Result<Self, EqualiseError> {
         let core = DfeCore::design(ch, opts, |c| {
-            design_mmse_dfe(c, nf, 0, delay.map(|d| d.min(nf + c.taps.len() - 2)))
+            design_mmse_dfe(
+                c,
+                nf,
+                0,
+                delay.map(|d| d.min((nf + c.taps.len()).saturating_sub(2))),
+            )
         })?;
         Ok(LinearMmse {
             core,

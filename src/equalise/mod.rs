@@ -476,7 +476,12 @@ impl MmseDfe {
         opts: RunOptions,
     ) -> Result<Self, EqualiseError> {
         let core = DfeCore::design(ch, opts, |c| {
-            design_mmse_dfe(c, nf, nb, delay.map(|d| d.min(nf + c.taps.len() - 2)))
+            design_mmse_dfe(
+                c,
+                nf,
+                nb,
+                delay.map(|d| d.min((nf + c.taps.len()).saturating_sub(2))),
+            )
         })?;
         let name = match opts.tracking.mode {
             AdaptMode::Off => "mmse-dfe",
@@ -574,6 +579,9 @@ pub struct BurstOutput {
     pub channel: ChannelEstimate,
     /// Carrier refinement figures.
     pub carrier: CarrierReport,
+    /// Infinite-length bounds for the fitted channel at its input SNR
+    /// `Es/σ²` (taps as fitted, not normalised).
+    pub bounds: theory::TheoryBounds,
     /// Samples after the carrier correction (what the equalisers saw).
     pub corrected: Vec<Cf32>,
     /// One entry per equaliser, in the order zf-dfe, mmse-dfe, linear-mmse,
@@ -654,7 +662,13 @@ pub fn process_burst(
             GenieDfe::new(&ch, cfg.ff_taps, cfg.fb_taps, cfg.delay, opts).map(|e| Box::new(e) as _),
         );
     }
+    let bounds = theory::bounds(
+        &channel.taps,
+        channel.es / channel.noise_var,
+        theory::DEFAULT_GRID,
+    );
     Ok(BurstOutput {
+        bounds,
         channel,
         carrier: report,
         corrected,
@@ -672,3 +686,6 @@ impl Slicer for crate::signal::Constellation {
         crate::signal::Constellation::points(self)
     }
 }
+
+#[cfg(test)]
+mod tests;

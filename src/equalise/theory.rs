@@ -84,3 +84,41 @@ pub fn matched_filter_bound(taps: &[Cf64], snr: f64) -> f64 {
 pub fn to_db(x: f64) -> f64 {
     10.0 * x.log10()
 }
+
+/// All infinite-length figures for one channel, in dB (one FFT).
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct TheoryBounds {
+    /// Input SNR `Es/σ²`, dB.
+    pub input_snr_db: f64,
+    /// Matched-filter bound `SNR·Σ|h|²`, dB.
+    pub matched_filter_bound_db: f64,
+    /// Salz MMSE-DFE, biased, dB.
+    pub mmse_dfe_biased_db: f64,
+    /// Salz MMSE-DFE, unbiased, dB.
+    pub mmse_dfe_unbiased_db: f64,
+    /// ZF-DFE `SNR·exp(mean ln|H|²)`, dB (−∞ for an exact spectral zero).
+    pub zf_dfe_db: f64,
+    /// MMSE linear equaliser, unbiased, dB.
+    pub mmse_le_unbiased_db: f64,
+}
+
+/// [`TheoryBounds`] for `taps` at input SNR `snr` (linear), on `grid` frequencies.
+pub fn bounds(taps: &[Cf64], snr: f64, grid: usize) -> TheoryBounds {
+    let p = power_response(taps, grid);
+    let n = p.len();
+    let salz = grid_mean(p.iter().map(|v| (1.0 + snr * v).ln()), n).exp();
+    let zf = if p.iter().any(|v| *v <= 0.0) {
+        0.0
+    } else {
+        snr * grid_mean(p.iter().map(|v| v.ln()), n).exp()
+    };
+    let le = 1.0 / grid_mean(p.iter().map(|v| 1.0 / (1.0 + snr * v)), n);
+    TheoryBounds {
+        input_snr_db: to_db(snr),
+        matched_filter_bound_db: to_db(matched_filter_bound(taps, snr)),
+        mmse_dfe_biased_db: to_db(salz),
+        mmse_dfe_unbiased_db: to_db(salz - 1.0),
+        zf_dfe_db: to_db(zf),
+        mmse_le_unbiased_db: to_db(le - 1.0),
+    }
+}

@@ -38,8 +38,9 @@ pub struct TrackingConfig {
     pub lms_step: f32,
     /// RLS forgetting factor `λ` (default 0.995).
     pub rls_forgetting: f32,
-    /// RLS initial inverse correlation `P(0) = I/δ` with this `δ` (default 0.01,
-    /// small because the filters start from the MMSE design).
+    /// RLS initial inverse correlation `P(0) = I/δ` with this `δ` (default 100:
+    /// about `E|u|²/(1−λ)`, the steady-state weight of the regressor, so the
+    /// first updates do not throw away the MMSE design the filters start from).
     pub rls_delta: f32,
     /// Second-order phase loop run together with the filter updates.
     pub phase_loop: LoopConfig,
@@ -51,7 +52,7 @@ impl Default for TrackingConfig {
             mode: AdaptMode::Off,
             lms_step: 0.03,
             rls_forgetting: 0.995,
-            rls_delta: 0.01,
+            rls_delta: 100.0,
             phase_loop: LoopConfig {
                 bandwidth: 0.002,
                 damping: std::f64::consts::FRAC_1_SQRT_2,
@@ -102,10 +103,12 @@ impl PhaseLoop {
     pub fn phasor(&self) -> Cf32 {
         self.rot
     }
-    /// Feed the phase error `err` (rad) and advance one symbol.
+    /// Feed the phase error `err` (rad) and advance one symbol. A non-finite
+    /// error (a NaN sample upstream) is treated as 0 so the loop cannot be
+    /// poisoned for the rest of the burst.
     #[inline]
     pub fn update(&mut self, err: f32) {
-        let err = err as f64;
+        let err = if err.is_finite() { err as f64 } else { 0.0 };
         self.freq += self.ki * err;
         let d = self.freq + self.kp * err;
         self.phase += d;

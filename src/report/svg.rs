@@ -125,7 +125,7 @@ impl Chart {
             height,
             left: 64.0,
             right: 18.0,
-            top: 40.0,
+            top: 52.0,
             bottom: 48.0,
             x,
             y,
@@ -188,7 +188,7 @@ impl Chart {
         );
         let _ = write!(
             s,
-            r#"<text x="{x0}" y="24" font-size="15" font-weight="bold" fill="{ink}">{t}</text><text x="{cx:.1}" y="{by:.1}" font-size="12" text-anchor="middle" fill="{ink}">{xl}</text><text transform="translate(16 {cy:.1}) rotate(-90)" font-size="12" text-anchor="middle" fill="{ink}">{yl}</text>"#,
+            r#"<text x="{x0}" y="22" font-size="15" font-weight="bold" fill="{ink}">{t}</text><text x="{cx:.1}" y="{by:.1}" font-size="12" text-anchor="middle" fill="{ink}">{xl}</text><text transform="translate(16 {cy:.1}) rotate(-90)" font-size="12" text-anchor="middle" fill="{ink}">{yl}</text>"#,
             ink = palette::INK,
             t = esc(title),
             cx = (x0 + x1) / 2.0,
@@ -331,20 +331,20 @@ impl Chart {
         );
     }
 
-    /// A legend entry list in the top-right corner.
+    /// A legend in one row under the title (between the title and the frame).
     pub fn legend(&mut self, entries: &[(&str, &str)]) {
-        let x = self.width - self.right - 150.0;
-        for (i, (colour, label)) in entries.iter().enumerate() {
-            let y = self.top + 14.0 + 16.0 * i as f64;
+        let mut x = self.left;
+        let y = self.top - 10.0;
+        for (colour, label) in entries {
             let _ = write!(
                 self.body,
-                r#"<rect x="{x}" y="{ry}" width="10" height="10" fill="{colour}"/><text x="{tx}" y="{ty}" font-size="11" fill="{ink}">{l}</text>"#,
+                r#"<rect x="{x}" y="{ry}" width="10" height="10" fill="{colour}"/><text x="{tx}" y="{y}" font-size="11" fill="{ink}">{l}</text>"#,
                 ry = y - 9.0,
-                tx = x + 15.0,
-                ty = y,
+                tx = x + 14.0,
                 ink = palette::INK,
                 l = esc(label)
             );
+            x += 14.0 + 6.5 * label.chars().count() as f64 + 16.0;
         }
     }
 

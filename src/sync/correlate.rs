@@ -13,7 +13,7 @@
 //! inverse transform is folded into the stored reference spectra, so outputs are in
 //! the units of the direct sum above.
 //!
-//! The scan kernel ([`OverlapSave::scan_block`]) fuses the correlation with the
+//! The scan kernel (`OverlapSave::scan_block`) fuses the correlation with the
 //! normalised metric `ρ[n] = |c[n]|² / (E_r · E_w[n])` where `E_r = Σ|r|²` and
 //! `E_w[n] = Σ_{m<L} |x[n+m]|²` is the window energy, kept as an f64 running sum that
 //! restarts from a direct sum at every block start (so long captures cannot drift and
@@ -195,7 +195,24 @@ impl OverlapSave {
     }
 
     fn inverse(&self, spec: &[Cf32], buf: &[Cf32], work: &mut [Cf32], fft_scratch: &mut [Cf32]) {
-        for ((w, &x), &s) in work.iter_mut().zip(buf.iter()).zip(spec.iter()) {
+        // Written out in groups of 4 so the compiler keeps it in SIMD registers.
+        let mut w4 = work.chunks_exact_mut(4);
+        let mut x4 = buf.chunks_exact(4);
+        let mut s4 = spec.chunks_exact(4);
+        for ((w, x), s) in (&mut w4).zip(&mut x4).zip(&mut s4) {
+            for k in 0..4 {
+                w[k] = Cf32::new(
+                    x[k].re * s[k].re - x[k].im * s[k].im,
+                    x[k].re * s[k].im + x[k].im * s[k].re,
+                );
+            }
+        }
+        for ((w, &x), &s) in w4
+            .into_remainder()
+            .iter_mut()
+            .zip(x4.remainder())
+            .zip(s4.remainder())
+        {
             *w = x * s;
         }
         self.inv.process_with_scratch(work, fft_scratch);
@@ -219,7 +236,7 @@ impl OverlapSave {
         threshold: f64,
         scratch: &mut [Cf32],
         c2: &mut [f32],
-        best: &mut [u32],
+        best: &mut [f32],
         emit: &mut impl FnMut(usize, f64, usize),
     ) {
         debug_assert!(first + count <= self.step());
@@ -232,42 +249,52 @@ impl OverlapSave {
             .map(|v| energy(*v))
             .sum();
         let end = first + count;
+        let c2 = &mut c2[first..end];
+        let best = &mut best[first..end];
         for (h, spec) in self.spectra.iter().enumerate() {
             self.inverse(spec, buf, work, fft_scratch);
+            let w = &work[first..end];
             if h == 0 {
-                for i in first..end {
-                    c2[i] = work[i].norm_sqr();
-                    best[i] = 0;
+                for ((c, b), v) in c2.iter_mut().zip(best.iter_mut()).zip(w) {
+                    *c = v.norm_sqr();
+                    *b = 0.0;
                 }
             } else {
-                for i in first..end {
-                    let v = work[i].norm_sqr();
-                    if v > c2[i] {
-                        c2[i] = v;
-                        best[i] = h as u32;
-                    }
+                // Branch-free select on same-width lanes (index held as f32, exact
+                // below 2^24) so the loop vectorises.
+                let hu = h as f32;
+                for ((c, b), v) in c2.iter_mut().zip(best.iter_mut()).zip(w) {
+                    let p = v.norm_sqr();
+                    let gt = p > *c;
+                    *c = if gt { p } else { *c };
+                    *b = if gt { hu } else { *b };
                 }
             }
         }
         let floor = SILENT_WINDOW_RELATIVE * block_energy;
+        // Compare |c|² ≥ γ·E_r·E_w without dividing; divide only for emitted lags.
+        let scaled = threshold * ref_energy;
         let mut ew: f64 = input[first..first + l].iter().map(|v| energy(*v)).sum();
-        for i in first..end {
-            if i > first {
+        for (j, (&c, &b)) in c2.iter().zip(best.iter()).enumerate() {
+            let i = first + j;
+            if j > 0 {
                 ew += energy(input[i + l - 1]) - energy(input[i - 1]);
             }
-            let mut e = ew;
-            if e <= floor {
+            if ew <= floor {
                 // Cancellation in the running sum could leave a residue here: recompute.
-                e = input[i..i + l].iter().map(|v| energy(*v)).sum();
-                ew = e;
+                ew = input[i..i + l].iter().map(|v| energy(*v)).sum();
             }
-            let rho = if e > floor && e > 0.0 {
-                (f64::from(c2[i]) / (ref_energy * e)).min(1.0)
+            let c = f64::from(c);
+            if threshold >= 0.0 && c < scaled * ew {
+                continue;
+            }
+            let rho = if ew > floor && ew > 0.0 {
+                (c / (ref_energy * ew)).min(1.0)
             } else {
                 0.0
             };
             if rho >= threshold {
-                emit(i, rho, best[i] as usize);
+                emit(i, rho, b as usize);
             }
         }
     }

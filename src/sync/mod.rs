@@ -338,7 +338,7 @@ struct Worker {
     chunk: Vec<Cf32>,
     scratch: Vec<Cf32>,
     c2: Vec<f32>,
-    best: Vec<u32>,
+    best: Vec<f32>,
 }
 
 /// The synchroniser: built once per training/pulse/config, shared across threads.
@@ -543,7 +543,7 @@ impl Synchroniser {
         src: &S,
     ) -> Result<Vec<Detection>, SyncError> {
         let lags = self.lag_count(src.len())?;
-        let cands = self.scan(src, 0..lags, self.threshold)?;
+        let cands = self.scan(src, 0..lags, lags, self.threshold)?;
         Ok(self.merge(cands))
     }
 
@@ -558,19 +558,21 @@ impl Synchroniser {
         let lags = self.lag_count(src.len())?;
         let range = starts.start.min(lags)..starts.end.min(lags);
         let mut out = vec![0.0; range.end.saturating_sub(range.start)];
-        for c in self.scan(src, range.clone(), -1.0)? {
+        for c in self.scan(src, range.clone(), lags, -1.0)? {
             out[c.lag - range.start] = c.rho;
         }
         Ok(out)
     }
 
-    fn new_worker(&self) -> Worker {
+    /// Buffers for one thread; the chunk buffer never exceeds the padded capture.
+    fn new_worker(&self, total_lags: usize) -> Worker {
         let step = self.corr.step();
+        let chunk_len = step * BLOCKS_PER_CHUNK.min(total_lags.div_ceil(step));
         Worker {
-            chunk: vec![Cf32::new(0.0, 0.0); step * BLOCKS_PER_CHUNK + self.corr.ref_len() - 1],
+            chunk: vec![Cf32::new(0.0, 0.0); chunk_len + self.corr.ref_len() - 1],
             scratch: vec![Cf32::new(0.0, 0.0); self.corr.scratch_len()],
             c2: vec![0.0; step],
-            best: vec![0; step],
+            best: vec![0.0; step],
         }
     }
 
@@ -580,6 +582,7 @@ impl Synchroniser {
         &self,
         src: &S,
         lags: Range<usize>,
+        total_lags: usize,
         threshold: f64,
     ) -> Result<Vec<Candidate>, SyncError> {
         if lags.start >= lags.end {
@@ -592,7 +595,7 @@ impl Synchroniser {
         let per_chunk: Vec<Result<Vec<Candidate>, SyncError>> = (c0..c1)
             .into_par_iter()
             .map_init(
-                || self.new_worker(),
+                || self.new_worker(total_lags),
                 |w, c| self.scan_chunk(src, c, &lags, threshold, w),
             )
             .collect();

@@ -168,7 +168,8 @@ fn symbol_spaced_channel_puts_the_main_tap_at_start_sample_and_pre_cursor_taps_b
     // Crate convention (src/lib.rs): y[k] = Σ_i h[i]·x[k−i], taps listed
     // h[−P..=Q], main tap at index P. The matched-filter output at symbol k must
     // equal that direct convolution of the truth symbols (slow reference).
-    let mut p = profile(PayloadPosition::After, 0, 200, true);
+    // 4500 symbols: the burst spans several synthesis blocks (BLOCK samples).
+    let mut p = profile(PayloadPosition::After, 0, 4500, true);
     p.pulse.span_symbols = 32;
     let mut spec = SynthSpec::new(p);
     let taps = parse_taps("0.2-0.1j,1.0,0.45+0.3j,-0.2").unwrap();
@@ -298,7 +299,8 @@ fn zero_offset_burst_equals_signal_shape_of_the_truth_symbols() {
     // The synthesiser's own fractional-delay pulse must reduce, at timing 0,
     // to signal::shape with signal::rrc_taps (the crate's reference shaping).
     // Tolerance 1e-5: f32 taps in shape versus f64 here, relative to a peak of ~1.
-    let p = profile(PayloadPosition::Before, 50, 0, false);
+    // 5000 symbols = 20 000+ samples: more than one synthesis block (BLOCK).
+    let p = profile(PayloadPosition::Before, 5000, 0, false);
     let mut spec = SynthSpec::new(p);
     spec.level_dbfs = -6.0;
     spec.seed = 5;
@@ -317,4 +319,50 @@ fn zero_offset_burst_equals_signal_shape_of_the_truth_symbols() {
         let got = Cf64::new(z.re as f64, z.im as f64);
         assert!((want - got).norm() < 1e-5, "sample {n}: {want} vs {got}");
     }
+}
+
+#[test]
+fn drifting_taps_turn_at_the_drift_rate_relative_to_the_main_tap() {
+    // Model of the module doc: h[t](n) = h[t]·exp(j2π·drift·(n − instant)/fs)
+    // for every tap but the main one. At 50 Hz over 1000 symbols (4 ms) the
+    // post-cursor tap turns by 1.26 rad, so a model without the drift misses
+    // by ~0.5; the reference below rotates the taps at each symbol instant.
+    // Tolerance 5e-3: the drift within one pulse (±16 symbols, ±0.02 rad,
+    // largely cancelling in the symmetric matched filter) plus truncation ISI.
+    let mut p = profile(PayloadPosition::After, 0, 1000, true);
+    p.pulse.span_symbols = 32;
+    let mut spec = SynthSpec::new(p);
+    let taps = parse_taps("0.15j,1.0,0.45-0.2j").unwrap();
+    let drift = 50.0;
+    spec.channel = Some(ChannelSpec {
+        taps: taps.clone(),
+        main_index: 1,
+        spacing: TapSpacing::Symbol,
+        drift_hz: drift,
+    });
+    let out = run(&spec).unwrap();
+    let b = &out.truth.bursts[0];
+    let fs = out.truth.sample_rate_hz;
+    let x = burst_symbols(&out.truth, b);
+    let instant = b.start_sample as f64 + b.timing_frac;
+    let mut worst = 0f64;
+    for k in 0..x.len() {
+        let t_k = (k * 4) as f64; // samples since the first training symbol
+        let mut want = Cf64::new(0.0, 0.0);
+        for (t, h) in taps.iter().enumerate() {
+            let src = k as isize - (t as isize - 1);
+            if src < 0 || src as usize >= x.len() {
+                continue;
+            }
+            let rot = if t == 1 {
+                Cf64::new(1.0, 0.0)
+            } else {
+                Cf64::from_polar(1.0, 2.0 * std::f64::consts::PI * drift * t_k / fs)
+            };
+            want += h * rot * x[src as usize];
+        }
+        let z = mf_at(&out.samples, instant + t_k, 4, 0.25, 32) / b.amplitude;
+        worst = worst.max((z - want).norm());
+    }
+    assert!(worst < 5e-3, "worst {worst}");
 }

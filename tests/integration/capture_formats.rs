@@ -295,12 +295,14 @@ fn a_partial_sample_at_the_end_is_ignored_and_counted() {
     assert_eq!(read_all(&cap).0[0], Cf32::new(0.5, -0.5));
 }
 
+// STYLE §12: the same capture through every access path (mmap with the
+// zero-copy cf32 view, positioned reads, in memory) gives byte-identical JSON,
+// including chunks that hold non-finite values (the view path cleans a copy).
 #[test]
 fn mapped_unmapped_and_in_memory_reads_give_identical_statistics() {
     use iqaudit::capture::stats::{capture_stats, info_report, StatsOptions};
     let dir = tempdir();
-    let p = dir.path().join("s.ci16");
-    let samples: Vec<Cf32> = (0..70_001)
+    let mut samples: Vec<Cf32> = (0..70_001)
         .map(|k| {
             Cf32::new(
                 ((k * 37) % 1000) as f32 / 1500.0,
@@ -308,20 +310,40 @@ fn mapped_unmapped_and_in_memory_reads_give_identical_statistics() {
             )
         })
         .collect();
-    let mut bytes = Vec::new();
-    iqaudit::capture::encode_raw(&samples, SampleFormat::Ci16Le, &mut bytes);
-    std::fs::write(&p, &bytes).unwrap();
-    let o = StatsOptions::default();
-    let json = |c: &Capture| {
-        let st = capture_stats(c, &o, &|_| {}).unwrap();
-        let mut r = info_report(c, &st, &o);
-        r.path.clear();
-        r.format_source = FormatSource::Memory;
-        serde_json::to_string(&r).unwrap()
-    };
-    let a = json(&Capture::open(&p, &OpenOptions::default()).unwrap());
-    let b = json(&Capture::open_unmapped(&p, &OpenOptions::default()).unwrap());
-    let c = json(&Capture::from_bytes(bytes, SampleFormat::Ci16Le));
-    assert_eq!(a, b);
-    assert_eq!(a, c);
+    samples[66_000] = Cf32::new(f32::NAN, 0.5);
+    for f in [
+        SampleFormat::Ci16Le,
+        SampleFormat::Cf32Le,
+        SampleFormat::Cu8,
+    ] {
+        let p = dir.path().join(format!("s.{}", f.name()));
+        let mut bytes = Vec::new();
+        iqaudit::capture::encode_raw(&samples, f, &mut bytes);
+        std::fs::write(&p, &bytes).unwrap();
+        let o = StatsOptions::default();
+        let json = |c: &Capture| {
+            let st = capture_stats(c, &o, &|_| {}).unwrap();
+            let mut r = info_report(c, &st, &o);
+            r.path.clear();
+            r.format_source = FormatSource::Memory;
+            r.file_size_bytes = 0;
+            serde_json::to_string(&r).unwrap()
+        };
+        let opts = OpenOptions {
+            format: Some(f),
+            ..OpenOptions::default()
+        };
+        let mapped = Capture::open(&p, &opts).unwrap();
+        if f == SampleFormat::Cf32Le && cfg!(target_endian = "little") {
+            assert!(mapped.as_cf32_slice().is_some(), "view path exercised");
+        }
+        let a = json(&mapped);
+        let b = json(&Capture::open_unmapped(&p, &opts).unwrap());
+        let c = json(&Capture::from_bytes(bytes, f));
+        assert_eq!(a, b, "{f}");
+        assert_eq!(a, c, "{f}");
+        if f == SampleFormat::Cf32Le {
+            assert!(a.contains("\"non_finite_samples\":1"), "{a}");
+        }
+    }
 }

@@ -9,6 +9,8 @@ mod capture_formats;
 mod info_cli;
 mod large_capture;
 mod profile;
+mod sample_captures;
 mod signal;
+mod sync;
 mod synth;
 mod util;

@@ -1,0 +1,150 @@
+//! Synchroniser search throughput (samples/s), single thread and all threads, next to
+//! a single rustfft 4096-point FFT on the same machine.
+//!
+//! Takes in: optional `SYNC_BENCH_SAMPLES` (default 134 217 728 = 1 GiB of cf32) and
+//! `SYNC_BENCH_REPEATS` (default 3; the best run is reported), `SYNC_BENCH_CASES` (1 = only
+//! the one-hypothesis case). Gives out: a table on
+//! stdout. The capture is built in memory: complex white noise (Es/N0 10 dB relative to
+//! the bursts) with one QPSK burst (127-symbol training, sps 4, RRC β 0.25, 8-symbol
+//! span) every 2^20 samples. Run with `cargo bench --bench sync`.
+use std::time::Instant;
+
+use iqaudit::signal::rrc::{rrc_taps, shape};
+use iqaudit::sync::{SyncConfig, Synchroniser};
+use iqaudit::Cf32;
+use rand::{Rng, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use rand_distr::StandardNormal;
+use rayon::prelude::*;
+use rustfft::FftPlanner;
+
+const SPS: usize = 4;
+
+fn qpsk(n: usize, rng: &mut ChaCha8Rng) -> Vec<Cf32> {
+    let a = std::f32::consts::FRAC_1_SQRT_2;
+    (0..n)
+        .map(|_| {
+            Cf32::new(
+                if rng.gen() { a } else { -a },
+                if rng.gen() { a } else { -a },
+            )
+        })
+        .collect()
+}
+
+fn env_usize(key: &str, default: usize) -> usize {
+    std::env::var(key)
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(default)
+}
+
+/// Process CPU time (user + system) in seconds from /proc/self/stat (Linux; 0 elsewhere).
+fn cpu_seconds() -> f64 {
+    let Ok(stat) = std::fs::read_to_string("/proc/self/stat") else {
+        return 0.0;
+    };
+    let Some(rest) = stat.rsplit(')').next() else {
+        return 0.0;
+    };
+    let f: Vec<&str> = rest.split_whitespace().collect();
+    // Fields 14 and 15 of the whole line (utime, stime) are 12 and 13 after the ')'.
+    let ticks: f64 = f.get(11).and_then(|v| v.parse().ok()).unwrap_or(0.0)
+        + f.get(12).and_then(|v| v.parse().ok()).unwrap_or(0.0);
+    ticks / 100.0
+}
+
+/// Best wall time over `repeats`, with the CPU time of that run.
+fn best_of<T>(repeats: usize, mut f: impl FnMut() -> T) -> (f64, f64, T) {
+    let mut best = (f64::INFINITY, 0.0);
+    let mut out = None;
+    for _ in 0..repeats {
+        let c = cpu_seconds();
+        let t = Instant::now();
+        let r = f();
+        let wall = t.elapsed().as_secs_f64();
+        if wall < best.0 {
+            best = (wall, cpu_seconds() - c);
+        }
+        out = Some(r);
+    }
+    (best.0, best.1, out.expect("at least one repeat"))
+}
+
+fn main() {
+    let n = env_usize("SYNC_BENCH_SAMPLES", 1 << 27);
+    let repeats = env_usize("SYNC_BENCH_REPEATS", 3).max(1);
+    let taps = rrc_taps(0.25, 8, SPS);
+    let training = qpsk(127, &mut ChaCha8Rng::seed_from_u64(7));
+
+    // Build the capture in parallel, block by block, deterministically.
+    let t = Instant::now();
+    const BLOCK: usize = 1 << 20;
+    let mut x = vec![Cf32::new(0.0, 0.0); n];
+    x.par_chunks_mut(BLOCK).enumerate().for_each(|(b, chunk)| {
+        let mut rng = ChaCha8Rng::seed_from_u64(1000 + b as u64);
+        let s = (0.1f64 / 2.0).sqrt();
+        for v in chunk.iter_mut() {
+            let a: f64 = rng.sample(StandardNormal);
+            let c: f64 = rng.sample(StandardNormal);
+            *v = Cf32::new((a * s) as f32, (c * s) as f32);
+        }
+        let mut symbols = qpsk(100, &mut rng);
+        symbols.extend_from_slice(&training);
+        symbols.extend(qpsk(300, &mut rng));
+        let burst = shape(&symbols, &taps, SPS);
+        let at = 5000;
+        if at + burst.len() < chunk.len() {
+            for (v, b) in chunk[at..].iter_mut().zip(&burst) {
+                *v += *b;
+            }
+        }
+    });
+    eprintln!("built {n} samples in {:.1} s", t.elapsed().as_secs_f64());
+
+    // One rustfft 4096-point forward FFT, single thread.
+    let fft = FftPlanner::<f32>::new().plan_fft_forward(4096);
+    let mut buf = x[..4096].to_vec();
+    let mut scratch = vec![Cf32::new(0.0, 0.0); fft.get_inplace_scratch_len()];
+    let reps = 20_000;
+    let (secs, _, _) = best_of(repeats, || {
+        for _ in 0..reps {
+            fft.process_with_scratch(&mut buf, &mut scratch);
+        }
+    });
+    let fft_sps = (reps * 4096) as f64 / secs;
+    println!(
+        "rustfft 4096-point forward FFT, 1 thread: {:.1} µs/FFT, {:.0} M samples/s",
+        secs / reps as f64 * 1e6,
+        fft_sps / 1e6
+    );
+
+    let all = rayon::current_num_threads();
+    for &(label, max_cfo_hz) in &[
+        ("1 hypothesis (max_cfo 0)", 0.0),
+        ("7 hypotheses (max_cfo 1 % of Rs)", 2500.0),
+    ] {
+        let cfg = SyncConfig {
+            max_cfo_hz,
+            ..SyncConfig::new(SPS, 1e6)
+        };
+        let s = Synchroniser::new(&training, &taps, cfg).expect("valid settings");
+        for threads in [1, all] {
+            let pool = rayon::ThreadPoolBuilder::new()
+                .num_threads(threads)
+                .build()
+                .expect("thread pool");
+            let (secs, cpu, found) =
+                best_of(repeats, || pool.install(|| s.search(&x).expect("search")));
+            println!(
+                "search, {label}, {threads} thread(s): {:.0} M samples/s wall, {:.0} M samples per CPU-second ({} bursts, {:.2} s wall, {:.2} s CPU, {} samples)",
+                n as f64 / secs / 1e6,
+                n as f64 / cpu.max(1e-9) / 1e6,
+                found.len(),
+                secs,
+                cpu,
+                n
+            );
+        }
+    }
+}
