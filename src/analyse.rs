@@ -361,11 +361,21 @@ pub fn analyse_capture(
         path: path.to_path_buf(),
         source,
     })?;
-    // The capture layer labels any format passed in its options "from --format";
-    // here it may have come from the profile instead.
+    // The capture layer cannot tell --format from the profile's format (both
+    // reach it as an open option); name the one that was used.
     let mut format = capture.format_description();
-    if opts.format.is_none() && capture.format_source() == crate::capture::FormatSource::Option {
-        format = format.replacen("from --format", "from the profile", 1);
+    if capture.format_source() == crate::capture::FormatSource::Option {
+        let by = if opts.format.is_some() {
+            "from --format"
+        } else {
+            "from the profile"
+        };
+        let swap = if capture.swap_iq() {
+            ", I/Q swapped"
+        } else {
+            ""
+        };
+        format = format!("{} ({by}{swap})", capture.container());
     }
     Ok(Report {
         schema: SCHEMA.to_string(),
