@@ -117,6 +117,47 @@ pub fn open_options(
     })
 }
 
+/// Open the capture with the precedence of the product contract: `--format` /
+/// `--sample-rate` first, then what the file says (SigMF sidecar, WAV header),
+/// then the profile's `capture.format` / `capture.sample_rate_hz`, then the file
+/// extension. [`open_options`] alone would let the profile override the file.
+///
+/// # Errors
+/// The capture cannot be opened.
+pub fn open_capture(
+    path: &Path,
+    profile: &ResolvedProfile,
+    opts: &AnalyseOptions,
+) -> Result<Capture, Error> {
+    use crate::capture::FormatSource;
+    let with_profile = open_options(profile, opts)?;
+    // First let the file speak: only the command-line overrides.
+    let explicit = OpenOptions {
+        format: opts.format,
+        sample_rate_hz: opts.sample_rate_hz,
+        swap_iq: profile.capture.swap_iq,
+    };
+    if let Ok(c) = Capture::open(path, &explicit) {
+        let file_says = opts.format.is_some()
+            || matches!(
+                c.format_source(),
+                FormatSource::Sigmf | FormatSource::WavHeader
+            );
+        if file_says {
+            if c.sample_rate_hz().is_some() || with_profile.sample_rate_hz.is_none() {
+                return Ok(c);
+            }
+            // The file gave the format but no rate: take the profile's rate.
+            let rate = OpenOptions {
+                sample_rate_hz: with_profile.sample_rate_hz,
+                ..explicit
+            };
+            return Ok(Capture::open(path, &rate)?);
+        }
+    }
+    Ok(Capture::open(path, &with_profile)?)
+}
+
 fn burst_config(profile: &ResolvedProfile) -> BurstConfig {
     let mut cfg = BurstConfig::default();
     let fit = &profile.channel_fit;
@@ -260,8 +301,7 @@ pub fn analyse_capture(
     profile: &ResolvedProfile,
     opts: &AnalyseOptions,
 ) -> Result<Report, Error> {
-    let open = open_options(profile, opts)?;
-    let capture = Capture::open(path, &open)?;
+    let capture = open_capture(path, profile, opts)?;
     let plan = Plan::new(profile, &capture)?;
     let sync = synchroniser(profile, &plan)?;
     let src = ChunkReader::new(capture.len(), |s, out: &mut [Cf32]| {
@@ -322,6 +362,22 @@ pub fn analyse_capture(
         path: path.to_path_buf(),
         source,
     })?;
+    // The capture layer cannot tell --format from the profile's format (both
+    // reach it as an open option); name the one that was used.
+    let mut format = capture.format_description();
+    if capture.format_source() == crate::capture::FormatSource::Option {
+        let by = if opts.format.is_some() {
+            "from --format"
+        } else {
+            "from the profile"
+        };
+        let swap = if capture.swap_iq() {
+            ", I/Q swapped"
+        } else {
+            ""
+        };
+        format = format!("{} ({by}{swap})", capture.container());
+    }
     Ok(Report {
         schema: SCHEMA.to_string(),
         tool: ToolInfo {
@@ -333,7 +389,7 @@ pub fn analyse_capture(
             path: path.display().to_string(),
             size_bytes,
             sha256,
-            format: capture.format_description(),
+            format,
             sample_rate_hz: plan.sample_rate_hz,
             center_freq_hz: plan.center_freq_hz,
             samples: capture.len() as u64,

@@ -3,6 +3,7 @@
 //! Takes in: committed vectors under tests/vectors and tests/data, and captures
 //! generated in per-test temporary directories. Gives out: pass/fail.
 
+mod analyse;
 mod bad_input;
 mod batch;
 mod batch_cli;
