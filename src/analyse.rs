@@ -103,10 +103,7 @@ fn profile_format(profile: &ResolvedProfile) -> Result<Option<SampleFormat>, Err
 }
 
 /// Open options for a capture analysed with `profile` and `opts`.
-pub fn open_options(
-    profile: &ResolvedProfile,
-    opts: &AnalyseOptions,
-) -> Result<OpenOptions, Error> {
+fn open_options(profile: &ResolvedProfile, opts: &AnalyseOptions) -> Result<OpenOptions, Error> {
     Ok(OpenOptions {
         format: match opts.format {
             Some(f) => Some(f),
@@ -473,7 +470,15 @@ fn analyse_burst<S: SampleSource + ?Sized>(
         slicer: &plan.constellation,
         known: known.as_deref(),
     };
-    let out = process_burst(&view, &plan.burst_cfg)?;
+    // The carrier-frequency fit uses only the frame's symbols present in the
+    // capture, not the padding around it.
+    let mut cfg = plan.burst_cfg;
+    let frame = offset - plan.before..offset + l + plan.after;
+    cfg.carrier.fit_range = Some((
+        frame.start.max(avail.start),
+        frame.end.min(avail.end).max(frame.start.max(avail.start)),
+    ));
+    let out = process_burst(&view, &cfg)?;
 
     // The reported equaliser: the profile's choice, or the MMSE-DFE if it refused.
     let wanted = chosen_name(profile);

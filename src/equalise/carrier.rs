@@ -48,6 +48,11 @@ pub struct CarrierConfig {
     /// Loop kept running inside the equalisers after the correction (default
     /// `BnT` 0.002, ζ = 0.707).
     pub tracking_loop: LoopConfig,
+    /// Indices `[start, end)` of `y` whose phase points enter the frequency fit
+    /// (default `None`: all of `y`). A caller that pads the burst with samples
+    /// outside the frame (noise, or a neighbour) restricts the fit to the frame,
+    /// where decisions mean something.
+    pub fit_range: Option<(usize, usize)>,
 }
 
 impl Default for CarrierConfig {
@@ -63,6 +68,7 @@ impl Default for CarrierConfig {
                 bandwidth: 0.002,
                 damping: z,
             },
+            fit_range: None,
         }
     }
 }
@@ -224,12 +230,15 @@ pub(crate) fn refine_carrier(
     let out = eq.run(burst)?;
     let points = burst.slicer.points();
     let tr = burst.offset..burst.offset + burst.training.len();
+    let (lo, hi) = cfg.carrier.fit_range.unwrap_or((0, burst.y.len()));
+    let keep = lo.min(burst.y.len())..hi.min(burst.y.len());
     let phases = out
         .soft
         .iter()
         .zip(&out.labels)
         .zip(&out.phase_rad)
         .enumerate()
+        .filter(|(n, _)| keep.contains(n))
         .map(|(n, ((z, l), p))| {
             let d = if tr.contains(&n) {
                 burst.training[n - burst.offset]
