@@ -2,7 +2,7 @@
 //! and seeded signal helpers.
 //!
 //! Takes in: plain slices. Gives out: freshly allocated results. Nothing here
-//! is optimised; every routine is a direct transcription of its definition.
+//! is optimised; every routine is a direct restatement of its definition.
 
 use crate::Cf32;
 use rand::{Rng, SeedableRng};

@@ -597,7 +597,7 @@ mod tests {
         }
     }
 
-    /// Direct transcription of the TS 38.211 §5.1 closed form (independent of `axis_level`).
+    /// Direct restatement of the TS 38.211 §5.1 closed form (independent of `axis_level`).
     fn ts38211_closed_form(m: Modulation, b: &[u8]) -> (f64, f64) {
         let s = |k: usize| 1.0 - 2.0 * b[k] as f64;
         match m {

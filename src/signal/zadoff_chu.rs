@@ -95,7 +95,7 @@ mod tests {
 
     #[test]
     fn pss_root_25_matches_ts36211_values() {
-        // Source: 3GPP TS 36.211 §6.11.1.1 PSS d_u(n) (formula verified via transcriptions;
+        // Source: 3GPP TS 36.211 §6.11.1.1 PSS d_u(n) (formula verified via restatements;
         // values computed in REFERENCE-VALUES.md §2): PSS = length-63 ZC with element 31
         // removed. Tolerance 2e-6: the table has 6 decimals, values are f32.
         let x = zadoff_chu(25, 63, 0);
