@@ -145,23 +145,29 @@ pub fn exit_code(result: Result<Outcome, Error>) -> ExitCode {
     }
 }
 
+/// Parse an optional `--format` value; a bad name is an error naming `path`
+/// (the capture or folder it was meant for) and listing the accepted names.
+pub(crate) fn parse_format_arg(
+    name: Option<&str>,
+    path: &std::path::Path,
+) -> Result<Option<SampleFormat>, Error> {
+    match name {
+        None => Ok(None),
+        Some(name) => Ok(Some(name.parse::<SampleFormat>().map_err(|e| {
+            CaptureError::BadFormatName {
+                path: path.to_path_buf(),
+                found: e.found,
+                accepted: e.accepted,
+            }
+        })?)),
+    }
+}
+
 /// Samples above which `info` shows a progress bar (on a terminal).
 const PROGRESS_MIN_SAMPLES: usize = 64 << 20;
 
 fn run_info(args: &InfoArgs) -> Result<Outcome, Error> {
-    let format = match &args.format {
-        None => None,
-        Some(name) => {
-            Some(
-                name.parse::<SampleFormat>()
-                    .map_err(|e| CaptureError::BadFormatName {
-                        path: args.capture.clone(),
-                        found: e.found,
-                        accepted: e.accepted,
-                    })?,
-            )
-        }
-    };
+    let format = parse_format_arg(args.format.as_deref(), &args.capture)?;
     let opts = OpenOptions {
         format,
         sample_rate_hz: args.sample_rate,

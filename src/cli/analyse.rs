@@ -10,7 +10,7 @@ use iqaudit::profile::load_profile;
 use iqaudit::report::plots::write_plots;
 use iqaudit::report::schema::{Report, VerdictResult};
 use iqaudit::report::write::{ensure_not_an_input, write_atomic};
-use iqaudit::{CaptureError, Constellation, Error, SampleFormat};
+use iqaudit::{Constellation, Error};
 
 use super::Outcome;
 
@@ -119,19 +119,7 @@ pub fn run_analyse(args: &AnalyseArgs, argv: &[String]) -> Result<Outcome, Error
             ),
         });
     }
-    let format = match &args.format {
-        None => None,
-        Some(name) => {
-            Some(
-                name.parse::<SampleFormat>()
-                    .map_err(|e| CaptureError::BadFormatName {
-                        path: args.capture.clone(),
-                        found: e.found,
-                        accepted: e.accepted,
-                    })?,
-            )
-        }
-    };
+    let format = super::parse_format_arg(args.format.as_deref(), &args.capture)?;
     if let Some(r) = &args.report {
         check_output(r, &args.capture)?;
     }

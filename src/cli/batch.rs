@@ -16,7 +16,7 @@ use iqaudit::batch::{
     ProgressMode, Shard,
 };
 use iqaudit::profile::load_profile;
-use iqaudit::{CaptureError, Error, SampleFormat};
+use iqaudit::Error;
 
 use super::Outcome;
 
@@ -125,19 +125,7 @@ pub fn run_batch_cmd(args: &BatchArgs, argv: &[String]) -> Result<Outcome, Error
             message: "batch needs DIR and --profile (or --merge)".to_string(),
         });
     };
-    let format = match &args.format {
-        None => None,
-        Some(name) => {
-            Some(
-                name.parse::<SampleFormat>()
-                    .map_err(|e| CaptureError::BadFormatName {
-                        path: dir.clone(),
-                        found: e.found,
-                        accepted: e.accepted,
-                    })?,
-            )
-        }
-    };
+    let format = super::parse_format_arg(args.format.as_deref(), dir)?;
     let profile = load_profile(profile_path)?;
     let sha = profile_sha256(&profile).map_err(|e| Error::Usage {
         message: format!("{}: {e}", profile_path.display()),
