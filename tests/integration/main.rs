@@ -4,6 +4,7 @@
 //! generated in per-test temporary directories. Gives out: pass/fail.
 
 mod bad_input;
+mod bad_inputs;
 mod capture_formats;
 mod info_cli;
 mod large_capture;
