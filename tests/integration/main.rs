@@ -6,6 +6,7 @@
 mod bad_input;
 mod bad_inputs;
 mod capture_formats;
+mod fuzz_seeds;
 mod info_cli;
 mod large_capture;
 mod profile;
