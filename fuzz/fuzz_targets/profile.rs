@@ -24,12 +24,17 @@ fuzz_target!(|data: &[u8]| {
             return;
         }
     };
-    resolved.validate().expect("resolve's output passes validate");
+    resolved
+        .validate()
+        .expect("resolve's output passes validate");
     let json = serde_json::to_string(&resolved).expect("serialises");
     let back: ResolvedProfile = serde_json::from_str(&json).expect("reads back");
     assert_eq!(back, resolved);
 
-    if !matches!(resolved.training.sequence, ResolvedSequence::SymbolsFile { .. }) {
+    if !matches!(
+        resolved.training.sequence,
+        ResolvedSequence::SymbolsFile { .. }
+    ) {
         match resolved.training_symbols() {
             Ok(t) => {
                 assert_eq!(Some(t.len()), resolved.training.length_symbols);

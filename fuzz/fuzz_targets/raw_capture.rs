@@ -63,7 +63,10 @@ fuzz_target!(|data: &[u8]| {
     let (mut start, mut nf) = (0, 0);
     while start < cap.len() {
         let n = chunk.min(cap.len() - start);
-        nf += cap.read_into(start, &mut buf[..n]).expect("chunk").non_finite;
+        nf += cap
+            .read_into(start, &mut buf[..n])
+            .expect("chunk")
+            .non_finite;
         assert_eq!(&buf[..n], &whole[start..start + n]);
         start += n;
     }
