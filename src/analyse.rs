@@ -298,6 +298,7 @@ pub fn analyse_capture(
     profile: &ResolvedProfile,
     opts: &AnalyseOptions,
 ) -> Result<Report, Error> {
+    profile.validate()?;
     let capture = open_capture(path, profile, opts)?;
     let plan = Plan::new(profile, &capture)?;
     let sync = synchroniser(profile, &plan)?;
@@ -999,24 +1000,35 @@ fn count_numbers(v: &serde_json::Value) -> usize {
     }
 }
 
-/// Re-run the analysis recorded in a report and compare every figure exactly.
+/// A report read back for `recheck`, checked before any file it names is touched.
+#[derive(Debug, Clone)]
+pub struct RecordedReport {
+    /// The report as JSON (the figures are compared value by value).
+    pub value: serde_json::Value,
+    /// The report as typed data.
+    pub report: Report,
+    /// The resolved profile it recorded, re-validated
+    /// ([`ResolvedProfile::validate`]).
+    pub profile: ResolvedProfile,
+    /// The `--format` override it recorded.
+    pub format: Option<SampleFormat>,
+}
+
+/// Parse and check report text for `recheck` without touching any other file:
+/// valid JSON, schema `iqaudit-report/1`, every key known, `input.sha256` a
+/// 64-digit hex string, the recorded profile usable and within the caps of
+/// `crate::limits`, the format override a known format. `report_path` only
+/// names the report in errors.
 ///
 /// # Errors
-/// [`Error::Report`] when the report cannot be read or is not an
-/// `iqaudit-report/1` document; [`Error::Io`] when the capture is missing;
-/// [`Error::InputChanged`] when its SHA-256 differs from the recorded one; and
-/// any error of [`analyse_capture`].
-pub fn recheck(report_path: &Path) -> Result<RecheckResult, Error> {
+/// [`Error::Report`] naming what is wrong.
+pub fn parse_recorded_report(text: &str, report_path: &Path) -> Result<RecordedReport, Error> {
     let bad = |message: String| Error::Report {
         path: report_path.to_path_buf(),
         message,
     };
-    let text = std::fs::read_to_string(report_path).map_err(|source| Error::Io {
-        path: report_path.to_path_buf(),
-        source,
-    })?;
     let recorded: serde_json::Value =
-        serde_json::from_str(&text).map_err(|e| bad(format!("not valid JSON ({e})")))?;
+        serde_json::from_str(text).map_err(|e| bad(format!("not valid JSON ({e})")))?;
     let schema = recorded
         .get("schema")
         .and_then(|s| s.as_str())
@@ -1034,6 +1046,57 @@ pub fn recheck(report_path: &Path) -> Result<RecheckResult, Error> {
             report.input.sha256
         )));
     }
+    let profile: ResolvedProfile = serde_json::from_value(report.profile.clone())
+        .map_err(|e| bad(format!("the recorded profile is not usable: {e}")))?;
+    profile
+        .validate()
+        .map_err(|e| bad(format!("the recorded profile is not usable: profile.{e}")))?;
+    let format = match &report.provenance.format_override {
+        Some(name) => Some(name.parse::<SampleFormat>().map_err(|_| {
+            bad(format!(
+                "provenance.format_override '{name}' is not a format"
+            ))
+        })?),
+        None => None,
+    };
+    if let Some(r) = report.provenance.sample_rate_override_hz {
+        if !(r.is_finite() && r > 0.0) {
+            return Err(bad(format!(
+                "provenance.sample_rate_override_hz {r} is not a positive rate"
+            )));
+        }
+    }
+    Ok(RecordedReport {
+        value: recorded,
+        report,
+        profile,
+        format,
+    })
+}
+
+/// Re-run the analysis recorded in a report and compare every figure exactly.
+///
+/// # Errors
+/// [`Error::Report`] when the report cannot be read or is not an
+/// `iqaudit-report/1` document (see [`parse_recorded_report`]); [`Error::Io`]
+/// when the capture is missing; [`Error::InputChanged`] when its SHA-256 differs
+/// from the recorded one; and any error of [`analyse_capture`].
+pub fn recheck(report_path: &Path) -> Result<RecheckResult, Error> {
+    let bad = |message: String| Error::Report {
+        path: report_path.to_path_buf(),
+        message,
+    };
+    let text = crate::limits::read_small_text(report_path, crate::limits::MAX_REPORT_BYTES)
+        .map_err(|source| Error::Io {
+            path: report_path.to_path_buf(),
+            source,
+        })?;
+    let RecordedReport {
+        value: recorded,
+        report,
+        profile,
+        format,
+    } = parse_recorded_report(&text, report_path)?;
     let input = locate_input(report_path, &report.input.path);
     let found = sha256_file(&input).map_err(|source| Error::Io {
         path: input.clone(),
@@ -1046,16 +1109,6 @@ pub fn recheck(report_path: &Path) -> Result<RecheckResult, Error> {
             found,
         });
     }
-    let profile: ResolvedProfile = serde_json::from_value(report.profile.clone())
-        .map_err(|e| bad(format!("the recorded profile is not usable: {e}")))?;
-    let format = match &report.provenance.format_override {
-        Some(name) => Some(name.parse::<SampleFormat>().map_err(|_| {
-            bad(format!(
-                "provenance.format_override '{name}' is not a format"
-            ))
-        })?),
-        None => None,
-    };
     let opts = AnalyseOptions {
         format,
         sample_rate_hz: report.provenance.sample_rate_override_hz,

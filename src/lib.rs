@@ -66,6 +66,7 @@ pub mod capture;
 pub mod channel;
 pub mod equalise;
 mod error;
+pub mod limits;
 pub mod profile;
 pub mod report;
 pub mod signal;

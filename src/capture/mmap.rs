@@ -9,6 +9,14 @@
 //!
 //! This file holds the crate's only `unsafe` block (the call to `Mmap::map`).
 //! Everything else takes `&[u8]` or `&[Cf32]`.
+//!
+//! Truncation while mapped: touching a mapped page that lies past the file's
+//! current end raises SIGBUS, which no `Result` can catch. So every access to a
+//! mapped range first asks the kernel for the file's current length (`fstat` on
+//! the open descriptor, [`Source::ensure_present`]) and returns an
+//! `UnexpectedEof` error when the range is gone. Callers access the map in
+//! chunks, so the check costs one system call per chunk; it leaves only the
+//! window between that call and the copy of one chunk (docs/robustness.md).
 
 use std::cell::RefCell;
 use std::fs::File;
@@ -20,8 +28,14 @@ use memmap2::Mmap;
 /// How the bytes of a capture are reached.
 #[derive(Debug)]
 pub(crate) enum Source {
-    /// A read-only map of the whole file.
-    Mapped(Mmap),
+    /// A read-only map of the whole file, and the file (kept open so its
+    /// current length can be checked before each access).
+    Mapped {
+        /// The map.
+        map: Mmap,
+        /// The mapped file.
+        file: File,
+    },
     /// Bytes owned in memory.
     Memory(Vec<u8>),
     /// Positioned reads from the file (fallback when mapping is not possible).
@@ -54,10 +68,15 @@ impl Source {
         if access == Access::MapOrRead && usize::try_from(len).is_ok() {
             // SAFETY: the map is read-only and this crate never writes through it
             // or to the file. The remaining hazard is another process truncating
-            // or rewriting the file while it is mapped: reads from the vanished
-            // part raise SIGBUS, which no `Result` can catch. That is the same
-            // contract ripgrep accepts for its search input; users are told in
-            // the README not to analyse files that are still being written.
+            // the file while it is mapped: reads from the vanished part raise
+            // SIGBUS, which no `Result` can catch. Every access goes through
+            // `ensure_present`, which re-reads the file length with fstat just
+            // before the chunk is touched and turns a vanished range into an
+            // error; only a truncation racing that one chunk copy can still
+            // fault. Rewriting in place (same length) changes the samples seen,
+            // not memory safety: the bytes are plain `u8`/`f32` with no
+            // invariants. Users are told (docs/robustness.md) not to analyse
+            // files that are still being written.
             match unsafe { Mmap::map(&file) } {
                 Ok(map) => {
                     #[cfg(unix)]
@@ -65,7 +84,7 @@ impl Source {
                         // Advice only; failure changes nothing but speed.
                         let _ = map.advise(memmap2::Advice::Sequential);
                     }
-                    return Source::Mapped(map);
+                    return Source::Mapped { map, file };
                 }
                 Err(_) => {
                     if std::env::var_os("IQAUDIT_DEBUG").is_some() {
@@ -83,7 +102,7 @@ impl Source {
     /// Total length in bytes.
     pub(crate) fn len(&self) -> u64 {
         match self {
-            Source::Mapped(m) => m.len() as u64,
+            Source::Mapped { map, .. } => map.len() as u64,
             Source::Memory(v) => v.len() as u64,
             Source::File { len, .. } => *len,
         }
@@ -92,7 +111,7 @@ impl Source {
     /// The whole source as one slice, when it is in memory (mapped or owned).
     pub(crate) fn as_slice(&self) -> Option<&[u8]> {
         match self {
-            Source::Mapped(m) => Some(&m[..]),
+            Source::Mapped { map, .. } => Some(&map[..]),
             Source::Memory(v) => Some(&v[..]),
             Source::File { .. } => None,
         }
@@ -101,10 +120,29 @@ impl Source {
     /// A short name of the access path, for diagnostics.
     pub(crate) fn kind(&self) -> &'static str {
         match self {
-            Source::Mapped(_) => "mmap",
+            Source::Mapped { .. } => "mmap",
             Source::Memory(_) => "memory",
             Source::File { .. } => "read",
         }
+    }
+
+    /// For a mapped file: check that bytes up to `end` still exist in the file
+    /// (another process may have truncated it since it was mapped); a no-op for
+    /// the other sources, which cannot fault.
+    pub(crate) fn ensure_present(&self, end: u64) -> io::Result<()> {
+        if let Source::Mapped { file, .. } = self {
+            let now = file.metadata()?.len();
+            if now < end {
+                return Err(io::Error::new(
+                    io::ErrorKind::UnexpectedEof,
+                    format!(
+                        "the file shrank to {now} bytes while open (truncated by another \
+                         process?); {end} bytes are needed"
+                    ),
+                ));
+            }
+        }
+        Ok(())
     }
 
     /// Call `f` with the bytes `[offset, offset + len)`.
@@ -125,6 +163,7 @@ impl Source {
             ));
         }
         if let Some(all) = self.as_slice() {
+            self.ensure_present(offset + len as u64)?;
             let start = offset as usize;
             return Ok(f(&all[start..start + len]));
         }

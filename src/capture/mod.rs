@@ -37,6 +37,7 @@ use serde::{Deserialize, Serialize};
 use crate::Cf32;
 use mmap::{Access, Source};
 
+pub use sigmf::{parse_sidecar as parse_sigmf_meta, SigmfMeta};
 pub use write::{encode_raw, write_capture, WriteSpec, WriteStats};
 
 /// Raw interleaved complex sample layouts, named as SigMF `core:datatype` names.
@@ -291,7 +292,7 @@ pub enum CaptureError {
         source: std::io::Error,
     },
     /// The path is a directory or other non-regular file.
-    #[error("{}: not a regular file (a directory?); give the path of a capture file", path.display())]
+    #[error("{}: not a regular file (a directory, FIFO or device?); give the path of a capture file", path.display())]
     NotAFile {
         /// The path.
         path: PathBuf,
@@ -691,11 +692,11 @@ impl Capture {
                 })
             }
         };
-        let _ = end;
         let bps = self.container.bytes_per_sample();
         let offset = self.data_offset + (start as u64) * bps as u64;
         let stats = match self.as_cf32_view() {
             Some(view) => {
+                self.ensure_present(start, end)?;
                 let mut st = ReadStats::default();
                 for (o, s) in out.iter_mut().zip(&view[start..]) {
                     let (v, c) = raw::check_float(*s);
@@ -721,6 +722,27 @@ impl Capture {
             }
         }
         Ok(stats)
+    }
+
+    /// Check that samples `[start, end)` are still in the file: a memory-mapped
+    /// file may have been truncated by another process since it was opened, and
+    /// touching the vanished part would kill the process with SIGBUS. Call this
+    /// before reading a range of [`as_cf32_slice`](Self::as_cf32_slice);
+    /// [`read_into`](Self::read_into) calls it itself.
+    ///
+    /// # Errors
+    /// [`CaptureError::Read`] (kind `UnexpectedEof`) when the range is gone.
+    pub fn ensure_present(&self, start: usize, end: usize) -> Result<(), CaptureError> {
+        let bps = self.container.bytes_per_sample() as u64;
+        let first = self.data_offset + start as u64 * bps;
+        let last = self.data_offset + end as u64 * bps;
+        self.source
+            .ensure_present(last)
+            .map_err(|source| CaptureError::Read {
+                path: self.path.clone(),
+                offset_bytes: first,
+                source,
+            })
     }
 
     /// A zero-copy view of all samples: only for `cf32_le` (raw or float WAV is
@@ -773,6 +795,45 @@ mod tests {
         }
         let err = "ci12".parse::<SampleFormat>().unwrap_err();
         assert!(err.to_string().contains("cf32_le, cf32_be"), "{err}");
+    }
+
+    /// Issue 8 regression: a capture truncated by another process while it is
+    /// memory-mapped used to kill the process with SIGBUS on the next read of
+    /// the vanished range; now the read is a typed error and the part still in
+    /// the file reads as before. Covers the zero-copy (`cf32_le`) and the
+    /// decoding (`ci16_le`) paths.
+    #[test]
+    fn a_capture_truncated_while_mapped_gives_a_read_error_not_sigbus() {
+        for (ext, bps) in [("cf32", 8usize), ("ci16", 4)] {
+            let dir = tempfile::tempdir().unwrap();
+            let p = dir.path().join(format!("shrinking.{ext}"));
+            let bytes: Vec<u8> = (0..(1usize << 20)).map(|i| (i % 251) as u8).collect();
+            std::fs::write(&p, &bytes).unwrap();
+            let cap = Capture::open(&p, &OpenOptions::default()).unwrap();
+            assert_eq!(cap.access_path(), "mmap");
+            let len = cap.len();
+            assert_eq!(len, bytes.len() / bps);
+            let mut head = vec![Cf32::default(); 16];
+            let before = cap.read_into(0, &mut head).unwrap();
+            std::fs::OpenOptions::new()
+                .write(true)
+                .open(&p)
+                .unwrap()
+                .set_len(8192)
+                .unwrap();
+            let mut tail = vec![Cf32::default(); 4096];
+            let e = cap.read_into(len - 4096, &mut tail).unwrap_err();
+            match &e {
+                CaptureError::Read { source, .. } => {
+                    assert_eq!(source.kind(), std::io::ErrorKind::UnexpectedEof, "{e}");
+                }
+                other => panic!("{ext}: expected a read error, got {other:?}"),
+            }
+            assert!(e.to_string().contains("shrank"), "{e}");
+            let mut again = vec![Cf32::default(); 16];
+            assert_eq!(cap.read_into(0, &mut again).unwrap(), before);
+            assert_eq!(again, head);
+        }
     }
 
     #[test]

@@ -16,7 +16,7 @@ use super::{CaptureError, SampleFormat};
 
 /// What a sidecar says about its recording.
 #[derive(Debug, Clone, PartialEq)]
-pub(crate) struct SigmfMeta {
+pub struct SigmfMeta {
     /// `global.core:datatype`.
     pub datatype: SampleFormat,
     /// `global.core:sample_rate`, Hz.
@@ -69,8 +69,9 @@ pub(crate) fn read_sidecar(path: &Path) -> Result<SigmfMeta, CaptureError> {
     parse_sidecar(&text, path)
 }
 
-/// Interpret sidecar text; `path` is only used in errors.
-pub(crate) fn parse_sidecar(text: &str, path: &Path) -> Result<SigmfMeta, CaptureError> {
+/// Interpret sidecar text; `path` is only used in errors. Guarantees: a
+/// sample rate, when present, is finite and > 0; a centre frequency is finite.
+pub fn parse_sidecar(text: &str, path: &Path) -> Result<SigmfMeta, CaptureError> {
     let root: Value = serde_json::from_str(text).map_err(|e| CaptureError::SigmfJson {
         path: path.to_path_buf(),
         problem: e.to_string(),

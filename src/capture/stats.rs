@@ -283,6 +283,9 @@ pub fn capture_stats(
                     // Zero-copy when the chunk holds only finite values;
                     // otherwise clean a copy exactly as read_into does.
                     Some(v) => {
+                        // The map may have lost this range to a truncation
+                        // since it was opened (SIGBUS if touched).
+                        capture.ensure_present(start, end)?;
                         let part = &v[start..end];
                         let mut read = ReadStats::default();
                         for &s in part {

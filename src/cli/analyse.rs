@@ -85,9 +85,24 @@ fn stdout_err(source: std::io::Error) -> Error {
     }
 }
 
-/// Fail early when an output could not be written or would replace the capture.
-fn check_output(path: &Path, capture: &Path) -> Result<(), Error> {
-    ensure_not_an_input(path, &[capture])?;
+/// Every file an analysis of `capture` with `profile` may read: the capture as
+/// named, its data file when a `.sigmf-meta` path is given, both SigMF sidecar
+/// names and the profile. No output may be written over any of them.
+fn input_paths(capture: &Path, profile: &Path) -> Vec<PathBuf> {
+    let mut with_meta = capture.as_os_str().to_owned();
+    with_meta.push(".sigmf-meta");
+    vec![
+        capture.to_path_buf(),
+        capture.with_extension("sigmf-data"),
+        capture.with_extension("sigmf-meta"),
+        PathBuf::from(with_meta),
+        profile.to_path_buf(),
+    ]
+}
+
+/// Fail early when an output could not be written or would replace an input.
+fn check_output(path: &Path, inputs: &[&Path]) -> Result<(), Error> {
+    ensure_not_an_input(path, inputs)?;
     let dir = match path.parent() {
         Some(d) if !d.as_os_str().is_empty() => d,
         _ => Path::new("."),
@@ -120,11 +135,13 @@ pub fn run_analyse(args: &AnalyseArgs, argv: &[String]) -> Result<Outcome, Error
         });
     }
     let format = super::parse_format_arg(args.format.as_deref(), &args.capture)?;
+    let inputs = input_paths(&args.capture, &profile_path);
+    let inputs: Vec<&Path> = inputs.iter().map(PathBuf::as_path).collect();
     if let Some(r) = &args.report {
-        check_output(r, &args.capture)?;
+        check_output(r, &inputs)?;
     }
     if let Some(d) = &args.plots {
-        ensure_not_an_input(d, &[&args.capture])?;
+        ensure_not_an_input(d, &inputs)?;
     }
     let profile = load_profile(&profile_path)?;
     let opts = AnalyseOptions {

@@ -198,10 +198,12 @@ fn strip_position(message: &str) -> String {
 /// Read, parse and resolve a profile file. Relative symbols-file paths are
 /// taken relative to the profile's directory. Every error names the file.
 pub fn load_profile(path: &Path) -> Result<ResolvedProfile, ProfileError> {
-    let text = std::fs::read_to_string(path).map_err(|source| ProfileError::Io {
-        path: path.to_path_buf(),
-        source,
-    })?;
+    let text = crate::limits::read_small_text(path, crate::limits::MAX_PROFILE_BYTES).map_err(
+        |source| ProfileError::Io {
+            path: path.to_path_buf(),
+            source,
+        },
+    )?;
     let in_file = |e: ProfileError| ProfileError::InFile {
         path: path.to_path_buf(),
         source: Box::new(e),

@@ -21,6 +21,10 @@ use super::schema::{
 };
 use super::ProfileError;
 use crate::capture::SampleFormat;
+use crate::limits::{
+    MAX_CURSOR_TAPS, MAX_EQUALISER_TAPS, MAX_PAYLOAD_SYMBOLS, MAX_SAMPLES_PER_SYMBOL,
+    MAX_SPAN_SYMBOLS, MAX_TRAINING_SYMBOLS,
+};
 use crate::signal::BARKER_LENGTHS;
 use crate::signal::{Modulation, PrbsPattern};
 
@@ -250,6 +254,181 @@ impl ResolvedProfile {
     pub fn payload_symbols_per_burst(&self) -> usize {
         self.payload.before_symbols + self.payload.after_symbols
     }
+
+    /// Check the invariants [`Profile::resolve`] guarantees, for a resolved
+    /// profile that did not come from `resolve` (e.g. read back from a report by
+    /// `recheck`): every size within the caps of `crate::limits`, every number
+    /// finite and in range, lengths consistent with the payload position. A
+    /// profile that `resolve` produced always passes.
+    pub fn validate(&self) -> Result<(), ProfileError> {
+        let c = &self.capture;
+        if let Some(r) = c.sample_rate_hz {
+            positive("capture.sample_rate_hz", r)?;
+        }
+        if let Some(f) = c.center_freq_hz {
+            if !f.is_finite() {
+                return Err(invalid("capture.center_freq_hz", "a finite number", f));
+            }
+        }
+        bounded(
+            "samples_per_symbol",
+            self.samples_per_symbol,
+            MAX_SAMPLES_PER_SYMBOL as usize,
+        )?;
+        if let Some(r) = self.symbol_rate_hz {
+            positive("symbol_rate_hz", r)?;
+        }
+        let p = &self.pulse;
+        if !(p.rolloff.is_finite() && p.rolloff > 0.0 && p.rolloff <= 1.0) {
+            return Err(invalid("pulse.rolloff", "a roll-off in (0, 1]", p.rolloff));
+        }
+        bounded(
+            "pulse.span_symbols",
+            p.span_symbols,
+            MAX_SPAN_SYMBOLS as usize,
+        )?;
+        let key = "training.sequence";
+        let training_len = match &self.training.sequence {
+            ResolvedSequence::Prbs { length, .. } | ResolvedSequence::ZadoffChu { length, .. } => {
+                Some(bounded(
+                    &format!("{key}.length"),
+                    *length,
+                    MAX_TRAINING_SYMBOLS,
+                )?)
+            }
+            ResolvedSequence::Barker { n } => {
+                if !BARKER_LENGTHS.contains(n) {
+                    return Err(invalid(
+                        &format!("{key}.n"),
+                        "one of 2, 3, 4, 5, 7, 11, 13",
+                        n,
+                    ));
+                }
+                Some(*n)
+            }
+            ResolvedSequence::Symbols { values } => {
+                bounded(&format!("{key}.values"), values.len(), MAX_TRAINING_SYMBOLS)?;
+                if let Some(i) = values
+                    .iter()
+                    .position(|v| !v[0].is_finite() || !v[1].is_finite())
+                {
+                    return Err(invalid(
+                        &format!("{key}.values[{i}]"),
+                        "finite numbers",
+                        format!("[{}, {}]", values[i][0], values[i][1]),
+                    ));
+                }
+                Some(values.len())
+            }
+            ResolvedSequence::SymbolsFile { .. } => None,
+        };
+        if self.training.length_symbols != training_len {
+            return Err(invalid(
+                "training.length_symbols",
+                format!("{training_len:?} (the sequence's length)"),
+                format!("{:?}", self.training.length_symbols),
+            ));
+        }
+        let pay = &self.payload;
+        let (b, a) = (pay.before_symbols, pay.after_symbols);
+        let shape_ok = match pay.position {
+            PayloadPosition::After => b == 0 && a >= 1,
+            PayloadPosition::Before => a == 0 && b >= 1,
+            PayloadPosition::Both => a >= 1 && b >= 1,
+        };
+        if !shape_ok || b.saturating_add(a) > MAX_PAYLOAD_SYMBOLS {
+            return Err(invalid(
+                "payload.after_symbols",
+                format!(
+                    "lengths that match the position and total at most {MAX_PAYLOAD_SYMBOLS} symbols"
+                ),
+                format!("before {b}, after {a}"),
+            ));
+        }
+        let fit = &self.channel_fit;
+        for (k, t) in [
+            ("channel_fit.pre_cursor_taps", fit.pre_cursor_taps),
+            ("channel_fit.post_cursor_taps", fit.post_cursor_taps),
+        ] {
+            if let TapCount::Fixed(n) = t {
+                if n > MAX_CURSOR_TAPS {
+                    return Err(invalid(
+                        k,
+                        format!("\"auto\" or an integer in 0..={MAX_CURSOR_TAPS}"),
+                        n,
+                    ));
+                }
+            }
+        }
+        if let Some(n) = training_len {
+            check_training_fits(fit, n)?;
+        }
+        let e = &self.equaliser;
+        bounded(
+            "equaliser.feedforward_taps",
+            e.feedforward_taps,
+            MAX_EQUALISER_TAPS,
+        )?;
+        if e.feedback_taps > MAX_EQUALISER_TAPS {
+            return Err(invalid(
+                "equaliser.feedback_taps",
+                format!("an integer in 0..={MAX_EQUALISER_TAPS}"),
+                e.feedback_taps,
+            ));
+        }
+        if let Delay::Fixed(d) = e.delay {
+            if d >= e.feedforward_taps {
+                return Err(invalid(
+                    "equaliser.delay",
+                    "a delay below feedforward_taps",
+                    d,
+                ));
+            }
+        }
+        match e.tracking {
+            Tracking::Off => {}
+            Tracking::Lms { mu } => {
+                positive("equaliser.tracking.mu", mu)?;
+            }
+            Tracking::Rls { lambda } => {
+                if !(lambda.is_finite() && lambda > 0.0 && lambda <= 1.0) {
+                    return Err(invalid(
+                        "equaliser.tracking.lambda",
+                        "a forgetting factor in (0, 1]",
+                        lambda,
+                    ));
+                }
+            }
+        }
+        if let Some(th) = self.search.threshold {
+            if !(th.is_finite() && th > 0.0 && th <= 1.0) {
+                return Err(invalid("search.threshold", "a number in (0, 1]", th));
+            }
+        }
+        if let Some(v) = self.search.max_cfo_hz {
+            non_negative("search.max_cfo_hz", v)?;
+        }
+        let l = &self.limits;
+        for (k, v) in [
+            ("limits.evm_rms_percent_max", l.evm_rms_percent_max),
+            ("limits.cfo_hz_abs_max", l.cfo_hz_abs_max),
+        ] {
+            if let Some(v) = v {
+                non_negative(k, v)?;
+            }
+        }
+        if let Some(v) = l.mer_db_min {
+            if !v.is_finite() {
+                return Err(invalid("limits.mer_db_min", "a finite number of dB", v));
+            }
+        }
+        if let Some(v) = l.ser_max {
+            if !(v.is_finite() && (0.0..=1.0).contains(&v)) {
+                return Err(invalid("limits.ser_max", "a rate in [0, 1]", v));
+            }
+        }
+        Ok(())
+    }
 }
 
 fn invalid(key: &str, expected: impl Into<String>, found: impl std::fmt::Display) -> ProfileError {
@@ -257,6 +436,16 @@ fn invalid(key: &str, expected: impl Into<String>, found: impl std::fmt::Display
         key: key.to_string(),
         expected: expected.into(),
         found: found.to_string(),
+    }
+}
+
+/// An integer in `1..=max` (the caps of `crate::limits`, so that no size read
+/// from a profile can ask for an unbounded allocation).
+fn bounded(key: &str, v: usize, max: usize) -> Result<usize, ProfileError> {
+    if (1..=max).contains(&v) {
+        Ok(v)
+    } else {
+        Err(invalid(key, format!("an integer in 1..={max}"), v))
     }
 }
 
@@ -358,9 +547,11 @@ impl Profile {
             center_freq_hz: c.center_freq_hz,
             swap_iq: c.swap_iq,
         };
-        if self.samples_per_symbol == 0 {
-            return Err(invalid("samples_per_symbol", "an integer >= 1", 0));
-        }
+        bounded(
+            "samples_per_symbol",
+            self.samples_per_symbol as usize,
+            MAX_SAMPLES_PER_SYMBOL as usize,
+        )?;
         let sps = self.samples_per_symbol as usize;
         let symbol_rate_hz = c.sample_rate_hz.map(|r| r / sps as f64);
 
@@ -370,9 +561,7 @@ impl Profile {
             return Err(invalid("pulse.rolloff", "a roll-off in (0, 1]", p.rolloff));
         }
         let span = p.span_symbols.map_or(DEFAULT_SPAN_SYMBOLS, |s| s as usize);
-        if span == 0 {
-            return Err(invalid("pulse.span_symbols", "an integer >= 1", 0));
-        }
+        bounded("pulse.span_symbols", span, MAX_SPAN_SYMBOLS as usize)?;
         let pulse = ResolvedPulse {
             shape: p.shape,
             rolloff: p.rolloff,
@@ -485,9 +674,7 @@ impl Profile {
             } => {
                 let (pattern, polynomial, seed, inverted) =
                     resolve_prbs(key, *pattern, *polynomial, *seed, *inverted)?;
-                if *length == 0 {
-                    return Err(invalid(&format!("{key}.length"), "an integer >= 1", 0));
-                }
+                bounded(&format!("{key}.length"), *length, MAX_TRAINING_SYMBOLS)?;
                 (
                     Some(t.modulation.unwrap_or(Modulation::Qpsk)),
                     ResolvedSequence::Prbs {
@@ -517,9 +704,7 @@ impl Profile {
                 shift,
             } => {
                 no_modulation("zadoff_chu")?;
-                if *length == 0 {
-                    return Err(invalid(&format!("{key}.length"), "an integer >= 1", 0));
-                }
+                bounded(&format!("{key}.length"), *length, MAX_TRAINING_SYMBOLS)?;
                 if *root == 0 || *root as usize >= *length || gcd(*root as u64, *length as u64) != 1
                 {
                     return Err(invalid(
@@ -552,6 +737,13 @@ impl Profile {
                         &format!("{key}.values"),
                         "at least one [re, im] pair",
                         "an empty list",
+                    ));
+                }
+                if values.len() > MAX_TRAINING_SYMBOLS {
+                    return Err(invalid(
+                        &format!("{key}.values"),
+                        format!("at most {MAX_TRAINING_SYMBOLS} pairs"),
+                        values.len(),
                     ));
                 }
                 if let Some(i) = values
@@ -599,8 +791,7 @@ impl Profile {
                 key: key.to_string(),
                 hint: hint.to_string(),
             }),
-            Some(0) => Err(invalid(key, "an integer >= 1", 0)),
-            Some(n) => Ok(n),
+            Some(n) => bounded(key, n, MAX_PAYLOAD_SYMBOLS),
         };
         let (before, after) = match position {
             PayloadPosition::After | PayloadPosition::Before => {
@@ -649,6 +840,13 @@ impl Profile {
                 )
             }
         };
+        if before + after > MAX_PAYLOAD_SYMBOLS {
+            return Err(invalid(
+                "payload.length_after_symbols",
+                format!("at most {MAX_PAYLOAD_SYMBOLS} payload symbols per burst (before + after)"),
+                before + after,
+            ));
+        }
         let known = match &p.known {
             None => None,
             Some(PayloadRule::Prbs {
@@ -689,6 +887,20 @@ impl Profile {
         let c = &self.channel_fit;
         let pre = c.pre_cursor_taps.unwrap_or(TapCount::Fixed(1));
         let post = c.post_cursor_taps.unwrap_or(TapCount::Fixed(3));
+        for (key, t) in [
+            ("channel_fit.pre_cursor_taps", pre),
+            ("channel_fit.post_cursor_taps", post),
+        ] {
+            if let TapCount::Fixed(n) = t {
+                if n > MAX_CURSOR_TAPS {
+                    return Err(invalid(
+                        key,
+                        format!("\"auto\" or an integer in 0..={MAX_CURSOR_TAPS}"),
+                        n,
+                    ));
+                }
+            }
+        }
         let fit = ResolvedChannelFit {
             pre_cursor_taps: pre,
             post_cursor_taps: post,
@@ -709,15 +921,20 @@ impl Profile {
         let e = &self.equaliser;
         let kind = e.kind.unwrap_or_default();
         let nf = e.feedforward_taps.unwrap_or(8);
-        if nf == 0 {
-            return Err(invalid("equaliser.feedforward_taps", "an integer >= 1", 0));
-        }
+        bounded("equaliser.feedforward_taps", nf, MAX_EQUALISER_TAPS)?;
         let nb_default = match (kind, fit.post_cursor_taps) {
             (EqualiserKind::LinearMmse, _) => 0,
             (_, TapCount::Fixed(q)) => q,
             (_, TapCount::Auto) => 3,
         };
         let nb = e.feedback_taps.unwrap_or(nb_default);
+        if nb > MAX_EQUALISER_TAPS {
+            return Err(invalid(
+                "equaliser.feedback_taps",
+                format!("an integer in 0..={MAX_EQUALISER_TAPS}"),
+                nb,
+            ));
+        }
         if kind == EqualiserKind::LinearMmse && nb != 0 {
             return Err(ProfileError::Conflict {
                 key: "equaliser.feedback_taps".into(),
@@ -778,8 +995,10 @@ pub fn check_training_fits(
     };
     let pre = fixed(fit.pre_cursor_taps);
     let post = fixed(fit.post_cursor_taps);
-    let taps = pre + post + 1;
-    let needed = 2 * taps;
+    // Saturating: a resolved profile read back from a report (recheck) has not
+    // been through the caps of `resolve`, so the counts may be anything.
+    let taps = pre.saturating_add(post).saturating_add(1);
+    let needed = taps.saturating_mul(2);
     if training_symbols < needed {
         return Err(ProfileError::TrainingTooShort {
             key: "training.sequence".into(),

@@ -249,3 +249,50 @@ fn load_profile_names_the_file_in_every_error() {
         "{msg}"
     );
 }
+
+/// Issue 8 regression: sizes read from a profile used to go straight into
+/// allocations (a payload of 10^12 symbols asked for 8 TB; a PRBS training of
+/// 10^12 symbols likewise). Each is now refused at resolution, naming the key
+/// and the cap from `crate::limits`.
+#[test]
+fn huge_lengths_and_tap_counts_are_refused_before_any_allocation() {
+    use serde_json::json;
+    let cases = [
+        ("payload.length_symbols", json!(1_000_000_000_000u64)),
+        ("samples_per_symbol", json!(4_000_000_000u64)),
+        ("equaliser.feedforward_taps", json!(1_000_000_000u64)),
+        ("equaliser.feedback_taps", json!(1_000_000_000u64)),
+        ("channel_fit.pre_cursor_taps", json!(1_000_000_000u64)),
+        ("channel_fit.post_cursor_taps", json!(u64::MAX)),
+    ];
+    for (key, value) in cases {
+        let e = error_of(&example_with(key, value.clone()));
+        assert_eq!(e.key(), Some(key), "{key}: {e}");
+        assert!(e.to_string().contains("..="), "{key}: {e}");
+    }
+    let mut v: serde_json::Value = serde_json::from_str(&example_json()).unwrap();
+    v["training"]["sequence"]["length"] = json!(1_000_000_000_000u64);
+    let e = error_of(&v.to_string());
+    assert_eq!(e.key(), Some("training.sequence.length"), "{e}");
+}
+
+/// Issue 8 regression (found by reading `check_training_fits`): tap counts
+/// near `usize::MAX` overflowed `pre + post + 1` (a panic in debug builds).
+/// A resolved profile read back from a report never went through `resolve`,
+/// so `validate` must refuse it without overflowing.
+#[test]
+fn a_resolved_profile_with_overflowing_tap_counts_fails_validate_without_panicking() {
+    let mut r = parse_profile(&example_json()).unwrap().resolve().unwrap();
+    r.validate().unwrap();
+    r.channel_fit.pre_cursor_taps = TapCount::Fixed(usize::MAX);
+    r.channel_fit.post_cursor_taps = TapCount::Fixed(usize::MAX);
+    assert!(check_training_fits(&r.channel_fit, 10).is_err());
+    let e = r.validate().unwrap_err();
+    assert_eq!(e.key(), Some("channel_fit.pre_cursor_taps"), "{e}");
+    let mut r = parse_profile(&example_json()).unwrap().resolve().unwrap();
+    r.payload.after_symbols = 1 << 40;
+    assert!(r.validate().is_err());
+    let mut r = parse_profile(&example_json()).unwrap().resolve().unwrap();
+    r.pulse.rolloff = 0.0;
+    assert_eq!(r.validate().unwrap_err().key(), Some("pulse.rolloff"));
+}

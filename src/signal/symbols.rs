@@ -64,10 +64,11 @@ pub fn parse_symbols(text: &str) -> Result<Vec<Cf32>, SignalError> {
 
 /// Reads and parses a symbols file (UTF-8 text, format in the module doc).
 pub fn read_symbols_file(path: &Path) -> Result<Vec<Cf32>, SignalError> {
-    let text = std::fs::read_to_string(path).map_err(|e| SignalError::Io {
-        path: path.to_path_buf(),
-        message: e.to_string(),
-    })?;
+    let text = crate::limits::read_small_text(path, crate::limits::MAX_SYMBOLS_FILE_BYTES)
+        .map_err(|e| SignalError::Io {
+            path: path.to_path_buf(),
+            message: e.to_string(),
+        })?;
     parse_symbols(&text).map_err(|e| match e {
         SignalError::SymbolsParse {
             line,

@@ -5,9 +5,11 @@
 
 mod analyse;
 mod bad_input;
+mod bad_inputs;
 mod batch;
 mod batch_cli;
 mod capture_formats;
+mod fuzz_seeds;
 mod info_cli;
 mod large_capture;
 mod profile;
