@@ -117,7 +117,7 @@ fn open_options(profile: &ResolvedProfile, opts: &AnalyseOptions) -> Result<Open
 /// Open the capture with the precedence of the product contract: `--format` /
 /// `--sample-rate` first, then what the file says (SigMF sidecar, WAV header),
 /// then the profile's `capture.format` / `capture.sample_rate_hz`, then the file
-/// extension. [`open_options`] alone would let the profile override the file.
+/// extension. Taking the profile first would let it override the file.
 ///
 /// # Errors
 /// The capture cannot be opened.
