@@ -264,6 +264,10 @@ pub fn analyse_capture(
     let capture = Capture::open(path, &open)?;
     let plan = Plan::new(profile, &capture)?;
     let sync = synchroniser(profile, &plan)?;
+    // The SHA-256 of the whole file is a second pass over it: run it beside the
+    // search and the bursts (same bytes, same digest) instead of after them.
+    let hash_path = path.to_path_buf();
+    let hasher = std::thread::spawn(move || sha256_file(&hash_path));
     let src = ChunkReader::new(capture.len(), |s, out: &mut [Cf32]| {
         capture.read_into(s, out).map(|_| ())
     });
@@ -317,7 +321,10 @@ pub fn analyse_capture(
         serde_json::to_value(profile).map_err(|e| usage(format!("profile: {e}")))?;
     let profile_sha = sha256_bytes(profile_value.to_string().as_bytes());
     let size_bytes = capture.file_len_bytes();
-    let sha256 = sha256_file(path).map_err(|source| Error::Io {
+    let hashed = hasher
+        .join()
+        .unwrap_or_else(|_| Err(std::io::Error::other("the hashing thread panicked")));
+    let sha256 = hashed.map_err(|source| Error::Io {
         path: path.to_path_buf(),
         source,
     })?;
