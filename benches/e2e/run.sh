@@ -65,7 +65,7 @@ run_case() { # name
   load_read=$(cut -d' ' -f1-3 /proc/loadavg)
   read_r=$(best_of 3 /dev/null cat "$f")
   local load_an; load_an=$(cut -d' ' -f1-3 /proc/loadavg)
-  an_r=$(best_of 3 "$DIR/$1.analyse.txt" "$BIN" analyse "$f" --profile "$PROFILE")
+  an_r=$(best_of 2 "$DIR/$1.analyse.txt" "$BIN" analyse "$f" --profile "$PROFILE")
   an1_r=$(best_of 1 "$DIR/$1.analyse1.txt" "$BIN" analyse "$f" --profile "$PROFILE" --jobs 1)
   # The summary on stdout lists only the first bursts: the burst check reads the JSON report.
   rm -f "$DIR/$1.report.json"
@@ -111,7 +111,7 @@ TABLE=$(cat <<EOT
 ### End-to-end run $(date -u '+%Y-%m-%d %H:%M UTC')
 
 Machine: $CPU, $(nproc) cores, commit $(cd "$ROOT" && git rev-parse --short HEAD), rustc $(rustc --version | cut -d' ' -f2), python $(python3 -c 'import numpy, scipy, platform; print(platform.python_version(), "numpy", numpy.__version__, "scipy", scipy.__version__)').
-Commands: \`benches/e2e/run.sh\` (captures: \`iqaudit synth --profile benches/e2e/profile.json --bursts $SPARSE_BURSTS --gap $SPARSE_GAP\` (sparse) / \`--bursts $DENSE_BURSTS --gap $DENSE_GAP\` (dense), \`--channel $CHANNEL --esn0-db 30 --seed 7\`; \`cat F > /dev/null\`; \`iqaudit analyse F --profile benches/e2e/profile.json\`; \`python3 benches/baseline/pipeline.py F benches/e2e/profile.json\`; all under \`/usr/bin/time -v\`, best of 3 for read and analyse, one run otherwise).
+Commands: \`benches/e2e/run.sh\` (captures: \`iqaudit synth --profile benches/e2e/profile.json --bursts $SPARSE_BURSTS --gap $SPARSE_GAP\` (sparse) / \`--bursts $DENSE_BURSTS --gap $DENSE_GAP\` (dense), \`--channel $CHANNEL --esn0-db 30 --seed 7\`; \`cat F > /dev/null\`; \`iqaudit analyse F --profile benches/e2e/profile.json\`; \`python3 benches/baseline/pipeline.py F benches/e2e/profile.json\`; all under \`/usr/bin/time -v\`, best of 3 for the read, best of 2 for analyse, one run otherwise).
 
 $HEAD
 $ROWS
