@@ -1,10 +1,12 @@
 //! Capture throughput benchmark (not a test; run with `cargo bench --bench capture_throughput`).
 //!
-//! Takes in: optional arguments `SIZE_MIB` (default 1024) and `DIR` (default the
-//! system temp dir). Gives out: a table on stdout, in samples per second, of
-//! (1) a plain page-cache read of each file, (2) conversion to `Cf32` through
-//! `Capture::read_into` on one thread, for `ci16_le` and `cf32_le`, and (3) the
-//! whole `info` computation (`capture_stats` + `info_report`) on all threads.
+//! Takes in: optional arguments `SIZE_MIB` (default 1024), `DIR` (default the
+//! system temp dir) and `FORMATS` (comma-separated, default every raw format).
+//! Gives out: a table on stdout, in samples per second, of (1) a plain page-cache
+//! read of each file, (2) conversion to `Cf32` through `Capture::read_into` on one
+//! thread, in wall time and per CPU-second of that thread, (3) the whole `info`
+//! computation (`capture_stats` + `info_report`) on all threads, and (4) the
+//! SHA-256 of the file as `analyse` computes it (bytes per second).
 //! Files are filled with pseudo-random codes and read once before timing so
 //! every figure is a warm page-cache figure; each figure is the best of three runs. Record results in docs/performance.md.
 
@@ -34,6 +36,18 @@ fn fill(path: &Path, bytes: u64, format: SampleFormat) {
                     w[..4].copy_from_slice(&a.to_le_bytes());
                     w[4..].copy_from_slice(&b.to_le_bytes());
                     u64::from_le_bytes(w)
+                }
+                SampleFormat::Cf32Be => {
+                    let a = ((state >> 40) as f32 / 16_777_216.0) - 0.5;
+                    let b = (((state >> 8) & 0xFF_FFFF) as f32 / 16_777_216.0) - 0.5;
+                    let mut w = [0u8; 8];
+                    w[..4].copy_from_slice(&a.to_be_bytes());
+                    w[4..].copy_from_slice(&b.to_be_bytes());
+                    u64::from_le_bytes(w)
+                }
+                // One f64 component per word, in [-0.5, 0.5).
+                SampleFormat::Cf64Le => {
+                    (((state >> 11) as f64 / 9_007_199_254_740_992.0) - 0.5).to_bits()
                 }
                 _ => state,
             };
@@ -79,6 +93,15 @@ fn convert(cap: &Capture) -> f64 {
     cap.len() as f64 / t.elapsed().as_secs_f64()
 }
 
+/// CPU time of this thread in seconds (Linux `/proc/thread-self/schedstat`, first
+/// field = ns on CPU); 0 where unavailable (the caller then falls back to wall time).
+fn thread_cpu_seconds() -> f64 {
+    std::fs::read_to_string("/proc/thread-self/schedstat")
+        .ok()
+        .and_then(|s| s.split_whitespace().next()?.parse::<f64>().ok())
+        .map_or(0.0, |ns| ns * 1e-9)
+}
+
 fn main() {
     let args: Vec<String> = std::env::args()
         .skip(1)
@@ -89,9 +112,25 @@ fn main() {
         .get(1)
         .map(std::path::PathBuf::from)
         .unwrap_or_else(std::env::temp_dir);
-    println!("| file | size | plain read (M samples/s) | read_into, 1 thread (M samples/s) | ratio | info, {} threads (M samples/s) |", rayon::current_num_threads());
-    println!("|---|---|---|---|---|---|");
-    for format in [SampleFormat::Ci16Le, SampleFormat::Cf32Le] {
+    // Formats: the third argument (comma-separated names), default every raw format.
+    let formats: Vec<SampleFormat> = match args.get(2) {
+        Some(list) => list
+            .split(',')
+            .map(|n| n.parse().expect("a sample format name"))
+            .collect(),
+        None => vec![
+            SampleFormat::Ci8,
+            SampleFormat::Cu8,
+            SampleFormat::Ci16Le,
+            SampleFormat::Ci16Be,
+            SampleFormat::Cf32Le,
+            SampleFormat::Cf32Be,
+            SampleFormat::Cf64Le,
+        ],
+    };
+    println!("| file | size | plain read (M samples/s) | read_into, 1 thread (M samples/s) | read_into per CPU-second (M samples) | ratio | info, {} threads (M samples/s) | SHA-256 of the file, 1 thread (MB/s) |", rayon::current_num_threads());
+    println!("|---|---|---|---|---|---|---|---|");
+    for format in formats {
         let path = dir.join(format!("iqaudit-bench.{}", format.name()));
         fill(&path, mib << 20, format);
         let bps = format.bytes_per_sample() as f64;
@@ -106,6 +145,19 @@ fn main() {
         let cap = Capture::open(&path, &opts).unwrap();
         convert(&cap); // fault the map in
         let conv = best(&|| convert(&cap));
+        // The same conversion timed in CPU time of this thread (per core).
+        let conv_cpu = best(&|| {
+            let c0 = thread_cpu_seconds();
+            let w = convert(&cap);
+            let wall = cap.len() as f64 / w;
+            let cpu = thread_cpu_seconds() - c0;
+            cap.len() as f64 / if cpu > 0.0 { cpu } else { wall }
+        });
+        let sha = best(&|| {
+            let t = Instant::now();
+            std::hint::black_box(iqaudit::report::provenance::sha256_file(&path).unwrap());
+            (cap.len() as f64 * bps) / t.elapsed().as_secs_f64()
+        });
         let so = StatsOptions::default();
         let info = best(&|| {
             let t = Instant::now();
@@ -114,13 +166,15 @@ fn main() {
             cap.len() as f64 / t.elapsed().as_secs_f64()
         });
         println!(
-            "| {} | {} MiB | {:.0} | {:.0} | {:.0} % | {:.0} |",
+            "| {} | {} MiB | {:.0} | {:.0} | {:.0} | {:.0} % | {:.0} | {:.0} |",
             format.name(),
             mib,
             read / 1e6,
             conv / 1e6,
+            conv_cpu / 1e6,
             100.0 * conv / read,
-            info / 1e6
+            info / 1e6,
+            sha / 1e6
         );
         drop(cap);
         let _ = std::fs::remove_file(&path);

@@ -2,7 +2,8 @@
 //!
 //! Takes nothing; prints equalised symbols per second on one core for the
 //! MMSE-DFE with Nf = 16, Nb = 8 on 16-QAM (phase loop off/on, LMS, RLS), the
-//! time to design the MMSE-DFE filters (Δ optimised) and the channel fit time.
+//! time to design the MMSE-DFE filters (Δ optimised), the channel fit time, the
+//! slicer alone per modulation and the per-burst infinite-length bounds.
 //! Run: `cargo bench --bench equalise`. Figures go to docs/performance.md.
 
 use iqaudit::channel::{fit_channel, ChannelFitConfig, TapSpan};
@@ -138,6 +139,41 @@ fn main() {
             n / 10,
         ),
     ];
+    // Slicer alone, per modulation: nearest-point label of noisy points (per core).
+    let m = 1 << 20;
+    for modulation in Modulation::ALL {
+        let cm = Constellation::new(modulation);
+        let pts: Vec<Cf32> = (0..m)
+            .map(|_| {
+                cm.points()[r.gen_range(0..cm.order())]
+                    + Cf32::new(r.gen_range(-0.05..0.05), r.gen_range(-0.05..0.05))
+            })
+            .collect();
+        let mut labels = vec![0usize; m];
+        let (s, _) = time_per_call(10, || {
+            cm.slice_into(&pts, &mut labels);
+            black_box(&labels);
+        });
+        println!(
+            "slicer {}: {:.0} M symbols/s",
+            modulation.name(),
+            m as f64 / s / 1e6
+        );
+    }
+    // Infinite-length bounds reported per burst (65 536-point grid: one FFT + logs).
+    let (s, _) = time_per_call(50, || {
+        black_box(iqaudit::equalise::theory::bounds(
+            &est.taps,
+            est.es / est.noise_var,
+            iqaudit::equalise::theory::DEFAULT_GRID,
+        ));
+    });
+    println!(
+        "theory bounds per burst, grid {}: {:.0} µs",
+        iqaudit::equalise::theory::DEFAULT_GRID,
+        s * 1e6
+    );
+
     let mut out = EqualisedSymbols::default();
     for (name, opts, len) in cases {
         let v = BurstView {

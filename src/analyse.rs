@@ -302,6 +302,10 @@ pub fn analyse_capture(
     let capture = open_capture(path, profile, opts)?;
     let plan = Plan::new(profile, &capture)?;
     let sync = synchroniser(profile, &plan)?;
+    // The SHA-256 of the whole file is a second pass over it: run it beside the
+    // search and the bursts (same bytes, same digest) instead of after them.
+    let hash_path = path.to_path_buf();
+    let hasher = std::thread::spawn(move || sha256_file(&hash_path));
     let src = ChunkReader::new(capture.len(), |s, out: &mut [Cf32]| {
         capture.read_into(s, out).map(|_| ())
     });
@@ -356,7 +360,10 @@ pub fn analyse_capture(
     let profile_sha = crate::report::provenance::profile_sha256(profile)
         .map_err(|e| usage(format!("profile: {e}")))?;
     let size_bytes = capture.file_len_bytes();
-    let sha256 = sha256_file(path).map_err(|source| Error::Io {
+    let hashed = hasher
+        .join()
+        .unwrap_or_else(|_| Err(std::io::Error::other("the hashing thread panicked")));
+    let sha256 = hashed.map_err(|source| Error::Io {
         path: path.to_path_buf(),
         source,
     })?;

@@ -33,9 +33,13 @@ pub fn power_response(taps: &[Cf64], grid: usize) -> Vec<f64> {
     let n = grid.max(taps.len()).max(1);
     let mut buf = vec![Cf64::new(0.0, 0.0); n];
     buf[..taps.len()].copy_from_slice(taps);
-    FftPlanner::<f64>::new()
-        .plan_fft_forward(n)
-        .process(&mut buf);
+    // One planner per thread: the plan (and its twiddle table) for a grid size is
+    // built once, not once per burst. Same plan ⇒ same output.
+    thread_local! {
+        static PLANNER: std::cell::RefCell<FftPlanner<f64>> = std::cell::RefCell::new(FftPlanner::new());
+    }
+    let fft = PLANNER.with(|p| p.borrow_mut().plan_fft_forward(n));
+    fft.process(&mut buf);
     buf.iter().map(|v| v.norm_sqr()).collect()
 }
 

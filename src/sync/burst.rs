@@ -11,7 +11,7 @@
 //! burst that touches a capture edge are computed with part of their pulse missing.
 use std::ops::Range;
 
-use super::timing::{best_instant, interpolate, SINC_HALF};
+use super::timing::{best_instant, interpolate_with, sinc_weights, SINC_HALF};
 use super::{
     cfo, read_padded, rotation, BurstSync, Detection, SampleSource, SymbolSpan, SyncError,
     Synchroniser,
@@ -90,12 +90,13 @@ impl Synchroniser {
             let y = self.mf_region(src, first, count, f, t0)?;
             let pos = best_instant(&y, &self.training, sps, t0 - first as f64, radius);
             t0 = first as f64 + pos;
+            let (pn, w) = (pos.floor(), sinc_weights(pos - pos.floor()));
             let u: Vec<Cf64> = self
                 .training
                 .iter()
                 .enumerate()
                 .map(|(k, tk)| {
-                    let z = interpolate(&y, pos + (k * sps) as f64) * tk.conj();
+                    let z = interpolate_with(&y, pn as i64 + (k * sps) as i64, &w) * tk.conj();
                     Cf64::new(f64::from(z.re), f64::from(z.im))
                 })
                 .collect();
@@ -108,12 +109,13 @@ impl Synchroniser {
         t0 = first as f64 + pos;
         let y = self.mf_region(src, first, count, f, t0)?;
         let pos = t0 - first as f64;
+        let (pn, w) = (pos.floor(), sinc_weights(pos - pos.floor()));
         let corr: Cf64 = self
             .training
             .iter()
             .enumerate()
             .map(|(k, tk)| {
-                let z = interpolate(&y, pos + (k * sps) as f64) * tk.conj();
+                let z = interpolate_with(&y, pn as i64 + (k * sps) as i64, &w) * tk.conj();
                 Cf64::new(f64::from(z.re), f64::from(z.im))
             })
             .sum();
@@ -171,9 +173,12 @@ impl Synchroniser {
             let first = t_first.floor() as i64 - h;
             let count = (t_last.floor() as i64 + h + 1 - first) as usize;
             let y = self.mf_region(src, first, count, f, t0)?;
+            // Every instant of the piece has the same fractional part: one weight table.
+            let t = t0 + k as f64 * spsf - first as f64;
+            let (tn, w) = (t.floor(), sinc_weights(t - t.floor()));
             for kk in k..k_end {
-                let t = t0 + kk as f64 * spsf - first as f64;
-                out[(kk - symbols.start) as usize] = interpolate(&y, t);
+                let n = tn as i64 + (kk - k) * self.cfg.sps as i64;
+                out[(kk - symbols.start) as usize] = interpolate_with(&y, n, &w);
             }
             k = k_end;
         }

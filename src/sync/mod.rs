@@ -564,10 +564,14 @@ impl Synchroniser {
         Ok(out)
     }
 
-    /// Buffers for one thread; the chunk buffer never exceeds the padded capture.
-    fn new_worker(&self, total_lags: usize) -> Worker {
+    /// Buffers for one thread; the chunk buffer never exceeds the padded capture, nor
+    /// the blocks a scan of `lags_in_scan` lags can touch in one chunk.
+    fn new_worker(&self, total_lags: usize, lags_in_scan: usize) -> Worker {
         let step = self.corr.step();
-        let chunk_len = step * BLOCKS_PER_CHUNK.min(total_lags.div_ceil(step));
+        let blocks = total_lags
+            .div_ceil(step)
+            .min(lags_in_scan.div_ceil(step) + 1);
+        let chunk_len = step * BLOCKS_PER_CHUNK.min(blocks);
         Worker {
             chunk: vec![Cf32::new(0.0, 0.0); chunk_len + self.corr.ref_len() - 1],
             scratch: vec![Cf32::new(0.0, 0.0); self.corr.scratch_len()],
@@ -595,7 +599,7 @@ impl Synchroniser {
         let per_chunk: Vec<Result<Vec<Candidate>, SyncError>> = (c0..c1)
             .into_par_iter()
             .map_init(
-                || self.new_worker(total_lags),
+                || self.new_worker(total_lags, lags.end - lags.start),
                 |w, c| self.scan_chunk(src, c, &lags, threshold, w),
             )
             .collect();
@@ -616,10 +620,25 @@ impl Synchroniser {
     ) -> Result<Vec<Candidate>, SyncError> {
         let step = self.corr.step();
         let chunk_start = c * step * BLOCKS_PER_CHUNK;
+        // Only the blocks that hold lags of this scan are read and transformed (a
+        // short `metric` range touches one or two); block boundaries stay on the
+        // chunk's grid, so every lag gets the same value as in the full search.
+        let chunk_end = chunk_start + step * BLOCKS_PER_CHUNK;
+        let b_lo = (lags.start.max(chunk_start) - chunk_start) / step;
+        let b_hi = (lags.end.min(chunk_end).max(chunk_start) - chunk_start).div_ceil(step);
+        if b_lo >= b_hi {
+            return Ok(Vec::new());
+        }
+        let need = (b_hi - b_lo) * step + self.corr.ref_len() - 1;
+        let buf = &mut w.chunk[..need];
         // Virtual sample u (zero-padded by `head`) is capture sample u − head.
-        read_padded(src, chunk_start as i64 - self.head as i64, &mut w.chunk)?;
+        read_padded(
+            src,
+            (chunk_start + b_lo * step) as i64 - self.head as i64,
+            buf,
+        )?;
         let mut out = Vec::new();
-        for bi in 0..BLOCKS_PER_CHUNK {
+        for bi in b_lo..b_hi {
             let b = chunk_start + bi * step;
             let lo = lags.start.max(b);
             let hi = lags.end.min(b + step);
@@ -627,7 +646,7 @@ impl Synchroniser {
                 continue;
             }
             self.corr.scan_block(
-                &w.chunk[bi * step..],
+                &buf[(bi - b_lo) * step..],
                 lo - b,
                 hi - lo,
                 self.ref_energy,

@@ -34,30 +34,60 @@ fn windowed_sinc(x: f64) -> f64 {
     s * (0.42 + 0.5 * a.cos() + 0.08 * (2.0 * a).cos())
 }
 
-/// Value of `y` at fractional position `t` (index units); samples outside `y` count as 0.
-pub fn interpolate(y: &[Cf32], t: f64) -> Cf32 {
-    let n = t.floor();
-    let mu = t - n;
-    let n = n as i64;
+/// The `2·SINC_HALF` kernel weights for fractional part `mu ∈ [0, 1)`: weight `i`
+/// multiplies sample `n + i − SINC_HALF + 1` when interpolating at `n + mu`.
+///
+/// Every instant `t + k·sps` of a symbol-rate grid shares one `mu`, so callers that
+/// interpolate a whole grid compute the weights once ([`interpolate_with`]).
+pub fn sinc_weights(mu: f64) -> [f32; 2 * SINC_HALF] {
+    let mut w = [0.0f32; 2 * SINC_HALF];
+    for (slot, i) in w.iter_mut().zip(-(SINC_HALF as i64) + 1..=SINC_HALF as i64) {
+        *slot = windowed_sinc(mu - i as f64) as f32;
+    }
+    w
+}
+
+/// Value of `y` at `n + mu` given the weights of `mu` ([`sinc_weights`]); samples
+/// outside `y` count as 0.
+#[inline]
+pub fn interpolate_with(y: &[Cf32], n: i64, w: &[f32; 2 * SINC_HALF]) -> Cf32 {
+    let first = n - SINC_HALF as i64 + 1;
     let mut acc = Cf32::new(0.0, 0.0);
-    for i in -(SINC_HALF as i64) + 1..=SINC_HALF as i64 {
-        let j = n + i;
+    if first >= 0 && first + (2 * SINC_HALF) as i64 <= y.len() as i64 {
+        let seg = &y[first as usize..first as usize + 2 * SINC_HALF];
+        for (v, wi) in seg.iter().zip(w) {
+            acc += *v * *wi;
+        }
+        return acc;
+    }
+    for (i, wi) in w.iter().enumerate() {
+        let j = first + i as i64;
         if j < 0 || j >= y.len() as i64 {
             continue;
         }
-        acc += y[j as usize] * windowed_sinc(mu - i as f64) as f32;
+        acc += y[j as usize] * *wi;
     }
     acc
 }
 
+/// Value of `y` at fractional position `t` (index units); samples outside `y` count as 0.
+pub fn interpolate(y: &[Cf32], t: f64) -> Cf32 {
+    let n = t.floor();
+    interpolate_with(y, n as i64, &sinc_weights(t - n))
+}
+
 /// Training correlation at fractional offset `t` (index into `y` of the first symbol),
-/// accumulated in f64.
+/// accumulated in f64. The symbol instants `t + k·sps` share one fractional part,
+/// so the kernel weights are computed once.
 pub fn training_correlation(y: &[Cf32], training: &[Cf32], sps: usize, t: f64) -> Cf64 {
+    let n = t.floor();
+    let w = sinc_weights(t - n);
+    let n = n as i64;
     training
         .iter()
         .enumerate()
         .map(|(k, s)| {
-            let z = s.conj() * interpolate(y, t + (k * sps) as f64);
+            let z = s.conj() * interpolate_with(y, n + (k * sps) as i64, &w);
             Cf64::new(f64::from(z.re), f64::from(z.im))
         })
         .sum()
@@ -160,6 +190,57 @@ mod tests {
                 "windowed-sinc error {sinc_db} dB at fmax {fmax}"
             );
             assert!(sinc_db < lag_db, "sinc should beat cubic Lagrange");
+        }
+    }
+
+    #[test]
+    fn training_correlation_with_shared_weights_matches_per_instant_interpolation() {
+        // Reference: the obviously-correct form, one `interpolate` (own weights) per
+        // symbol instant, summed in f64. Instants t + k·sps differ from t by whole
+        // samples, so only rounding of `t + k·sps` can differ: tolerance 1e-5 relative
+        // (f32 samples, 16-tap sums). Lengths 0, 1, 2 and a prime, instants that run
+        // off both ends of `y` (zero-padding path) and interior ones.
+        let y: Vec<Cf32> = (0..97).map(|n| tones(n as f64, 0.2)).collect();
+        for len in [0usize, 1, 2, 13] {
+            let training: Vec<Cf32> = (0..len).map(|k| tones(3.0 * k as f64, 0.3)).collect();
+            for &t in &[-9.3, -0.5, 0.0, 3.25, 40.0 + 1.0 / 3.0, 60.999, 95.7] {
+                let got = training_correlation(&y, &training, 4, t);
+                let want: Cf64 = training
+                    .iter()
+                    .enumerate()
+                    .map(|(k, s)| {
+                        let z = s.conj() * interpolate_slow(&y, t + (k * 4) as f64);
+                        Cf64::new(f64::from(z.re), f64::from(z.im))
+                    })
+                    .sum();
+                let scale = want.norm().max(1.0);
+                assert!(
+                    (got - want).norm() <= 1e-5 * scale,
+                    "len {len} t {t}: {got} vs {want}"
+                );
+            }
+        }
+    }
+
+    /// Direct form: every tap weight computed from its own distance (no shared table).
+    fn interpolate_slow(y: &[Cf32], t: f64) -> Cf32 {
+        let n = t.floor() as i64;
+        let mut acc = Cf32::new(0.0, 0.0);
+        for j in n - 7..=n + 8 {
+            if j >= 0 && j < y.len() as i64 {
+                acc += y[j as usize] * windowed_sinc(t - j as f64) as f32;
+            }
+        }
+        acc
+    }
+
+    #[test]
+    fn interpolate_matches_the_direct_windowed_sinc_sum() {
+        // Reference: interpolate_slow; same weights up to the rounding of t − j, 1e-6.
+        let y: Vec<Cf32> = (0..31).map(|n| tones(n as f64, 0.2)).collect();
+        for &t in &[-7.5, -0.01, 0.0, 0.5, 11.123, 29.9, 30.0, 37.2] {
+            let d = (interpolate(&y, t) - interpolate_slow(&y, t)).norm();
+            assert!(d <= 1e-6, "t {t}: {d}");
         }
     }
 
