@@ -446,7 +446,11 @@ fn hostile_profiles_give_the_documented_exit_code_and_message() {
                 let p = profile(d);
                 let text = std::fs::read_to_string(&p)
                     .unwrap()
-                    .replace("\"threshold\": 0.5", "\"threshold\": 1e400");
+                    .replace("\"search\": {", "\"search\": {\"threshold\": 1e400,");
+                assert!(
+                    text.contains("1e400"),
+                    "the profile has no search section to edit"
+                );
                 let bad = d.join("bad.json");
                 std::fs::write(&bad, text).unwrap();
                 vec!["analyse".into(), s(&c), "--profile".into(), s(&bad)]
