@@ -492,41 +492,6 @@ impl MmseDfe {
     }
 }
 
-/// One run of consecutive symbol errors.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
-pub struct ErrorRun {
-    /// Index of the first wrong symbol (in the sequences given).
-    pub start: usize,
-    /// Number of consecutive wrong symbols.
-    pub length: usize,
-}
-
-/// Runs of decision errors: maximal stretches of consecutive indices where
-/// `decided[i] != known[i]`. A single correct symbol ends a run (no gap
-/// tolerance: simple and unambiguous). Compares the common prefix when the
-/// lengths differ.
-pub fn error_runs(decided: &[usize], known: &[usize]) -> Vec<ErrorRun> {
-    let mut runs = Vec::new();
-    let mut cur: Option<ErrorRun> = None;
-    for (i, (d, k)) in decided.iter().zip(known).enumerate() {
-        if d != k {
-            match cur.as_mut() {
-                Some(r) => r.length += 1,
-                None => {
-                    cur = Some(ErrorRun {
-                        start: i,
-                        length: 1,
-                    })
-                }
-            }
-        } else if let Some(r) = cur.take() {
-            runs.push(r);
-        }
-    }
-    runs.extend(cur);
-    runs
-}
-
 /// Plain configuration of [`process_burst`].
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct BurstConfig {

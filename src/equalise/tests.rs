@@ -749,38 +749,6 @@ fn lms_and_rls_tracking_follow_a_drifting_channel() {
 }
 
 #[test]
-fn error_runs_split_on_every_correct_symbol() {
-    // Source: definition in this module (a run = maximal consecutive errors).
-    let known = [0, 1, 2, 3, 0, 1, 2, 3, 0, 1];
-    let decided = [0, 2, 3, 3, 1, 1, 2, 0, 1, 2];
-    assert_eq!(
-        error_runs(&decided, &known),
-        vec![
-            ErrorRun {
-                start: 1,
-                length: 2
-            },
-            ErrorRun {
-                start: 4,
-                length: 1
-            },
-            ErrorRun {
-                start: 7,
-                length: 3
-            },
-        ]
-    );
-    assert!(error_runs(&[], &[]).is_empty());
-    assert_eq!(
-        error_runs(&[1], &[0]),
-        vec![ErrorRun {
-            start: 0,
-            length: 1
-        }]
-    );
-}
-
-#[test]
 fn a_nan_sample_in_the_payload_spoils_only_its_neighbourhood() {
     // Robustness (the brief: never panic on any input): a NaN sample may spoil
     // the symbols whose feedforward window contains it, but the phase loop and
