@@ -96,6 +96,19 @@ impl Adapt {
 /// # Panics
 /// When the output slices are shorter than `pass.range.end` or `truth` is
 /// shorter than `y` (programmer errors).
+/// One phase-loop step from the output `z` and its decision `d`: the detector
+/// is `Im(z·d*)/|d|²` (0 for a zero decision).
+#[inline]
+fn track_phase(p: &mut PhaseLoop, z: Cf32, d: Cf32) {
+    let dn = d.norm_sqr();
+    let err = if dn > 0.0 {
+        (z * d.conj()).im / dn
+    } else {
+        0.0
+    };
+    p.update(err);
+}
+
 #[allow(clippy::too_many_arguments)] // the caller-owned outputs are separate slices on purpose
 pub(crate) fn run_pass(
     pass: &Pass<'_>,
@@ -165,13 +178,7 @@ pub(crate) fn run_pass(
         labels[n] = label;
         if let Some(p) = pll.as_deref_mut() {
             phase[n] = p.phase as f32;
-            let dn = d.norm_sqr();
-            let err = if dn > 0.0 {
-                (z * d.conj()).im / dn
-            } else {
-                0.0
-            };
-            p.update(err);
+            track_phase(p, z, d);
         }
         // A non-finite output (NaN/inf sample in the window) must not reach
         // the adaptive taps: skip the update for that symbol.
@@ -334,13 +341,7 @@ fn fixed_filter_pass(
             labels[n] = label;
             if let Some(p) = pll.as_deref_mut() {
                 phase[n] = p.phase as f32;
-                let dn = d.norm_sqr();
-                let err = if dn > 0.0 {
-                    (z * d.conj()).im / dn
-                } else {
-                    0.0
-                };
-                p.update(err);
+                track_phase(p, z, d);
             }
             hist[i + nb] = d;
         }

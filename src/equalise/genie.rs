@@ -6,7 +6,7 @@
 //! Takes a channel model, `Nf`, `Nb`, an optional delay and run options; the
 //! burst must carry the known symbols (indexed like `y`).
 
-use super::mmse_dfe::{design_mmse_dfe, DesignInput};
+use super::mmse_dfe::DesignInput;
 use super::{DfeCore, EqualiseError, RunOptions};
 
 super::equaliser_type!(
@@ -18,7 +18,7 @@ impl GenieDfe {
     /// Design as [`super::MmseDfe::new`]; the run needs `BurstView::known`.
     ///
     /// # Errors
-    /// See [`design_mmse_dfe`].
+    /// See [`design_mmse_dfe`](super::design_mmse_dfe).
     pub fn new(
         ch: &DesignInput<'_>,
         nf: usize,
@@ -31,12 +31,7 @@ impl GenieDfe {
             ..opts
         };
         let core = DfeCore::design(ch, opts, |c| {
-            design_mmse_dfe(
-                c,
-                nf,
-                nb,
-                delay.map(|d| d.min((nf + c.taps.len()).saturating_sub(2))),
-            )
+            super::mmse_dfe::design_mmse_dfe_clamped(c, nf, nb, delay)
         })?;
         Ok(GenieDfe {
             core,

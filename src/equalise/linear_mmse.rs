@@ -5,7 +5,7 @@
 //! Takes a channel model ([`DesignInput`]), `Nf` and an optional delay; gives a
 //! [`LinearMmse`] equaliser.
 
-use super::mmse_dfe::{design_mmse_dfe, DesignInput};
+use super::mmse_dfe::DesignInput;
 use super::{DfeCore, EqualiseError, RunOptions};
 
 super::equaliser_type!(
@@ -17,7 +17,7 @@ impl LinearMmse {
     /// Design with `nf` feedforward taps; `delay = None` optimises Δ.
     ///
     /// # Errors
-    /// See [`design_mmse_dfe`].
+    /// See [`design_mmse_dfe`](super::design_mmse_dfe).
     pub fn new(
         ch: &DesignInput<'_>,
         nf: usize,
@@ -25,12 +25,7 @@ impl LinearMmse {
         opts: RunOptions,
     ) -> Result<Self, EqualiseError> {
         let core = DfeCore::design(ch, opts, |c| {
-            design_mmse_dfe(
-                c,
-                nf,
-                0,
-                delay.map(|d| d.min((nf + c.taps.len()).saturating_sub(2))),
-            )
+            super::mmse_dfe::design_mmse_dfe_clamped(c, nf, 0, delay)
         })?;
         Ok(LinearMmse {
             core,

@@ -161,3 +161,20 @@ pub(crate) fn feedback_from_ff(ff: &[Cf64], taps: &[Cf64], delay: usize, nb: usi
         })
         .collect()
 }
+
+/// [`design_mmse_dfe`] with a requested delay clamped to the largest one the
+/// filter span allows (`Nf + L − 2`), so one requested delay serves both the
+/// forward and the time-reversed channel.
+pub(crate) fn design_mmse_dfe_clamped(
+    c: &DesignInput<'_>,
+    nf: usize,
+    nb: usize,
+    delay: Option<usize>,
+) -> Result<DfeFilters, EqualiseError> {
+    design_mmse_dfe(
+        c,
+        nf,
+        nb,
+        delay.map(|d| d.min((nf + c.taps.len()).saturating_sub(2))),
+    )
+}

@@ -476,12 +476,7 @@ impl MmseDfe {
         opts: RunOptions,
     ) -> Result<Self, EqualiseError> {
         let core = DfeCore::design(ch, opts, |c| {
-            design_mmse_dfe(
-                c,
-                nf,
-                nb,
-                delay.map(|d| d.min((nf + c.taps.len()).saturating_sub(2))),
-            )
+            mmse_dfe::design_mmse_dfe_clamped(c, nf, nb, delay)
         })?;
         let name = match opts.tracking.mode {
             AdaptMode::Off => "mmse-dfe",
