@@ -62,6 +62,9 @@ pub struct AnalyseOptions {
     pub sample_rate_hz: Option<f64>,
     /// The command line, recorded in the report.
     pub command: Vec<String>,
+    /// The file's SHA-256 (lowercase hex) when the caller has just computed it
+    /// (batch resume, recheck): recorded as is instead of hashing the file again.
+    pub input_sha256: Option<String>,
 }
 
 /// Everything prepared once per capture and shared by all bursts.
@@ -305,7 +308,8 @@ pub fn analyse_capture(
     // The SHA-256 of the whole file is a second pass over it: run it beside the
     // search and the bursts (same bytes, same digest) instead of after them.
     let hash_path = path.to_path_buf();
-    let hasher = std::thread::spawn(move || sha256_file(&hash_path));
+    let known = opts.input_sha256.clone();
+    let hasher = std::thread::spawn(move || known.map_or_else(|| sha256_file(&hash_path), Ok));
     let src = ChunkReader::new(capture.len(), |s, out: &mut [Cf32]| {
         capture.read_into(s, out).map(|_| ())
     });
@@ -1120,6 +1124,7 @@ pub fn recheck(report_path: &Path) -> Result<RecheckResult, Error> {
         format,
         sample_rate_hz: report.provenance.sample_rate_override_hz,
         command: report.command.clone(),
+        input_sha256: Some(found),
     };
     let mut again = analyse_capture(&input, &profile, &opts)?;
     again.input.path = report.input.path.clone();

@@ -3,8 +3,10 @@
 //!
 //! Takes in: a folder, an output folder, [`BatchOptions`] and the per-capture
 //! job (in the product, the single-capture analysis; any
-//! `Fn(&Path) -> Result<Report, JobFailure>` here, so the machinery is tested
-//! with fake jobs). Gives out: `OUT/<relative path>.report.json` for each
+//! `Fn(&Path, Option<&str>) -> Result<Report, JobFailure>` here, so the
+//! machinery is tested with fake jobs). The job's second argument is the
+//! capture's SHA-256 when the batch has already read the whole file to decide
+//! whether an existing report is up to date (see [`run_batch`]). Gives out: `OUT/<relative path>.report.json` for each
 //! capture (written atomically), `OUT/summary.jsonl` and `OUT/summary.csv`
 //! (see [`summary`] for the columns) and a [`BatchOutcome`].
 //!
@@ -20,7 +22,10 @@
 //!    progress log or printing a line), so many small files scale with workers.
 //!    A capture whose report already exists with the same input SHA-256 and
 //!    the same resolved-profile SHA-256 is not re-run (its row is rebuilt from
-//!    the report) unless [`BatchOptions::force`].
+//!    the report) unless [`BatchOptions::force`]. The file is hashed only when
+//!    a report with the same profile and size exists; if the digest then
+//!    differs, it is handed to the job, so each capture is read for its hash
+//!    at most once per run.
 //! 4. A capture that fails — unreadable, empty, corrupt, unknown format, or a
 //!    job that panics — becomes a row with its error message and a
 //!    `path: problem` line on stderr; the batch goes on.
@@ -310,9 +315,15 @@ impl BatchError {
 
 /// Run a batch, printing progress and messages on stderr. See the module
 /// documentation.
+///
+/// The per-capture job is called as `job(path, known_sha256)` and returns the
+/// capture's report. `known_sha256` is the file's SHA-256 (lowercase hex) when
+/// the batch already computed it while checking an existing report, so the job
+/// need not read the file again to hash it; `None` when the batch did not hash
+/// it. The report must be the same either way.
 pub fn run_batch<F>(opts: &BatchOptions, job: F) -> Result<BatchOutcome, BatchError>
 where
-    F: Fn(&Path) -> Result<Report, JobFailure> + Sync,
+    F: Fn(&Path, Option<&str>) -> Result<Report, JobFailure> + Sync,
 {
     run_batch_with_messages(opts, job, Box::new(io::stderr()))
 }
@@ -325,7 +336,7 @@ pub fn run_batch_with_messages<F>(
     messages: Box<dyn Write + Send>,
 ) -> Result<BatchOutcome, BatchError>
 where
-    F: Fn(&Path) -> Result<Report, JobFailure> + Sync,
+    F: Fn(&Path, Option<&str>) -> Result<Report, JobFailure> + Sync,
 {
     let root = &opts.input_dir;
     fs::read_dir(root).map_err(|source| BatchError::InputFolder {
@@ -503,7 +514,7 @@ fn report_paths(out_dir: &Path, e: &Entry) -> (PathBuf, String) {
 /// Returns the row and whether the report was reused.
 fn process_one<F>(opts: &BatchOptions, e: &Entry, job: &F) -> (SummaryRow, bool)
 where
-    F: Fn(&Path) -> Result<Report, JobFailure> + Sync,
+    F: Fn(&Path, Option<&str>) -> Result<Report, JobFailure> + Sync,
 {
     if let Some(msg) = &e.walk_error {
         return (
@@ -516,12 +527,16 @@ where
     if let Err(err) = ensure_not_an_input(&report_path, &[&e.full]) {
         return fail(RowVerdict::Error, &err.to_string());
     }
+    let mut known_sha256 = None;
     if !opts.force {
-        if let Some(row) = try_reuse(opts, e, &report_path, &report_rel) {
-            return (row, true);
+        match try_reuse(opts, e, &report_path, &report_rel) {
+            Reuse::UpToDate(row) => return (*row, true),
+            Reuse::Stale { sha256 } => known_sha256 = sha256,
         }
     }
-    let outcome = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| job(&e.full)));
+    let outcome = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
+        job(&e.full, known_sha256.as_deref())
+    }));
     let report = match outcome {
         Ok(Ok(r)) => r,
         Ok(Err(f)) => {
@@ -561,27 +576,43 @@ where
     }
 }
 
-/// The row from an existing report, when it was made from the same bytes with
-/// the same resolved profile.
-fn try_reuse(
-    opts: &BatchOptions,
-    e: &Entry,
-    report_path: &Path,
-    report_rel: &str,
-) -> Option<SummaryRow> {
-    let text = fs::read(report_path).ok()?;
-    let report: Report = serde_json::from_slice(&text).ok()?;
+/// Whether an existing report can stand for a fresh analysis.
+enum Reuse {
+    /// Made from the same bytes with the same resolved profile: its row.
+    UpToDate(Box<SummaryRow>),
+    /// Missing, unreadable or stale; `sha256` is the capture's digest when it
+    /// was computed to find that out (passed on to the job).
+    Stale { sha256: Option<String> },
+}
+
+/// Check the existing report of `e`. The capture is hashed only when the
+/// report's profile, overrides and input size all match.
+fn try_reuse(opts: &BatchOptions, e: &Entry, report_path: &Path, report_rel: &str) -> Reuse {
+    let stale = Reuse::Stale { sha256: None };
+    let Ok(text) = fs::read(report_path) else {
+        return stale;
+    };
+    let Ok(report) = serde_json::from_slice::<Report>(&text) else {
+        return stale;
+    };
     let p = &report.provenance;
     if p.profile_sha256 != opts.profile_sha256
         || p.format_override != opts.format_override
         || p.sample_rate_override_hz != opts.sample_rate_override_hz
         || report.input.size_bytes != e.bytes
     {
-        return None;
+        return stale;
     }
-    let sha = sha256_file(&e.full).ok()?;
-    (sha == report.input.sha256)
-        .then(|| SummaryRow::from_report(&e.rel, e.bytes, report_rel, &report))
+    let Ok(sha) = sha256_file(&e.full) else {
+        return stale;
+    };
+    if sha == report.input.sha256 {
+        Reuse::UpToDate(Box::new(SummaryRow::from_report(
+            &e.rel, e.bytes, report_rel, &report,
+        )))
+    } else {
+        Reuse::Stale { sha256: Some(sha) }
+    }
 }
 
 fn hints(c: &BatchCounts) -> Vec<String> {

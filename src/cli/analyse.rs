@@ -148,6 +148,7 @@ pub fn run_analyse(args: &AnalyseArgs, argv: &[String]) -> Result<Outcome, Error
         format,
         sample_rate_hz: args.sample_rate,
         command: argv.to_vec(),
+        input_sha256: None,
     };
     let run = || analyse_capture(&args.capture, &profile, &opts);
     let report = match args.jobs {

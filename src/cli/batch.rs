@@ -148,9 +148,23 @@ pub fn run_batch_cmd(args: &BatchArgs, argv: &[String]) -> Result<Outcome, Error
         format,
         sample_rate_hz: args.sample_rate,
         command: argv.to_vec(),
+        input_sha256: None,
     };
-    let outcome = run_batch(&opts, |p| {
-        analyse_capture(p, &profile, &aopts).map_err(|e| to_failure(p, e))
+    let outcome = run_batch(&opts, |p, known_sha256| {
+        // A digest the resume check already computed is passed through, so the
+        // capture is not read a second time just to hash it.
+        let with_digest;
+        let aopts = match known_sha256 {
+            None => &aopts,
+            Some(d) => {
+                with_digest = AnalyseOptions {
+                    input_sha256: Some(d.to_string()),
+                    ..aopts.clone()
+                };
+                &with_digest
+            }
+        };
+        analyse_capture(p, &profile, aopts).map_err(|e| to_failure(p, e))
     })?;
     Ok(Outcome::Exit(outcome.exit_code()))
 }

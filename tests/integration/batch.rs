@@ -184,7 +184,8 @@ fn every_file_of_a_mixed_folder_gets_a_row_and_failures_carry_their_message() {
     let sink = Sink::default();
     let o = opts(&input, &out, 3);
     let outcome =
-        run_batch_with_messages(&o, |p| fake_job(p, PROFILE_SHA), Box::new(sink.clone())).unwrap();
+        run_batch_with_messages(&o, |p, _| fake_job(p, PROFILE_SHA), Box::new(sink.clone()))
+            .unwrap();
 
     let by_path = |p: &str| outcome.rows.iter().find(|r| r.path == p).unwrap().clone();
     assert_eq!(outcome.rows.len(), 8, "{:?}", outcome.rows);
@@ -268,26 +269,26 @@ fn exit_class_is_1_for_limits_or_no_training_and_0_when_all_pass() {
     );
     let o = opts(&input, &dir.path().join("o0"), 2);
     let r =
-        run_batch_with_messages(&o, |p| fake_job(p, PROFILE_SHA), Box::new(io::sink())).unwrap();
+        run_batch_with_messages(&o, |p, _| fake_job(p, PROFILE_SHA), Box::new(io::sink())).unwrap();
     assert_eq!(r.exit_code(), 0);
 
     populate(&input, &[("quiet-1.cu8", &[3u8; 16])]);
     let o = opts(&input, &dir.path().join("o1"), 2);
     let r =
-        run_batch_with_messages(&o, |p| fake_job(p, PROFILE_SHA), Box::new(io::sink())).unwrap();
+        run_batch_with_messages(&o, |p, _| fake_job(p, PROFILE_SHA), Box::new(io::sink())).unwrap();
     assert_eq!(r.exit_code(), 1);
 
     fs::remove_file(input.join("quiet-1.cu8")).unwrap();
     populate(&input, &[("limit-1.cu8", &[3u8; 16])]);
     let o = opts(&input, &dir.path().join("o2"), 2);
     let r =
-        run_batch_with_messages(&o, |p| fake_job(p, PROFILE_SHA), Box::new(io::sink())).unwrap();
+        run_batch_with_messages(&o, |p, _| fake_job(p, PROFILE_SHA), Box::new(io::sink())).unwrap();
     assert_eq!(r.exit_code(), 1);
 
     populate(&input, &[("boom.cf32", &[9u8; 16])]);
     let o = opts(&input, &dir.path().join("o3"), 2);
     let r =
-        run_batch_with_messages(&o, |p| fake_job(p, PROFILE_SHA), Box::new(io::sink())).unwrap();
+        run_batch_with_messages(&o, |p, _| fake_job(p, PROFILE_SHA), Box::new(io::sink())).unwrap();
     let boom = r.rows.iter().find(|x| x.path == "boom.cf32").unwrap();
     assert_eq!(boom.verdict, RowVerdict::Error);
     assert!(boom
@@ -318,7 +319,7 @@ fn the_summary_and_reports_are_byte_identical_for_one_and_four_workers() {
     let input = dir.path().join("in");
     many_files(&input, 60);
     let (o1, o4) = (dir.path().join("j1"), dir.path().join("j4"));
-    let job = |p: &Path| fake_job(p, PROFILE_SHA);
+    let job = |p: &Path, _: Option<&str>| fake_job(p, PROFILE_SHA);
     let a = run_batch_with_messages(&opts(&input, &o1, 1), job, Box::new(io::sink())).unwrap();
     let b = run_batch_with_messages(&opts(&input, &o4, 4), job, Box::new(io::sink())).unwrap();
     assert_eq!(a.counts, b.counts);
@@ -352,7 +353,7 @@ fn the_shards_partition_the_captures_and_their_merge_equals_the_whole_run() {
     let dir = tempfile::tempdir().unwrap();
     let input = dir.path().join("in");
     many_files(&input, 40);
-    let job = |p: &Path| fake_job(p, PROFILE_SHA);
+    let job = |p: &Path, _: Option<&str>| fake_job(p, PROFILE_SHA);
     let whole = dir.path().join("whole");
     let all = run_batch_with_messages(&opts(&input, &whole, 2), job, Box::new(io::sink())).unwrap();
 
@@ -396,8 +397,14 @@ fn a_second_run_skips_up_to_date_reports_and_force_redoes_them() {
     let (input, out) = (dir.path().join("in"), dir.path().join("out"));
     mixed_folder(&input);
     let calls = AtomicUsize::new(0);
-    let job = |p: &Path| {
+    // Every digest the batch hands to the job, by file name.
+    let digests: Mutex<Vec<(String, String)>> = Mutex::new(Vec::new());
+    let job = |p: &Path, known: Option<&str>| {
         calls.fetch_add(1, Ordering::SeqCst);
+        if let Some(d) = known {
+            let name = p.file_name().unwrap().to_string_lossy().into_owned();
+            digests.lock().unwrap().push((name, d.to_string()));
+        }
         fake_job(p, PROFILE_SHA)
     };
     let first = run_batch_with_messages(&opts(&input, &out, 2), job, Box::new(io::sink())).unwrap();
@@ -430,6 +437,17 @@ fn a_second_run_skips_up_to_date_reports_and_force_redoes_them() {
         run_batch_with_messages(&opts(&input, &out, 2), job, Box::new(io::sink())).unwrap();
     assert_eq!(calls.swap(0, Ordering::SeqCst), 3 + 1);
     assert_eq!(fourth.counts.analysed, 1);
+    // The digest computed to find the report stale is handed to the job (so the
+    // capture is hashed once), and it is the new file's digest; in the runs
+    // before, no capture was hashed before its job ran (no report, or --force).
+    // Source: sha256_file, checked against the FIPS 180-4 examples in the unit tests.
+    assert_eq!(
+        *digests.lock().unwrap(),
+        [(
+            "good-2.cf32".to_string(),
+            sha256_file(&input.join("site-a/good-2.cf32")).unwrap()
+        )]
+    );
 
     // A different resolved profile makes every report stale.
     let other = "0".repeat(64);
@@ -439,7 +457,7 @@ fn a_second_run_skips_up_to_date_reports_and_force_redoes_them() {
     };
     let fifth = run_batch_with_messages(
         &o,
-        |p| {
+        |p, _| {
             calls.fetch_add(1, Ordering::SeqCst);
             fake_job(p, &other)
         },
@@ -461,7 +479,7 @@ fn an_interrupted_batch_leaves_only_whole_reports_and_a_summary_of_what_complete
     let mut o = opts(&input, &out, 2);
     o.cancel = cancel.clone();
     let started = AtomicUsize::new(0);
-    let job = |p: &Path| {
+    let job = |p: &Path, _: Option<&str>| {
         // The fourth capture to start plays the user pressing Ctrl-C; captures
         // already running finish (slowly) and are written whole.
         if started.fetch_add(1, Ordering::SeqCst) == 3 {
@@ -499,7 +517,7 @@ fn an_interrupted_batch_leaves_only_whole_reports_and_a_summary_of_what_complete
     // Resuming picks up exactly where it stopped.
     let r2 = run_batch_with_messages(
         &opts(&input, &out, 2),
-        |p| fake_job(p, PROFILE_SHA),
+        |p, _| fake_job(p, PROFILE_SHA),
         Box::new(io::sink()),
     )
     .unwrap();
@@ -517,7 +535,7 @@ fn an_unwritable_output_folder_fails_before_any_capture_is_touched() {
     let calls = AtomicUsize::new(0);
     let err = run_batch_with_messages(
         &opts(&input, &blocker.join("out"), 2),
-        |p| {
+        |p, _| {
             calls.fetch_add(1, Ordering::SeqCst);
             fake_job(p, PROFILE_SHA)
         },
@@ -538,7 +556,7 @@ fn a_folder_without_captures_or_a_missing_folder_is_an_error() {
     let input = dir.path().join("in");
     populate(&input, &[("notes.txt", b"nothing here")]);
     let out = dir.path().join("out");
-    let job = |p: &Path| fake_job(p, PROFILE_SHA);
+    let job = |p: &Path, _: Option<&str>| fake_job(p, PROFILE_SHA);
     let err =
         run_batch_with_messages(&opts(&input, &out, 1), job, Box::new(io::sink())).unwrap_err();
     assert!(err.to_string().contains("no captures found"), "{err}");
@@ -560,7 +578,7 @@ fn an_output_folder_inside_the_input_is_not_walked_and_glob_narrows_the_set() {
     let input = dir.path().to_path_buf();
     mixed_folder(&input);
     let out = input.join("reports");
-    let job = |p: &Path| fake_job(p, PROFILE_SHA);
+    let job = |p: &Path, _: Option<&str>| fake_job(p, PROFILE_SHA);
     let a = run_batch_with_messages(&opts(&input, &out, 2), job, Box::new(io::sink())).unwrap();
     // A capture-named file planted in the output folder is never picked up.
     fs::write(out.join("planted.cf32"), [1u8; 8]).unwrap();
@@ -589,7 +607,7 @@ fn quiet_mode_prints_only_the_final_line() {
     let mut o = opts(&input, &dir.path().join("out"), 2);
     o.progress = ProgressMode::Quiet;
     let sink = Sink::default();
-    run_batch_with_messages(&o, |p| fake_job(p, PROFILE_SHA), Box::new(sink.clone())).unwrap();
+    run_batch_with_messages(&o, |p, _| fake_job(p, PROFILE_SHA), Box::new(sink.clone())).unwrap();
     let text = sink.text();
     let lines: Vec<&str> = text.lines().collect();
     assert_eq!(lines.len(), 1, "{text}");
