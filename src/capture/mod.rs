@@ -697,13 +697,7 @@ impl Capture {
         let stats = match self.as_cf32_view() {
             Some(view) => {
                 self.ensure_present(start, end)?;
-                let mut st = ReadStats::default();
-                for (o, s) in out.iter_mut().zip(&view[start..]) {
-                    let (v, c) = raw::check_float(*s);
-                    *o = v;
-                    st += c;
-                }
-                st
+                raw::check_floats(&view[start..end], out)
             }
             None => self
                 .source

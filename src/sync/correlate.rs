@@ -38,8 +38,9 @@ pub struct OverlapSave {
     ref_len: usize,
     fwd: Arc<dyn Fft<f32>>,
     inv: Arc<dyn Fft<f32>>,
-    /// Per reference: `conj(FFT(r zero-padded to N)) / N`.
-    spectra: Vec<Vec<Cf32>>,
+    /// Per reference: `S = conj(FFT(r zero-padded to N)) / N`, stored split for
+    /// the multiply (see [`SplitSpectrum`]).
+    spectra: Vec<SplitSpectrum>,
     fft_scratch_len: usize,
 }
 
@@ -92,7 +93,7 @@ impl OverlapSave {
                 for v in s.iter_mut() {
                     *v = v.conj() * scale;
                 }
-                s
+                SplitSpectrum::new(&s)
             })
             .collect();
         OverlapSave {
@@ -194,27 +195,14 @@ impl OverlapSave {
         self.fwd.process_with_scratch(buf, fft_scratch);
     }
 
-    fn inverse(&self, spec: &[Cf32], buf: &[Cf32], work: &mut [Cf32], fft_scratch: &mut [Cf32]) {
-        // Written out in groups of 4 so the compiler keeps it in SIMD registers.
-        let mut w4 = work.chunks_exact_mut(4);
-        let mut x4 = buf.chunks_exact(4);
-        let mut s4 = spec.chunks_exact(4);
-        for ((w, x), s) in (&mut w4).zip(&mut x4).zip(&mut s4) {
-            for k in 0..4 {
-                w[k] = Cf32::new(
-                    x[k].re * s[k].re - x[k].im * s[k].im,
-                    x[k].re * s[k].im + x[k].im * s[k].re,
-                );
-            }
-        }
-        for ((w, &x), &s) in w4
-            .into_remainder()
-            .iter_mut()
-            .zip(x4.remainder())
-            .zip(s4.remainder())
-        {
-            *w = x * s;
-        }
+    fn inverse(
+        &self,
+        spec: &SplitSpectrum,
+        buf: &[Cf32],
+        work: &mut [Cf32],
+        fft_scratch: &mut [Cf32],
+    ) {
+        spec.multiply(buf, work);
         self.inv.process_with_scratch(work, fft_scratch);
     }
 
@@ -240,14 +228,51 @@ impl OverlapSave {
         emit: &mut impl FnMut(usize, f64, usize),
     ) {
         debug_assert!(first + count <= self.step());
-        let l = self.ref_len;
         let (buf, rest) = scratch.split_at_mut(self.fft_len);
         let (work, fft_scratch) = rest.split_at_mut(self.fft_len);
         self.load_forward(input, 0, buf, fft_scratch);
-        let block_energy: f64 = input[..(self.fft_len).min(input.len())]
-            .iter()
-            .map(|v| energy(*v))
-            .sum();
+        // Window energies from f64 prefix sums over this block (restarted at every
+        // block start, so nothing drifts along a long capture):
+        // `E_w[i] = P[i+L] − P[i]`, no serial chain per lag.
+        let n_in = self.fft_len.min(input.len());
+        PREFIX.with(|cell| {
+            let mut prefix = cell.borrow_mut();
+            prefix_energy(&input[..n_in], &mut prefix);
+            self.scan_lags(
+                input,
+                first,
+                count,
+                ref_energy,
+                threshold,
+                &prefix,
+                work,
+                buf,
+                fft_scratch,
+                c2,
+                best,
+                emit,
+            );
+        });
+    }
+
+    #[allow(clippy::too_many_arguments)]
+    fn scan_lags(
+        &self,
+        input: &[Cf32],
+        first: usize,
+        count: usize,
+        ref_energy: f64,
+        threshold: f64,
+        prefix: &[f64],
+        work: &mut [Cf32],
+        buf: &mut [Cf32],
+        fft_scratch: &mut [Cf32],
+        c2: &mut [f32],
+        best: &mut [f32],
+        emit: &mut impl FnMut(usize, f64, usize),
+    ) {
+        let l = self.ref_len;
+        let block_energy = prefix[prefix.len() - 1];
         let end = first + count;
         let c2 = &mut c2[first..end];
         let best = &mut best[first..end];
@@ -260,28 +285,27 @@ impl OverlapSave {
                     *b = 0.0;
                 }
             } else {
-                // Branch-free select on same-width lanes (index held as f32, exact
-                // below 2^24) so the loop vectorises.
+                // Branch-free select written as arithmetic on same-width lanes
+                // (index held as f32, exact below 2^24; `b + 1·(h − b) = h`
+                // exactly for such integers) so the loop vectorises.
                 let hu = h as f32;
                 for ((c, b), v) in c2.iter_mut().zip(best.iter_mut()).zip(w) {
                     let p = v.norm_sqr();
-                    let gt = p > *c;
-                    *c = if gt { p } else { *c };
-                    *b = if gt { hu } else { *b };
+                    let gt = f32::from(u8::from(p > *c));
+                    *b += gt * (hu - *b);
+                    *c = c.max(p);
                 }
             }
         }
         let floor = SILENT_WINDOW_RELATIVE * block_energy;
         // Compare |c|² ≥ γ·E_r·E_w without dividing; divide only for emitted lags.
         let scaled = threshold * ref_energy;
-        let mut ew: f64 = input[first..first + l].iter().map(|v| energy(*v)).sum();
         for (j, (&c, &b)) in c2.iter().zip(best.iter()).enumerate() {
             let i = first + j;
-            if j > 0 {
-                ew += energy(input[i + l - 1]) - energy(input[i - 1]);
-            }
+            let mut ew = prefix[i + l] - prefix[i];
             if ew <= floor {
-                // Cancellation in the running sum could leave a residue here: recompute.
+                // Cancellation in the prefix difference could leave a residue of
+                // order ε·P here: recompute the quiet window directly.
                 ew = input[i..i + l].iter().map(|v| energy(*v)).sum();
             }
             let c = f64::from(c);
@@ -297,6 +321,86 @@ impl OverlapSave {
                 emit(i, rho, b as usize);
             }
         }
+    }
+}
+
+/// A spectrum `S` laid out for a shuffle-light complex multiply on flat `f32`
+/// runs: `a = [Re S₀, Re S₀, Re S₁, Re S₁, …]`, `b = [−Im S₀, Im S₀, −Im S₁, …]`, so
+/// that with `x` the flat (re, im) run of the input, `(x·S)[j] = x[j]·a[j] +
+/// x[j^1]·b[j]`. Same IEEE results as the textbook form: `xr·sr + xi·(−si)` is
+/// exactly `xr·sr − xi·si`, and the imaginary part only swaps the operands of an
+/// addition.
+struct SplitSpectrum {
+    a: Vec<f32>,
+    b: Vec<f32>,
+}
+
+impl SplitSpectrum {
+    fn new(s: &[Cf32]) -> SplitSpectrum {
+        let a = s.iter().flat_map(|v| [v.re, v.re]).collect();
+        let b = s.iter().flat_map(|v| [-v.im, v.im]).collect();
+        SplitSpectrum { a, b }
+    }
+
+    /// `out[k] = x[k]·S[k]` for `k < min(x.len(), out.len(), N)`.
+    fn multiply(&self, x: &[Cf32], out: &mut [Cf32]) {
+        let x: &[f32] = bytemuck::cast_slice(x);
+        let out: &mut [f32] = bytemuck::cast_slice_mut(out);
+        for (((o, x), a), b) in out
+            .chunks_exact_mut(2)
+            .zip(x.chunks_exact(2))
+            .zip(self.a.chunks_exact(2))
+            .zip(self.b.chunks_exact(2))
+        {
+            o[0] = x[0] * a[0] + x[1] * b[0];
+            o[1] = x[1] * a[1] + x[0] * b[1];
+        }
+    }
+}
+
+thread_local! {
+    /// Per-thread prefix-sum buffer of [`OverlapSave::scan_block`] (one block
+    /// long; grown once, never per block).
+    static PREFIX: std::cell::RefCell<Vec<f64>> = const { std::cell::RefCell::new(Vec::new()) };
+}
+
+/// Lanes of the prefix sum: independent running sums over consecutive segments,
+/// interleaved so their additions overlap instead of forming one serial chain.
+const PREFIX_LANES: usize = 8;
+
+/// `out[k] = Σ_{m<k} |x[m]|²` in f64 for `k = 0 ..= x.len()`.
+///
+/// The block is cut into [`PREFIX_LANES`] consecutive segments whose local sums
+/// run side by side; each segment then gets the total of those before it. The
+/// rounding differs from a left-to-right sum only at the ε·P level, and the
+/// result depends only on `x` (fixed block grid ⇒ same figures for any thread count).
+pub(crate) fn prefix_energy(x: &[Cf32], out: &mut Vec<f64>) {
+    let n = x.len();
+    out.clear();
+    out.resize(n + 1, 0.0);
+    let seg = n / PREFIX_LANES;
+    let mut acc = [0.0f64; PREFIX_LANES];
+    for k in 0..seg {
+        for (lane, a) in acc.iter_mut().enumerate() {
+            let m = lane * seg + k;
+            *a += energy(x[m]);
+            out[m + 1] = *a;
+        }
+    }
+    // Give each segment the total of the segments before it, then finish the
+    // tail serially.
+    if seg > 0 {
+        for lane in 1..PREFIX_LANES {
+            let base = out[lane * seg];
+            for v in &mut out[lane * seg + 1..=(lane + 1) * seg] {
+                *v += base;
+            }
+        }
+    }
+    let mut a = out[PREFIX_LANES * seg];
+    for m in PREFIX_LANES * seg..n {
+        a += energy(x[m]);
+        out[m + 1] = a;
     }
 }
 
@@ -365,6 +469,48 @@ mod tests {
                 let refs = vec![random_symbols(ref_len, 3), random_symbols(ref_len, 4)];
                 check(&input, &refs, fft_len, false);
                 check(&input, &refs, fft_len, true);
+            }
+        }
+    }
+
+    #[test]
+    fn split_spectrum_multiply_is_bit_identical_to_the_complex_product() {
+        // Slow twin: num-complex's own `Complex * Complex` (the textbook
+        // (ac − bd) + (ad + bc)i), compared bit for bit; sizes 0, 1, 2, 13, 4096.
+        for n in [0usize, 1, 2, 13, 4096] {
+            let s = random_symbols(n, 21);
+            let x = random_symbols(n, 22);
+            let split = SplitSpectrum::new(&s);
+            let mut out = vec![Cf32::new(f32::NAN, f32::NAN); n];
+            split.multiply(&x, &mut out);
+            for k in 0..n {
+                let want = x[k] * s[k];
+                assert_eq!(out[k].re.to_bits(), want.re.to_bits(), "n={n} k={k}");
+                assert_eq!(out[k].im.to_bits(), want.im.to_bits(), "n={n} k={k}");
+            }
+        }
+    }
+
+    #[test]
+    fn lane_split_prefix_energy_matches_a_left_to_right_f64_sum() {
+        // Slow twin: the plain running sum. Tolerance: each prefix is a sum of at
+        // most n non-negative terms reordered into 8 partial sums, so the two
+        // differ by a few ε·n·P (ε = 2^-53) at most — 1e-12·P is ample (common
+        // practice for reordered summation of positive terms).
+        for n in [0usize, 1, 2, 7, 8, 9, 13, 63, 64, 65, 509, 4096, 4099] {
+            let x = random_symbols(n, 5 + n as u64);
+            let mut fast = Vec::new();
+            prefix_energy(&x, &mut fast);
+            assert_eq!(fast.len(), n + 1);
+            let mut acc = 0.0f64;
+            assert_eq!(fast[0], 0.0);
+            for (k, v) in x.iter().enumerate() {
+                acc += energy(*v);
+                assert!(
+                    (fast[k + 1] - acc).abs() <= 1e-12 * acc.max(1e-300),
+                    "n={n} k={k}: {} vs {acc}",
+                    fast[k + 1]
+                );
             }
         }
     }
