@@ -757,21 +757,34 @@ pub fn parse_container(text: &str) -> Result<Container, SynthError> {
 
 /// The container [`write_outputs`] uses when none is named: a `.wav` file gets
 /// 16-bit PCM; otherwise the profile's `capture.format`, else the format the
-/// reader infers from the extension, else `cf32_le`.
-pub fn default_container(out: &Path, profile: &ResolvedProfile) -> Container {
+/// reader infers from the extension, else `cf32_le`. An extension that names a
+/// different raw format from the profile's is refused (`--out`), so a file is
+/// never named for one layout while holding another.
+pub fn default_container(out: &Path, profile: &ResolvedProfile) -> Result<Container, SynthError> {
     let ext = out
         .extension()
         .and_then(|e| e.to_str())
         .map(|e| e.to_ascii_lowercase());
     if ext.as_deref() == Some("wav") {
-        return Container::Wav(WavEncoding::Pcm16);
+        return Ok(Container::Wav(WavEncoding::Pcm16));
     }
-    let f = profile
-        .capture
-        .format
-        .or_else(|| ext.as_deref().and_then(SampleFormat::from_extension))
-        .unwrap_or(SampleFormat::Cf32Le);
-    Container::Raw(f)
+    let by_ext = ext.as_deref().and_then(SampleFormat::from_extension);
+    match (profile.capture.format, by_ext) {
+        // A file named for one layout but holding another would be misread by
+        // anything that goes by the name (including `iqaudit info`).
+        (Some(p), Some(e)) if p != e => Err(bad(
+            "--out",
+            format!(
+                "a name whose extension matches the profile's capture.format {} (or --format {} to write what the name says)",
+                p.name(),
+                e.name()
+            ),
+            format!("{} (the extension means {})", out.display(), e.name()),
+        )),
+        (Some(p), _) => Ok(Container::Raw(p)),
+        (None, Some(e)) => Ok(Container::Raw(e)),
+        (None, None) => Ok(Container::Raw(SampleFormat::Cf32Le)),
+    }
 }
 
 /// Synthesise and write the capture (atomically, via `capture::write_capture`),

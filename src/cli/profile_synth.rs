@@ -113,8 +113,9 @@ pub struct SynthArgs {
     /// Output format: cf32_le, cf32_be, cf64_le, ci16_le, ci16_be, ci8, cu8, wav_pcm8, wav_pcm16, wav_pcm24, wav_pcm32, wav_float32.
     ///
     /// Default: wav_pcm16 for a .wav file, else the profile's capture.format, else
-    /// the format the reader infers from the extension, else cf32_le. Integer
-    /// formats quantise and clip at full scale.
+    /// the format the reader infers from the extension, else cf32_le; an
+    /// extension naming another raw format than the profile's is refused.
+    /// Integer formats quantise and clip at full scale.
     #[arg(long, value_name = "F")]
     pub format: Option<String>,
 
@@ -361,7 +362,7 @@ pub fn run_synth(args: &SynthArgs, argv: &[String]) -> Result<Outcome, Error> {
     };
     let container = match &args.format {
         Some(f) => parse_container(f)?,
-        None => default_container(&args.out, &profile),
+        None => default_container(&args.out, &profile)?,
     };
     let spec = SynthSpec {
         sample_rate_hz: args.sample_rate,

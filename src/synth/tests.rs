@@ -366,3 +366,33 @@ fn drifting_taps_turn_at_the_drift_rate_relative_to_the_main_tap() {
     }
     assert!(worst < 5e-3, "worst {worst}");
 }
+
+#[test]
+fn an_output_named_for_another_raw_format_than_the_profile_is_refused() {
+    // Common practice: a raw capture's extension names its layout (the reader
+    // infers the format from it), so a name contradicting the content is an error.
+    let mut p = profile(PayloadPosition::After, 0, 16, true);
+    p.capture.format = Some(SampleFormat::Ci16Le);
+    let err = default_container(Path::new("x.cf32"), &p).unwrap_err();
+    let msg = err.to_string();
+    assert!(msg.starts_with("--out"), "{msg}");
+    assert!(msg.contains("ci16_le") && msg.contains("cf32_le"), "{msg}");
+    // Matching, unknown or WAV extensions are fine.
+    assert_eq!(
+        default_container(Path::new("x.ci16"), &p).unwrap(),
+        Container::Raw(SampleFormat::Ci16Le)
+    );
+    assert_eq!(
+        default_container(Path::new("x.iq"), &p).unwrap(),
+        Container::Raw(SampleFormat::Ci16Le)
+    );
+    assert_eq!(
+        default_container(Path::new("x.wav"), &p).unwrap(),
+        Container::Wav(WavEncoding::Pcm16)
+    );
+    p.capture.format = None;
+    assert_eq!(
+        default_container(Path::new("x.cu8"), &p).unwrap(),
+        Container::Raw(SampleFormat::Cu8)
+    );
+}
