@@ -346,8 +346,7 @@ struct Candidate {
 struct Worker {
     chunk: Vec<Cf32>,
     scratch: Vec<Cf32>,
-    c2: Vec<f32>,
-    best: Vec<f32>,
+    bufs: correlate::ScanBuffers,
 }
 
 /// The synchroniser: built once per training/pulse/config, shared across threads.
@@ -584,8 +583,7 @@ impl Synchroniser {
         Worker {
             chunk: vec![Cf32::new(0.0, 0.0); chunk_len + self.corr.ref_len() - 1],
             scratch: vec![Cf32::new(0.0, 0.0); self.corr.scratch_len()],
-            c2: vec![0.0; step],
-            best: vec![0.0; step],
+            bufs: self.corr.scan_buffers(),
         }
     }
 
@@ -661,8 +659,7 @@ impl Synchroniser {
                 self.ref_energy,
                 threshold,
                 &mut w.scratch,
-                &mut w.c2,
-                &mut w.best,
+                &mut w.bufs,
                 &mut |i, rho, hyp| {
                     out.push(Candidate {
                         lag: b + i,
