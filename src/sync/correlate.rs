@@ -20,7 +20,7 @@
 //! drift and results do not depend on where a caller's chunks or lag ranges begin, only
 //! on the fixed block grid). The running sum is one serial chain of dependent f64
 //! additions; to keep it off the critical path each block's lags are split into
-//! [`ENERGY_LANES`] contiguous lanes, each restarting from its own direct sum, and the
+//! `ENERGY_LANES` (8) contiguous lanes, each restarting from its own direct sum, and the
 //! lanes are advanced in lockstep so the CPU overlaps their chains.
 use std::sync::Arc;
 
