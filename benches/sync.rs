@@ -7,11 +7,21 @@
 //! stdout. The capture is built in memory: complex white noise (Es/N0 10 dB relative to
 //! the bursts) with one QPSK burst (127-symbol training, sps 4, RRC β 0.25, 8-symbol
 //! span) every 2^20 samples. Run with `cargo bench --bench sync`.
+//!
+//! File mode (`SYNC_BENCH_FILE=PATH`, used by `benches/sync_vs_scipy.sh`): the same
+//! capture is written once to PATH as raw `cf32_le` (if PATH does not exist yet), with
+//! the search reference beside it (`PATH.ref.cf32`, `PATH.ref.json`: head, threshold,
+//! minimum spacing) for the numpy/scipy baseline (`benches/baseline/search.py`); then the
+//! one-hypothesis search runs over the memory-mapped file (`Capture::open` +
+//! `Synchroniser::search_chunked`, the path `analyse` takes), 1 thread and all threads,
+//! and prints one `RESULT {json}` line per run (wall and CPU seconds, detected starts).
+use std::io::Write;
+use std::path::Path;
 use std::time::Instant;
 
 use iqaudit::signal::rrc::{rrc_taps, shape};
 use iqaudit::sync::{SyncConfig, Synchroniser};
-use iqaudit::Cf32;
+use iqaudit::{Capture, Cf32, OpenOptions, SampleFormat};
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rand_distr::StandardNormal;
@@ -71,14 +81,9 @@ fn best_of<T>(repeats: usize, mut f: impl FnMut() -> T) -> (f64, f64, T) {
     (best.0, best.1, out.expect("at least one repeat"))
 }
 
-fn main() {
-    let n = env_usize("SYNC_BENCH_SAMPLES", 1 << 27);
-    let repeats = env_usize("SYNC_BENCH_REPEATS", 3).max(1);
-    let taps = rrc_taps(0.25, 8, SPS);
-    let training = qpsk(127, &mut ChaCha8Rng::seed_from_u64(7));
-
-    // Build the capture in parallel, block by block, deterministically.
-    let t = Instant::now();
+/// The bench capture: complex white noise with one burst every 2^20 samples, built in
+/// parallel, block by block, deterministically.
+fn build_capture(n: usize, taps: &[f32], training: &[Cf32]) -> Vec<Cf32> {
     const BLOCK: usize = 1 << 20;
     let mut x = vec![Cf32::new(0.0, 0.0); n];
     x.par_chunks_mut(BLOCK).enumerate().for_each(|(b, chunk)| {
@@ -90,9 +95,9 @@ fn main() {
             *v = Cf32::new((a * s) as f32, (c * s) as f32);
         }
         let mut symbols = qpsk(100, &mut rng);
-        symbols.extend_from_slice(&training);
+        symbols.extend_from_slice(training);
         symbols.extend(qpsk(300, &mut rng));
-        let burst = shape(&symbols, &taps, SPS);
+        let burst = shape(&symbols, taps, SPS);
         let at = 5000;
         if at + burst.len() < chunk.len() {
             for (v, b) in chunk[at..].iter_mut().zip(&burst) {
@@ -100,11 +105,13 @@ fn main() {
             }
         }
     });
-    eprintln!("built {n} samples in {:.1} s", t.elapsed().as_secs_f64());
+    x
+}
 
-    // One rustfft 4096-point forward FFT, single thread.
+/// Time one rustfft 4096-point forward FFT on one thread and print it.
+fn fft_line(block: &[Cf32], repeats: usize) {
     let fft = FftPlanner::<f32>::new().plan_fft_forward(4096);
-    let mut buf = x[..4096].to_vec();
+    let mut buf = block.to_vec();
     let mut scratch = vec![Cf32::new(0.0, 0.0); fft.get_inplace_scratch_len()];
     let reps = 20_000;
     let (secs, _, _) = best_of(repeats, || {
@@ -118,6 +125,112 @@ fn main() {
         secs / reps as f64 * 1e6,
         fft_sps / 1e6
     );
+}
+
+/// Search the capture at `path` (written first if missing) through the memory map.
+fn file_mode(path: &Path, n: usize, repeats: usize, taps: &[f32], training: &[Cf32]) {
+    let s = Synchroniser::new(training, taps, SyncConfig::new(SPS, 1e6)).expect("valid settings");
+    if !path.exists() {
+        let t = Instant::now();
+        let x = build_capture(n, taps, training);
+        let mut w = std::io::BufWriter::new(std::fs::File::create(path).expect("create capture"));
+        for v in &x {
+            w.write_all(&v.re.to_le_bytes()).expect("write");
+            w.write_all(&v.im.to_le_bytes()).expect("write");
+        }
+        w.flush().expect("flush");
+        eprintln!(
+            "wrote {n} samples to {} in {:.1} s",
+            path.display(),
+            t.elapsed().as_secs_f64()
+        );
+    }
+    let mut r = std::io::BufWriter::new(
+        std::fs::File::create(format!("{}.ref.cf32", path.display())).expect("create ref"),
+    );
+    for v in s.reference() {
+        r.write_all(&v.re.to_le_bytes()).expect("write");
+        r.write_all(&v.im.to_le_bytes()).expect("write");
+    }
+    r.flush().expect("flush");
+    std::fs::write(
+        format!("{}.ref.json", path.display()),
+        format!(
+            "{{\"head\": {}, \"threshold\": {}, \"min_spacing\": {}}}\n",
+            s.reference_head(),
+            s.threshold(),
+            s.reference().len()
+        ),
+    )
+    .expect("write ref.json");
+    let opts = OpenOptions {
+        format: Some(SampleFormat::Cf32Le),
+        ..OpenOptions::default()
+    };
+    let cap = Capture::open(path, &opts).expect("open capture");
+    let len = cap.len();
+    let mut block = vec![Cf32::new(0.0, 0.0); 4096];
+    cap.read_into(0, &mut block).expect("read");
+    fft_line(&block, repeats);
+    let all = rayon::current_num_threads();
+    for threads in [1, all] {
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .expect("thread pool");
+        let (secs, cpu, found) = best_of(repeats, || {
+            pool.install(|| {
+                s.search_chunked(len, |st, out: &mut [Cf32]| {
+                    cap.read_into(st, out).map(|_| ())
+                })
+                .expect("search")
+            })
+        });
+        let starts: Vec<String> = found.iter().map(|d| d.start_sample.to_string()).collect();
+        if threads == 1 {
+            // Per-burst cost of what follows the search: refine (coarse CFO, timing,
+            // channel-aware fine CFO) and extract_symbols of the whole frame.
+            let src = iqaudit::sync::ChunkReader::new(len, |st, out: &mut [Cf32]| {
+                cap.read_into(st, out).map(|_| ())
+            });
+            let mut y = vec![Cf32::new(0.0, 0.0); 100 + 127 + 300];
+            let (rs, rcpu, _) = best_of(repeats, || {
+                for d in &found {
+                    let b = s.refine(&src, d).expect("refine");
+                    s.extract_symbols(&src, &b, -100..427, &mut y)
+                        .expect("extract");
+                }
+            });
+            println!(
+                "refine + extract_symbols (527 symbols), 1 thread: {:.0} µs per burst wall, {:.0} µs CPU ({} bursts)",
+                rs / found.len().max(1) as f64 * 1e6,
+                rcpu / found.len().max(1) as f64 * 1e6,
+                found.len()
+            );
+        }
+        println!(
+            "RESULT {{\"method\": \"iqaudit\", \"threads\": {threads}, \"samples\": {len}, \"wall_s\": {secs}, \"cpu_s\": {cpu}, \"bursts\": {}, \"starts\": [{}]}}",
+            found.len(),
+            starts.join(", ")
+        );
+    }
+}
+
+fn main() {
+    let n = env_usize("SYNC_BENCH_SAMPLES", 1 << 27);
+    let repeats = env_usize("SYNC_BENCH_REPEATS", 3).max(1);
+    let taps = rrc_taps(0.25, 8, SPS);
+    let training = qpsk(127, &mut ChaCha8Rng::seed_from_u64(7));
+
+    if let Ok(path) = std::env::var("SYNC_BENCH_FILE") {
+        file_mode(Path::new(&path), n, repeats, &taps, &training);
+        return;
+    }
+    let t = Instant::now();
+    let x = build_capture(n, &taps, &training);
+    eprintln!("built {n} samples in {:.1} s", t.elapsed().as_secs_f64());
+
+    fft_line(&x[..4096], repeats);
 
     let all = rayon::current_num_threads();
     for &(label, max_cfo_hz) in &[

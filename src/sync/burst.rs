@@ -16,11 +16,16 @@ use super::{
     cfo, read_padded, rotation, BurstSync, Detection, SampleSource, SymbolSpan, SyncError,
     Synchroniser,
 };
+use crate::channel::{fit_channel, ChannelFitConfig, TapSpan};
 use crate::signal::rrc::matched_filter_into;
 use crate::{Cf32, Cf64};
 
 /// Symbols processed per piece in [`Synchroniser::extract_symbols`] (bounds memory).
 const EXTRACT_PIECE_SYMBOLS: i64 = 4096;
+
+/// Pre- and post-cursor taps fitted (at most) by the channel-aware CFO estimate: 3 each
+/// side covers the usual test channels (Proakis B and C centred on their main tap).
+const CFO_FIT_HALF_SPAN: usize = 3;
 
 impl Synchroniser {
     /// Matched-filter outputs centred on capture samples `first .. first + count`, from
@@ -48,7 +53,7 @@ impl Synchroniser {
     }
 
     /// Refine a detection: coarse CFO from segment phases, fractional timing, fine CFO
-    /// (Kay) and carrier phase. See the module docs of [`crate::sync`].
+    /// (channel-aware, [`cfo::periodogram_frequency`]) and carrier phase. See the module docs of [`crate::sync`].
     pub fn refine<S: SampleSource + ?Sized>(
         &self,
         src: &S,
@@ -86,22 +91,21 @@ impl Synchroniser {
         let mut f = f_coarse;
         let mut t0 = n0 as f64;
         let mut radius = sps;
+        // Search range of the channel-aware estimate, rad/symbol: first ± two main-lobe
+        // half-widths (2π/N each) around the coarse estimate, then ± half of one.
+        let lobe = std::f64::consts::TAU / n as f64;
+        let mut range = 2.0 * lobe;
         for _ in 0..2 {
             let y = self.mf_region(src, first, count, f, t0)?;
             let pos = best_instant(&y, &self.training, sps, t0 - first as f64, radius);
             t0 = first as f64 + pos;
             let (pn, w) = (pos.floor(), sinc_weights(pos - pos.floor()));
-            let u: Vec<Cf64> = self
-                .training
-                .iter()
-                .enumerate()
-                .map(|(k, tk)| {
-                    let z = interpolate_with(&y, pn as i64 + (k * sps) as i64, &w) * tk.conj();
-                    Cf64::new(f64::from(z.re), f64::from(z.im))
-                })
+            let z: Vec<Cf32> = (0..n)
+                .map(|k| interpolate_with(&y, pn as i64 + (k * sps) as i64, &w))
                 .collect();
-            f += cfo::kay_frequency(&u) / (std::f64::consts::TAU * sps as f64);
+            f += self.channel_aware_frequency(&z, range) / (std::f64::consts::TAU * sps as f64);
             radius = 1;
+            range = 0.5 * lobe;
         }
         // Final: re-time once with the fine CFO, then phase and gain at t0.
         let y = self.mf_region(src, first, count, f, t0)?;
@@ -135,6 +139,55 @@ impl Synchroniser {
             training_gain: corr.norm() / t_energy,
             symbols_in_capture: k_lo..k_hi.max(k_lo),
         })
+    }
+
+    /// Residual carrier frequency of the training samples `z` (symbol rate, one per
+    /// training symbol), rad/symbol, searched within `±range`: fit the channel taps by
+    /// least squares on `z` ([`fit_channel`], `±s` taps around the main one), rebuild
+    /// the channel-filtered training `ŷ = h ∗ t` over the observations whose whole
+    /// regressor lies in the training, and maximise the periodogram of `z·conj(ŷ)`
+    /// ([`cfo::periodogram_frequency`]). Called once per timing/CFO iteration, this is
+    /// the alternating (frequency, taps) maximisation of the joint likelihood. When the
+    /// fit is impossible (a training too short for a 3-tap model, or one that does not
+    /// excite the taps) it falls back to one tap, `ŷ = t`: Rife & Boorstyn's estimator.
+    fn channel_aware_frequency(&self, z: &[Cf32], range: f64) -> f64 {
+        let t = &self.training;
+        let n = t.len();
+        // Largest half-span s ≤ CFO_FIT_HALF_SPAN that leaves ≥ 4 observations per unknown.
+        let s = (1..=CFO_FIT_HALF_SPAN)
+            .rev()
+            .find(|&s| n >= 2 * s + 4 * (2 * s + 1))
+            .unwrap_or(0);
+        let wide = |v: Cf32| Cf64::new(f64::from(v.re), f64::from(v.im));
+        let fitted = if s == 0 {
+            None
+        } else {
+            let cfg = ChannelFitConfig {
+                span: TapSpan::Fixed { pre: s, post: s },
+                ..ChannelFitConfig::default()
+            };
+            fit_channel(z, t, 0, &cfg).ok()
+        };
+        let u: Vec<Cf64> = match fitted {
+            Some(est) => (s..n - s)
+                .map(|k| {
+                    // ŷ_k = Σ_{i=−s}^{s} h[i]·t[k−i], tap h[i] at index i + s.
+                    let yhat: Cf64 = est
+                        .taps
+                        .iter()
+                        .enumerate()
+                        .map(|(c, h)| *h * wide(t[k + s - c]))
+                        .sum();
+                    wide(z[k]) * yhat.conj()
+                })
+                .collect(),
+            None => z
+                .iter()
+                .zip(t)
+                .map(|(zk, tk)| wide(*zk) * wide(*tk).conj())
+                .collect(),
+        };
+        cfo::periodogram_frequency(&u, range)
     }
 
     /// Matched-filtered, timing- and CFO-corrected symbol-rate samples for symbol indices

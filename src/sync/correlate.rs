@@ -16,8 +16,12 @@
 //! The scan kernel (`OverlapSave::scan_block`) fuses the correlation with the
 //! normalised metric `ρ[n] = |c[n]|² / (E_r · E_w[n])` where `E_r = Σ|r|²` and
 //! `E_w[n] = Σ_{m<L} |x[n+m]|²` is the window energy, kept as an f64 running sum that
-//! restarts from a direct sum at every block start (so long captures cannot drift and
-//! results do not depend on where a caller's chunks begin, only on the fixed block grid).
+//! restarts from a direct sum at fixed points of every block (so long captures cannot
+//! drift and results do not depend on where a caller's chunks or lag ranges begin, only
+//! on the fixed block grid). The running sum is one serial chain of dependent f64
+//! additions; to keep it off the critical path each block's lags are split into
+//! `ENERGY_LANES` (8) contiguous lanes, each restarting from its own direct sum, and the
+//! lanes are advanced in lockstep so the CPU overlaps their chains.
 use std::sync::Arc;
 
 use rustfft::{Fft, FftPlanner};
@@ -28,6 +32,22 @@ use crate::Cf32;
 /// fraction of the energy in its FFT block is numerically silent at f32 precision
 /// (the correlation there is FFT rounding noise), so its metric is defined as 0.
 const SILENT_WINDOW_RELATIVE: f64 = 1e-10;
+
+/// Independent running-sum lanes per FFT block (see the module doc).
+pub(crate) const ENERGY_LANES: usize = 8;
+
+/// Per-thread work buffers of [`OverlapSave::scan_block`] (from
+/// [`OverlapSave::scan_buffers`]).
+pub(crate) struct ScanBuffers {
+    /// Best `|c|²` over the references, per lag of the block.
+    c2: Vec<f32>,
+    /// Index of the best reference, per lag (as f32 so the select vectorises).
+    best: Vec<f32>,
+    /// `|x|²` in f64 for every input sample of the block, zero-padded by the lane slack.
+    en: Vec<f64>,
+    /// Window energy per lag.
+    ew: Vec<f64>,
+}
 
 /// Overlap-save cross-correlator with a bank of equal-length references.
 ///
@@ -213,7 +233,18 @@ impl OverlapSave {
     /// (`first + count ≤ step()`) are evaluated. For every lag whose metric
     /// `ρ = |c|²/(E_r·E_w)` is `≥ threshold` (pass a negative threshold to get every
     /// lag), `emit(lag_in_block, ρ, best_reference)` is called in increasing lag order.
-    /// `c2` and `best` are per-lag work buffers of at least `step()` entries.
+    /// `bufs` are the caller's work buffers ([`OverlapSave::scan_buffers`]).
+    /// Work buffers for [`OverlapSave::scan_block`].
+    pub(crate) fn scan_buffers(&self) -> ScanBuffers {
+        let q = self.step().div_ceil(ENERGY_LANES);
+        ScanBuffers {
+            c2: vec![0.0; self.step()],
+            best: vec![0.0; self.step()],
+            en: vec![0.0; self.fft_len + ENERGY_LANES],
+            ew: vec![0.0; q * ENERGY_LANES],
+        }
+    }
+
     #[allow(clippy::too_many_arguments)]
     pub(crate) fn scan_block(
         &self,
@@ -223,59 +254,27 @@ impl OverlapSave {
         ref_energy: f64,
         threshold: f64,
         scratch: &mut [Cf32],
-        c2: &mut [f32],
-        best: &mut [f32],
+        bufs: &mut ScanBuffers,
         emit: &mut impl FnMut(usize, f64, usize),
     ) {
         debug_assert!(first + count <= self.step());
+        let l = self.ref_len;
         let (buf, rest) = scratch.split_at_mut(self.fft_len);
         let (work, fft_scratch) = rest.split_at_mut(self.fft_len);
         self.load_forward(input, 0, buf, fft_scratch);
-        // Window energies from f64 prefix sums over this block (restarted at every
-        // block start, so nothing drifts along a long capture):
-        // `E_w[i] = P[i+L] − P[i]`, no serial chain per lag.
         let n_in = self.fft_len.min(input.len());
-        PREFIX.with(|cell| {
-            let mut prefix = cell.borrow_mut();
-            prefix_energy(&input[..n_in], &mut prefix);
-            self.scan_lags(
-                input,
-                first,
-                count,
-                ref_energy,
-                threshold,
-                &prefix,
-                work,
-                buf,
-                fft_scratch,
-                c2,
-                best,
-                emit,
-            );
-        });
-    }
-
-    #[allow(clippy::too_many_arguments)]
-    fn scan_lags(
-        &self,
-        input: &[Cf32],
-        first: usize,
-        count: usize,
-        ref_energy: f64,
-        threshold: f64,
-        prefix: &[f64],
-        work: &mut [Cf32],
-        buf: &mut [Cf32],
-        fft_scratch: &mut [Cf32],
-        c2: &mut [f32],
-        best: &mut [f32],
-        emit: &mut impl FnMut(usize, f64, usize),
-    ) {
-        let l = self.ref_len;
-        let block_energy = prefix[prefix.len() - 1];
+        let en = &mut bufs.en;
+        for (e, v) in en[..n_in].iter_mut().zip(input) {
+            *e = energy(*v);
+        }
+        en[n_in..].fill(0.0);
+        let block_energy = sum_lanes(&en[..n_in]);
+        let floor = SILENT_WINDOW_RELATIVE * block_energy;
+        // Compare |c|² ≥ γ·E_r·E_w without dividing; divide only for emitted lags.
+        let scaled = threshold * ref_energy;
         let end = first + count;
-        let c2 = &mut c2[first..end];
-        let best = &mut best[first..end];
+        let c2 = &mut bufs.c2[first..end];
+        let best = &mut bufs.best[first..end];
         for (h, spec) in self.spectra.iter().enumerate() {
             self.inverse(spec, buf, work, fft_scratch);
             let w = &work[first..end];
@@ -297,17 +296,32 @@ impl OverlapSave {
                 }
             }
         }
-        let floor = SILENT_WINDOW_RELATIVE * block_energy;
-        // Compare |c|² ≥ γ·E_r·E_w without dividing; divide only for emitted lags.
-        let scaled = threshold * ref_energy;
-        for (j, (&c, &b)) in c2.iter().zip(best.iter()).enumerate() {
-            let i = first + j;
-            let mut ew = prefix[i + l] - prefix[i];
-            if ew <= floor {
-                // Cancellation in the prefix difference could leave a residue of
-                // order ε·P here: recompute the quiet window directly.
-                ew = input[i..i + l].iter().map(|v| energy(*v)).sum();
+        // Window energies: lane a covers lags [a·q, (a+1)·q) of the block whatever
+        // `first` is; only the lanes holding lags of this scan are run.
+        let q = self.step().div_ceil(ENERGY_LANES);
+        let (a_lo, a_hi) = (first / q, end.div_ceil(q));
+        let mut acc = [0.0f64; ENERGY_LANES];
+        for t in 0..q {
+            for (a, ew_a) in acc.iter_mut().enumerate().take(a_hi).skip(a_lo) {
+                let j = a * q + t;
+                if t == 0 {
+                    *ew_a = sum_lanes(&en[j..j + l]);
+                } else {
+                    *ew_a += en[j + l - 1] - en[j - 1];
+                }
+                if *ew_a <= floor {
+                    *ew_a = sum_lanes(&en[j..j + l]);
+                }
+                bufs.ew[j] = *ew_a;
             }
+        }
+        for (j, ((&c, &b), &ew)) in c2
+            .iter()
+            .zip(best.iter())
+            .zip(&bufs.ew[first..end])
+            .enumerate()
+        {
+            let i = first + j;
             let c = f64::from(c);
             if threshold >= 0.0 && c < scaled * ew {
                 continue;
@@ -358,50 +372,21 @@ impl SplitSpectrum {
     }
 }
 
-thread_local! {
-    /// Per-thread prefix-sum buffer of [`OverlapSave::scan_block`] (one block
-    /// long; grown once, never per block).
-    static PREFIX: std::cell::RefCell<Vec<f64>> = const { std::cell::RefCell::new(Vec::new()) };
-}
-
-/// Lanes of the prefix sum: independent running sums over consecutive segments,
-/// interleaved so their additions overlap instead of forming one serial chain.
-const PREFIX_LANES: usize = 8;
-
-/// `out[k] = Σ_{m<k} |x[m]|²` in f64 for `k = 0 ..= x.len()`.
-///
-/// The block is cut into [`PREFIX_LANES`] consecutive segments whose local sums
-/// run side by side; each segment then gets the total of those before it. The
-/// rounding differs from a left-to-right sum only at the ε·P level, and the
-/// result depends only on `x` (fixed block grid ⇒ same figures for any thread count).
-pub(crate) fn prefix_energy(x: &[Cf32], out: &mut Vec<f64>) {
-    let n = x.len();
-    out.clear();
-    out.resize(n + 1, 0.0);
-    let seg = n / PREFIX_LANES;
-    let mut acc = [0.0f64; PREFIX_LANES];
-    for k in 0..seg {
-        for (lane, a) in acc.iter_mut().enumerate() {
-            let m = lane * seg + k;
-            *a += energy(x[m]);
-            out[m + 1] = *a;
+/// Sum in f64 with `ENERGY_LANES` accumulators in a fixed order (vectorisable, and the
+/// same value on every call with the same input).
+fn sum_lanes(v: &[f64]) -> f64 {
+    let mut acc = [0.0f64; ENERGY_LANES];
+    let mut it = v.chunks_exact(ENERGY_LANES);
+    for c in &mut it {
+        for (a, x) in acc.iter_mut().zip(c) {
+            *a += *x;
         }
     }
-    // Give each segment the total of the segments before it, then finish the
-    // tail serially.
-    if seg > 0 {
-        for lane in 1..PREFIX_LANES {
-            let base = out[lane * seg];
-            for v in &mut out[lane * seg + 1..=(lane + 1) * seg] {
-                *v += base;
-            }
-        }
+    let mut s = ((acc[0] + acc[1]) + (acc[2] + acc[3])) + ((acc[4] + acc[5]) + (acc[6] + acc[7]));
+    for x in it.remainder() {
+        s += *x;
     }
-    let mut a = out[PREFIX_LANES * seg];
-    for m in PREFIX_LANES * seg..n {
-        a += energy(x[m]);
-        out[m + 1] = a;
-    }
+    s
 }
 
 #[inline]
@@ -487,30 +472,6 @@ mod tests {
                 let want = x[k] * s[k];
                 assert_eq!(out[k].re.to_bits(), want.re.to_bits(), "n={n} k={k}");
                 assert_eq!(out[k].im.to_bits(), want.im.to_bits(), "n={n} k={k}");
-            }
-        }
-    }
-
-    #[test]
-    fn lane_split_prefix_energy_matches_a_left_to_right_f64_sum() {
-        // Slow twin: the plain running sum. Tolerance: each prefix is a sum of at
-        // most n non-negative terms reordered into 8 partial sums, so the two
-        // differ by a few ε·n·P (ε = 2^-53) at most — 1e-12·P is ample (common
-        // practice for reordered summation of positive terms).
-        for n in [0usize, 1, 2, 7, 8, 9, 13, 63, 64, 65, 509, 4096, 4099] {
-            let x = random_symbols(n, 5 + n as u64);
-            let mut fast = Vec::new();
-            prefix_energy(&x, &mut fast);
-            assert_eq!(fast.len(), n + 1);
-            let mut acc = 0.0f64;
-            assert_eq!(fast[0], 0.0);
-            for (k, v) in x.iter().enumerate() {
-                acc += energy(*v);
-                assert!(
-                    (fast[k + 1] - acc).abs() <= 1e-12 * acc.max(1e-300),
-                    "n={n} k={k}: {} vs {acc}",
-                    fast[k + 1]
-                );
             }
         }
     }

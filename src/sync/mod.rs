@@ -59,9 +59,18 @@
 //! correlations at the detected lag ([`cfo::segment_frequency`]); then the samples are
 //! de-rotated, matched-filtered, the fractional instant found by maximising the
 //! training correlation over fractional delays ([`timing::best_instant`], windowed-sinc
-//! interpolation), and the residual CFO estimated by Kay's weighted phase-difference
-//! estimator on `z_k·conj(t_k)` (least-squares phase slope; [`cfo::kay_frequency`]).
-//! Timing and fine CFO are iterated twice.
+//! interpolation), and the residual CFO estimated **channel-aware**: the taps are fitted
+//! by least squares on the de-rotated training samples `z_k` ([`crate::channel::fit_channel`],
+//! up to 3 pre- and 3 post-cursor taps), the channel-filtered training `ŷ = h ∗ t` is
+//! rebuilt, and the frequency is the maximiser of the periodogram of `z_k·conj(ŷ_k)`
+//! ([`cfo::periodogram_frequency`]: grid over ± two main lobes, then golden section).
+//! Timing and CFO are iterated twice, which is the alternating maximisation of the
+//! joint (frequency, taps) likelihood (the joint ML frequency/channel estimation of the
+//! literature, e.g. Morelli & Mengali 2000 — from memory). A training-only estimate
+//! (Kay's, on `z_k·conj(t_k)`) treats the ISI as noise: in the tests it was 9.9 kHz off
+//! on Proakis channel B at 12 dB (phase differences of samples the ISI drives near
+//! zero) and biased by +18 Hz (rms 20 Hz, CRB σ 6.8 Hz) on mild multipath at 20 dB; the
+//! channel-aware estimate meets the adapted Cramér–Rao bound on both.
 //!
 //! ## Default threshold from a false-alarm rate (derivation)
 //!
@@ -337,8 +346,7 @@ struct Candidate {
 struct Worker {
     chunk: Vec<Cf32>,
     scratch: Vec<Cf32>,
-    c2: Vec<f32>,
-    best: Vec<f32>,
+    bufs: correlate::ScanBuffers,
 }
 
 /// The synchroniser: built once per training/pulse/config, shared across threads.
@@ -575,8 +583,7 @@ impl Synchroniser {
         Worker {
             chunk: vec![Cf32::new(0.0, 0.0); chunk_len + self.corr.ref_len() - 1],
             scratch: vec![Cf32::new(0.0, 0.0); self.corr.scratch_len()],
-            c2: vec![0.0; step],
-            best: vec![0.0; step],
+            bufs: self.corr.scan_buffers(),
         }
     }
 
@@ -652,8 +659,7 @@ impl Synchroniser {
                 self.ref_energy,
                 threshold,
                 &mut w.scratch,
-                &mut w.c2,
-                &mut w.best,
+                &mut w.bufs,
                 &mut |i, rho, hyp| {
                     out.push(Candidate {
                         lag: b + i,
