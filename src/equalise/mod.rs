@@ -592,10 +592,14 @@ pub fn process_burst(
         "zf-dfe",
         ZfDfe::new(&ch, cfg.zf_main_tap, cfg.zf_min_main_snr, opts).map(|e| Box::new(e) as _),
     );
-    push(
-        "mmse-dfe",
-        MmseDfe::new(&ch, cfg.ff_taps, cfg.fb_taps, cfg.delay, opts).map(|e| Box::new(e) as _),
-    );
+    let mmse = MmseDfe::new(&ch, cfg.ff_taps, cfg.fb_taps, cfg.delay, opts);
+    // The genie uses the very filters of the MMSE-DFE (same channel, lengths and
+    // delay rule): reuse the design instead of repeating it.
+    let genie = mmse
+        .as_ref()
+        .map(|e| GenieDfe::from_design(&e.core))
+        .map_err(Clone::clone);
+    push("mmse-dfe", mmse.map(|e| Box::new(e) as _));
     push(
         "linear-mmse",
         LinearMmse::new(&ch, cfg.ff_taps, cfg.delay, opts).map(|e| Box::new(e) as _),
@@ -617,10 +621,7 @@ pub fn process_burst(
         );
     }
     if burst.known.is_some() {
-        push(
-            "genie-mmse-dfe",
-            GenieDfe::new(&ch, cfg.ff_taps, cfg.fb_taps, cfg.delay, opts).map(|e| Box::new(e) as _),
-        );
+        push("genie-mmse-dfe", genie.map(|e| Box::new(e) as _));
     }
     let bounds = theory::bounds(
         &channel.taps,

@@ -956,3 +956,103 @@ fn power_response_matches_a_direct_dft_for_many_sizes_and_shifts() {
         assert_eq!(power_response(&taps, n).len(), n.max(len).max(1));
     }
 }
+
+#[test]
+fn band_mmse_design_matches_the_dense_solve_over_sizes_delays_and_feedback_lengths() {
+    // Reference: the dense joint Wiener–Hopf solve (src/testutil.rs, LU on the
+    // full covariance; Al-Dhahir & Cioffi 1995 normal equations). Delays whose
+    // feedback window runs past the last column make the dense joint system
+    // singular and are skipped there (the band design simply drops those
+    // columns). Filters are stored in f32: tolerance 2e-5·(1 + |v|); the SNR is
+    // f64 on both sides: 1e-9 dB.
+    let mut r = rng(17);
+    for l in [1usize, 2, 3, 5, 13] {
+        let taps: Vec<Cf64> = (0..l)
+            .map(|_| {
+                let c = cgauss(&mut r, 1.0);
+                Cf64::new(c.re as f64, c.im as f64)
+            })
+            .collect();
+        for nf in [1usize, 2, 3, 7, 16] {
+            for nb in [0usize, 1, 8] {
+                let ch = DesignInput {
+                    taps: &taps,
+                    pre: 0,
+                    noise_var: 0.03,
+                    es: 1.5,
+                };
+                let ncol = nf + l - 1;
+                let mut best_ref = f64::NEG_INFINITY;
+                for d in 0..ncol {
+                    let f = design_mmse_dfe(&ch, nf, nb, Some(d)).unwrap();
+                    if d + nb >= ncol {
+                        continue;
+                    }
+                    let (w, b, mse) = dense_wiener_hopf(&taps, 0.03, 1.5, nf, nb, d);
+                    let beta = 1.0 - mse / 1.5;
+                    let close = |got: &Cf32, want: Cf64| {
+                        (Cf64::new(got.re as f64, got.im as f64) - want).norm()
+                            < 2e-5 * (1.0 + want.norm())
+                    };
+                    for (a, wv) in f.ff.iter().zip(&w) {
+                        assert!(
+                            close(a, wv.conj() / beta),
+                            "L {l} Nf {nf} Nb {nb} Δ {d}: ff"
+                        );
+                    }
+                    for (a, bv) in f.fb.iter().zip(&b) {
+                        assert!(
+                            close(a, bv.conj() / beta),
+                            "L {l} Nf {nf} Nb {nb} Δ {d}: fb"
+                        );
+                    }
+                    let want_db = to_db(1.5 / mse);
+                    assert!(
+                        (f.predicted_snr_biased_db - want_db).abs() < 1e-9,
+                        "L {l} Nf {nf} Nb {nb} Δ {d}: {} vs {want_db}",
+                        f.predicted_snr_biased_db
+                    );
+                    best_ref = best_ref.max(want_db);
+                }
+                // The optimised delay is at least as good as every checked delay.
+                let f = design_mmse_dfe(&ch, nf, nb, None).unwrap();
+                assert!(f.predicted_snr_biased_db >= best_ref - 1e-9);
+            }
+        }
+    }
+    // Zero noise and an all-zero channel: the system is the zero matrix at every
+    // delay (common practice: a Cholesky factorisation needs a positive pivot).
+    let ch = DesignInput {
+        taps: &[Cf64::new(0.0, 0.0), Cf64::new(0.0, 0.0)],
+        pre: 0,
+        noise_var: 0.0,
+        es: 1.0,
+    };
+    assert!(matches!(
+        design_mmse_dfe(&ch, 3, 3, None),
+        Err(EqualiseError::SingularDesign { .. })
+    ));
+}
+
+#[test]
+fn the_genie_reuses_exactly_the_mmse_dfe_design() {
+    // Source: definition (the genie is the MMSE-DFE with true symbols fed back).
+    let h = [
+        Cf64::new(0.2, 0.1),
+        Cf64::new(1.0, 0.0),
+        Cf64::new(0.4, -0.2),
+    ];
+    let ch = DesignInput {
+        taps: &h,
+        pre: 1,
+        noise_var: 0.01,
+        es: 1.0,
+    };
+    let opts = RunOptions::default();
+    let g = GenieDfe::new(&ch, 16, 8, None, opts).unwrap();
+    let m = MmseDfe::new(&ch, 16, 8, None, opts).unwrap();
+    let r = GenieDfe::from_design(&m.core);
+    assert_eq!(g.filters(), r.filters());
+    assert_eq!(g.reverse_filters(), r.reverse_filters());
+    assert_eq!((g.core.opts, g.name), (r.core.opts, r.name));
+}
