@@ -3,13 +3,16 @@
 //! Takes nothing; prints equalised symbols per second on one core for the
 //! MMSE-DFE with Nf = 16, Nb = 8 on 16-QAM (phase loop off/on, LMS, RLS), the
 //! time to design the MMSE-DFE filters (Δ optimised), the channel fit time, the
-//! slicer alone per modulation and the per-burst infinite-length bounds.
+//! slicer alone per modulation, the per-burst infinite-length bounds and one
+//! whole burst through `process_burst`.
 //! Run: `cargo bench --bench equalise`. Figures go to docs/performance.md.
 
 use iqaudit::channel::{fit_channel, ChannelFitConfig, TapSpan};
 use iqaudit::equalise::mmse_dfe::{design_mmse_dfe, DesignInput};
 use iqaudit::equalise::tracking::{AdaptMode, LoopConfig, TrackingConfig};
-use iqaudit::equalise::{BurstView, EqualisedSymbols, Equaliser, MmseDfe, RunOptions};
+use iqaudit::equalise::{
+    process_burst, theory, BurstConfig, BurstView, EqualisedSymbols, Equaliser, MmseDfe, RunOptions,
+};
 use iqaudit::{Cf32, Cf64, Constellation, Modulation};
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -160,17 +163,35 @@ fn main() {
             m as f64 / s / 1e6
         );
     }
-    // Infinite-length bounds reported per burst (65 536-point grid: one FFT + logs).
-    let (s, _) = time_per_call(50, || {
-        black_box(iqaudit::equalise::theory::bounds(
-            &est.taps,
-            est.es / est.noise_var,
-            iqaudit::equalise::theory::DEFAULT_GRID,
-        ));
+    // Infinite-length bounds computed per burst (adaptive grid: FFTs + logs).
+    let snr = est.es / est.noise_var;
+    let (s, _) = time_per_call(200, || {
+        black_box(theory::bounds(&est.taps, snr, theory::DEFAULT_GRID));
+    });
+    let used = theory::grid_means(&est.taps, snr, theory::DEFAULT_GRID).grid;
+    println!(
+        "theory bounds per burst, adaptive grid (stopped at {used} of at most {} points): {:.1} µs",
+        theory::DEFAULT_GRID,
+        s * 1e6
+    );
+
+    // One whole burst as `analyse` runs it (channel fit, carrier refinement, the
+    // ZF-DFE, MMSE-DFE, linear MMSE and genie passes, bounds): the e2e profile's
+    // shape, 64 training + 1024 payload symbols after the training.
+    let burst_len = 64 + 1024;
+    let burst_view = BurstView {
+        y: &y[..burst_len],
+        training: &x[..64],
+        offset: 0,
+        slicer: &c,
+        known: Some(&x[..burst_len]),
+    };
+    let burst_cfg = BurstConfig::default();
+    let (s, _) = time_per_call(500, || {
+        black_box(process_burst(&burst_view, &burst_cfg).expect("burst"));
     });
     println!(
-        "theory bounds per burst, grid {}: {:.0} µs",
-        iqaudit::equalise::theory::DEFAULT_GRID,
+        "process_burst, 64 training + 1024 payload symbols, 16QAM, known payload: {:.1} µs",
         s * 1e6
     );
 

@@ -490,10 +490,12 @@ fn analyse_burst<S: SampleSource + ?Sized>(
         frame.start.max(avail.start),
         frame.end.min(avail.end).max(frame.start.max(avail.start)),
     ));
+    // The reported equaliser: the profile's choice, or the MMSE-DFE if it refused.
+    // The ZF-DFE's pass is needed only when it is the choice.
+    let wanted = chosen_name(profile);
+    cfg.run_zf_dfe = wanted == "zf-dfe";
     let out = process_burst(&view, &cfg)?;
 
-    // The reported equaliser: the profile's choice, or the MMSE-DFE if it refused.
-    let wanted = chosen_name(profile);
     let (name, filters, eq) = match pick(&out, wanted) {
         Some(r) => (wanted, r.0, r.1),
         None => {

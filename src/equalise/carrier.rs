@@ -232,7 +232,9 @@ pub(crate) fn refine_carrier(
     let tr = burst.offset..burst.offset + burst.training.len();
     let (lo, hi) = cfg.carrier.fit_range.unwrap_or((0, burst.y.len()));
     let keep = lo.min(burst.y.len())..hi.min(burst.y.len());
-    let phases = out
+    // The decision-aided phases, computed once (an arctangent each) and then
+    // read twice by the line fit.
+    let phases: Vec<(f64, f64)> = out
         .soft
         .iter()
         .zip(&out.labels)
@@ -247,8 +249,9 @@ pub(crate) fn refine_carrier(
             };
             let r = (z * d.conj()).arg() as f64;
             (n as f64, *p as f64 + if r.is_finite() { r } else { 0.0 })
-        });
-    let (phase, slope) = fit_line(phases);
+        })
+        .collect();
+    let (phase, slope) = fit_line(phases.iter().copied());
     let nu = slope / (2.0 * PI);
     let mut corrected = vec![Cf32::new(0.0, 0.0); burst.y.len()];
     derotate_into(burst.y, nu, phase, &mut corrected);

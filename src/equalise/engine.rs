@@ -17,6 +17,29 @@ use super::Slicer;
 use crate::{Cf32, Cf64};
 use std::ops::Range;
 
+/// Buffers of one pass, kept by the caller and reused from pass to pass (and
+/// burst to burst) so a pass allocates nothing once they have grown. Contents
+/// on entry are irrelevant: every buffer is cleared and resized before use.
+#[derive(Default)]
+pub(crate) struct PassScratch {
+    ypad: Vec<Cf32>,
+    hist: Vec<Cf32>,
+    wr: Vec<f32>,
+    wi: Vec<f32>,
+    br: Vec<f32>,
+    bi: Vec<f32>,
+    yr: Vec<f32>,
+    yi: Vec<f32>,
+    accr: Vec<f32>,
+    acci: Vec<f32>,
+}
+
+/// `v` cleared and refilled with `n` copies of `x`.
+fn reset<T: Clone>(v: &mut Vec<T>, n: usize, x: T) {
+    v.clear();
+    v.resize(n, x);
+}
+
 /// Caller-side description of one forward pass.
 pub(crate) struct Pass<'a> {
     pub y: &'a [Cf32],
@@ -119,6 +142,7 @@ pub(crate) fn run_pass(
     soft: &mut [Cf32],
     labels: &mut [usize],
     phase: &mut [f32],
+    scratch: &mut PassScratch,
 ) {
     let Range { start, end } = pass.range.clone();
     if start >= end {
@@ -135,10 +159,12 @@ pub(crate) fn run_pass(
     let left = (-first).max(0) as usize;
     let last = end as isize - 1 + f.lag;
     let right = (last - (pass.y.len() as isize - 1)).max(0) as usize;
-    let mut ypad = vec![zero; left + pass.y.len() + right];
+    let mut ypad = std::mem::take(&mut scratch.ypad);
+    reset(&mut ypad, left + pass.y.len() + right, zero);
     ypad[left..left + pass.y.len()].copy_from_slice(pass.y);
     // Feedback history: hist[i + nb] = d[start + i]; hist[..nb] = d[start−nb..start].
-    let mut hist = vec![zero; nb + (end - start)];
+    let mut hist = std::mem::take(&mut scratch.hist);
+    reset(&mut hist, nb + (end - start), zero);
     for (j, h) in hist[..nb].iter_mut().enumerate() {
         let n = start as isize - nb as isize + j as isize;
         if n >= 0 && pass.truth_range.contains(&(n as usize)) {
@@ -147,8 +173,10 @@ pub(crate) fn run_pass(
     }
     if adapt.mode == AdaptMode::Off {
         fixed_filter_pass(
-            pass, f, cons, pll, &ypad, left, &mut hist, soft, labels, phase,
+            pass, f, cons, pll, &ypad, left, &mut hist, soft, labels, phase, scratch,
         );
+        scratch.ypad = ypad;
+        scratch.hist = hist;
         return;
     }
     let ntot = nf + nb;
@@ -261,6 +289,8 @@ pub(crate) fn run_pass(
         }
         hist[i + nb] = d;
     }
+    scratch.ypad = ypad;
+    scratch.hist = hist;
 }
 
 /// Symbols per block of the fixed-filter fast path.
@@ -283,16 +313,39 @@ fn fixed_filter_pass(
     soft: &mut [Cf32],
     labels: &mut [usize],
     phase: &mut [f32],
+    scratch: &mut PassScratch,
 ) {
     let Range { start, end } = pass.range.clone();
     let nf = f.ffr.len();
     let nb = f.fbr.len();
-    let (wr, wi): (Vec<f32>, Vec<f32>) = f.ffr.iter().map(|w| (w.re, w.im)).unzip();
-    let (br, bi): (Vec<f32>, Vec<f32>) = f.fbr.iter().map(|w| (w.re, w.im)).unzip();
-    let mut yr = vec![0f32; BLOCK + nf];
-    let mut yi = vec![0f32; BLOCK + nf];
-    let mut accr = vec![0f32; BLOCK];
-    let mut acci = vec![0f32; BLOCK];
+    let PassScratch {
+        wr,
+        wi,
+        br,
+        bi,
+        yr,
+        yi,
+        accr,
+        acci,
+        ..
+    } = scratch;
+    wr.clear();
+    wi.clear();
+    br.clear();
+    bi.clear();
+    for w in &f.ffr {
+        wr.push(w.re);
+        wi.push(w.im);
+    }
+    for w in &f.fbr {
+        br.push(w.re);
+        bi.push(w.im);
+    }
+    let (wr, wi, br, bi) = (&wr[..], &wi[..], &br[..], &bi[..]);
+    reset(yr, BLOCK + nf, 0.0);
+    reset(yi, BLOCK + nf, 0.0);
+    reset(accr, BLOCK, 0.0);
+    reset(acci, BLOCK, 0.0);
     let points = cons.points();
     let mut n0 = start;
     while n0 < end {
@@ -326,7 +379,7 @@ fn fixed_filter_pass(
             }
             let past = &hist[i..i + nb];
             let (mut sr, mut si) = (0f32, 0f32);
-            for ((d, &a), &b) in past.iter().zip(&br).zip(&bi) {
+            for ((d, &a), &b) in past.iter().zip(br).zip(bi) {
                 sr += a * d.re - b * d.im;
                 si += a * d.im + b * d.re;
             }

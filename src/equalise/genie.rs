@@ -38,4 +38,15 @@ impl GenieDfe {
             name: "genie-mmse-dfe",
         })
     }
+
+    /// The genie of an MMSE-DFE design: the same filters (forward and
+    /// time-reversed) and run options, with the true symbols fed back.
+    pub(crate) fn from_design(core: &DfeCore) -> Self {
+        let mut core = core.clone();
+        core.opts.genie = true;
+        GenieDfe {
+            core,
+            name: "genie-mmse-dfe",
+        }
+    }
 }

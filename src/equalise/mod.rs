@@ -279,6 +279,25 @@ impl DfeCore {
         burst: &BurstView<'_>,
         out: &mut EqualisedSymbols,
     ) -> Result<(), EqualiseError> {
+        // One set of pass buffers per thread, reused by every pass of every
+        // burst (the buffers' contents never carry over: each use resets them).
+        // Should it be in use already (it cannot be: passes do not nest), a
+        // fresh set serves.
+        thread_local! {
+            static SCRATCH: std::cell::RefCell<RunScratch> = std::cell::RefCell::new(RunScratch::default());
+        }
+        SCRATCH.with(|cell| match cell.try_borrow_mut() {
+            Ok(mut s) => self.run_with(burst, out, &mut s),
+            Err(_) => self.run_with(burst, out, &mut RunScratch::default()),
+        })
+    }
+
+    fn run_with(
+        &self,
+        burst: &BurstView<'_>,
+        out: &mut EqualisedSymbols,
+        scratch: &mut RunScratch,
+    ) -> Result<(), EqualiseError> {
         let len = burst.y.len();
         let nt = burst.training.len();
         if burst.offset.checked_add(nt).map_or(true, |e| e > len) {
@@ -289,9 +308,19 @@ impl DfeCore {
             });
         }
         let zero = Cf32::new(0.0, 0.0);
-        let truth: Vec<Cf32> = if self.opts.genie {
+        let RunScratch {
+            truth,
+            yr,
+            tr,
+            soft,
+            labels,
+            phase,
+            pass: pass_scratch,
+        } = scratch;
+        truth.clear();
+        if self.opts.genie {
             match burst.known {
-                Some(k) if k.len() == len => k.to_vec(),
+                Some(k) if k.len() == len => truth.extend_from_slice(k),
                 other => {
                     return Err(EqualiseError::KnownSymbols {
                         expected: len,
@@ -300,10 +329,10 @@ impl DfeCore {
                 }
             }
         } else {
-            let mut t = vec![zero; len];
-            t[burst.offset..burst.offset + nt].copy_from_slice(burst.training);
-            t
-        };
+            truth.resize(len, zero);
+            truth[burst.offset..burst.offset + nt].copy_from_slice(burst.training);
+        }
+        let truth = &truth[..];
         let truth_range = if self.opts.genie {
             0..len
         } else {
@@ -331,7 +360,7 @@ impl DfeCore {
             let mut adapt = Adapt::new(&self.opts.tracking, nadapt(&self.fwd));
             let pass = Pass {
                 y: burst.y,
-                truth: &truth,
+                truth,
                 truth_range: truth_range.clone(),
                 range: burst.offset..len,
             };
@@ -344,26 +373,32 @@ impl DfeCore {
                 &mut out.soft,
                 &mut out.labels,
                 &mut out.phase_rad,
+                pass_scratch,
             );
         }
         // Backward: the symbols before the training, time-reversed.
         if burst.offset > 0 {
-            let yr: Vec<Cf32> = burst.y.iter().rev().cloned().collect();
-            let tr: Vec<Cf32> = truth.iter().rev().cloned().collect();
+            yr.clear();
+            yr.extend(burst.y.iter().rev());
+            tr.clear();
+            tr.extend(truth.iter().rev());
             let rr = if self.opts.genie {
                 0..len
             } else {
                 len - burst.offset - nt..len - burst.offset
             };
-            let mut soft = vec![zero; len];
-            let mut labels = vec![0usize; len];
-            let mut phase = vec![0f32; len];
+            soft.clear();
+            soft.resize(len, zero);
+            labels.clear();
+            labels.resize(len, 0);
+            phase.clear();
+            phase.resize(len, 0.0);
             let mut lf = LoopFilters::new(&self.rev.ff, &self.rev.fb, self.rev.lag());
             let mut pll = make_loop(-1.0);
             let mut adapt = Adapt::new(&self.opts.tracking, nadapt(&self.rev));
             let pass = Pass {
-                y: &yr,
-                truth: &tr,
+                y: yr,
+                truth: tr,
                 truth_range: rr,
                 range: len - burst.offset - nt..len,
             };
@@ -373,9 +408,10 @@ impl DfeCore {
                 burst.slicer,
                 pll.as_mut(),
                 &mut adapt,
-                &mut soft,
-                &mut labels,
-                &mut phase,
+                soft,
+                labels,
+                phase,
+                pass_scratch,
             );
             for n in 0..burst.offset {
                 out.soft[n] = soft[len - 1 - n];
@@ -385,6 +421,18 @@ impl DfeCore {
         }
         Ok(())
     }
+}
+
+/// Buffers of [`DfeCore::run_into`] reused across runs (see there).
+#[derive(Default)]
+struct RunScratch {
+    truth: Vec<Cf32>,
+    yr: Vec<Cf32>,
+    tr: Vec<Cf32>,
+    soft: Vec<Cf32>,
+    labels: Vec<usize>,
+    phase: Vec<f32>,
+    pass: engine::PassScratch,
 }
 
 macro_rules! equaliser_type {
@@ -506,6 +554,15 @@ pub struct BurstConfig {
     pub carrier: CarrierConfig,
     /// LMS/RLS tracking (off by default); when on, an extra tracked MMSE-DFE runs.
     pub tracking: TrackingConfig,
+    /// Run the classic ZF-DFE (default true). A caller that reports neither its
+    /// symbols nor its filters can skip the pass; its [`EqualiserResult`] is then
+    /// absent from [`BurstOutput::results`].
+    #[serde(default = "yes")]
+    pub run_zf_dfe: bool,
+}
+
+fn yes() -> bool {
+    true
 }
 
 impl Default for BurstConfig {
@@ -519,6 +576,7 @@ impl Default for BurstConfig {
             zf_min_main_snr: zf_dfe::DEFAULT_MIN_MAIN_SNR,
             carrier: CarrierConfig::default(),
             tracking: TrackingConfig::default(),
+            run_zf_dfe: true,
         }
     }
 }
@@ -544,8 +602,9 @@ pub struct BurstOutput {
     pub bounds: theory::TheoryBounds,
     /// Samples after the carrier correction (what the equalisers saw).
     pub corrected: Vec<Cf32>,
-    /// One entry per equaliser, in the order zf-dfe, mmse-dfe, linear-mmse,
-    /// tracked mmse-dfe (if on), genie (if known symbols were given).
+    /// One entry per equaliser, in the order zf-dfe (unless
+    /// [`BurstConfig::run_zf_dfe`] is off), mmse-dfe, linear-mmse, tracked
+    /// mmse-dfe (if on), genie (if known symbols were given).
     pub results: Vec<EqualiserResult>,
 }
 
@@ -588,14 +647,20 @@ pub fn process_burst(
         });
         results.push(EqualiserResult { name, outcome });
     };
-    push(
-        "zf-dfe",
-        ZfDfe::new(&ch, cfg.zf_main_tap, cfg.zf_min_main_snr, opts).map(|e| Box::new(e) as _),
-    );
-    push(
-        "mmse-dfe",
-        MmseDfe::new(&ch, cfg.ff_taps, cfg.fb_taps, cfg.delay, opts).map(|e| Box::new(e) as _),
-    );
+    if cfg.run_zf_dfe {
+        push(
+            "zf-dfe",
+            ZfDfe::new(&ch, cfg.zf_main_tap, cfg.zf_min_main_snr, opts).map(|e| Box::new(e) as _),
+        );
+    }
+    let mmse = MmseDfe::new(&ch, cfg.ff_taps, cfg.fb_taps, cfg.delay, opts);
+    // The genie uses the very filters of the MMSE-DFE (same channel, lengths and
+    // delay rule): reuse the design instead of repeating it.
+    let genie = mmse
+        .as_ref()
+        .map(|e| GenieDfe::from_design(&e.core))
+        .map_err(Clone::clone);
+    push("mmse-dfe", mmse.map(|e| Box::new(e) as _));
     push(
         "linear-mmse",
         LinearMmse::new(&ch, cfg.ff_taps, cfg.delay, opts).map(|e| Box::new(e) as _),
@@ -617,10 +682,7 @@ pub fn process_burst(
         );
     }
     if burst.known.is_some() {
-        push(
-            "genie-mmse-dfe",
-            GenieDfe::new(&ch, cfg.ff_taps, cfg.fb_taps, cfg.delay, opts).map(|e| Box::new(e) as _),
-        );
+        push("genie-mmse-dfe", genie.map(|e| Box::new(e) as _));
     }
     let bounds = theory::bounds(
         &channel.taps,

@@ -439,9 +439,11 @@ impl Constellation {
                 let l = *levels as f32;
                 let max = (*levels - 1) as f32;
                 // Level index = floor((x + L)/2) with x in grid units, clamped to [0, L−1].
-                // `f32::clamp` would keep NaN; `max(0).min(max)` maps NaN to 0.
-                let ii = ((z.re * inv_scale + l) * 0.5).floor().max(0.0).min(max) as usize;
-                let qi = ((z.im * inv_scale + l) * 0.5).floor().max(0.0).min(max) as usize;
+                // `f32::clamp` would keep NaN; `max(0).min(max)` maps NaN to 0. After
+                // the clamp the value is ≥ 0, where the truncating `as usize` is the
+                // floor (and no libm `floorf` call on targets without SSE4.1).
+                let ii = ((z.re * inv_scale + l) * 0.5).max(0.0).min(max) as usize;
+                let qi = ((z.im * inv_scale + l) * 0.5).max(0.0).min(max) as usize;
                 i_label[ii] | q_label[qi]
             }
             Slicer::Psk {
