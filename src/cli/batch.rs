@@ -148,6 +148,7 @@ pub fn run_batch_cmd(args: &BatchArgs, argv: &[String]) -> Result<Outcome, Error
         format,
         sample_rate_hz: args.sample_rate,
         command: argv.to_vec(),
+        traced_bursts: None,
     };
     let outcome = run_batch(&opts, |p| {
         analyse_capture(p, &profile, &aopts).map_err(|e| to_failure(p, e))

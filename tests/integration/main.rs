@@ -8,6 +8,7 @@ mod bad_input;
 mod bad_inputs;
 mod batch;
 mod batch_cli;
+mod bounded_memory;
 mod capture_formats;
 mod fuzz_seeds;
 mod info_cli;
