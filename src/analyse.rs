@@ -1171,7 +1171,8 @@ pub fn parse_recorded_report(text: &str, report_path: &Path) -> Result<RecordedR
             "schema is '{schema}', expected '{SCHEMA}' ({why})"
         )));
     }
-    let report: Report = serde_json::from_value(recorded.clone())
+    // From a borrow: cloning the tree first would hold it twice.
+    let report = <Report as serde::Deserialize>::deserialize(&recorded)
         .map_err(|e| bad(format!("does not match the {SCHEMA} schema: {e}")))?;
     if !crate::report::provenance::is_sha256_hex(&report.input.sha256) {
         return Err(bad(format!(
@@ -1236,6 +1237,7 @@ pub fn recheck(report_path: &Path) -> Result<RecheckResult, Error> {
         profile,
         format,
     } = parse_recorded_report(&text, report_path)?;
+    drop(text);
     let input = locate_input(report_path, &report.input.path);
     let found = sha256_file(&input).map_err(|source| Error::Io {
         path: input.clone(),
@@ -1254,10 +1256,13 @@ pub fn recheck(report_path: &Path) -> Result<RecheckResult, Error> {
         command: report.command.clone(),
         traced_bursts: Some(report.provenance.traced_bursts),
     };
+    let recorded_path = report.input.path.clone();
+    drop(report);
     let mut again = analyse_capture(&input, &profile, &opts)?;
-    again.input.path = report.input.path.clone();
-    let again = serde_json::to_value(&again).map_err(|e| bad(e.to_string()))?;
-    let differences = crate::report::compare::differences(&recorded, &again, &["command"]);
+    again.input.path = recorded_path;
+    // Burst by burst: one JSON tree (the recorded one) in memory, not two.
+    let differences = crate::report::compare::report_differences(&recorded, again, &["command"])
+        .map_err(|e| bad(e.to_string()))?;
     Ok(RecheckResult {
         input,
         differences,
