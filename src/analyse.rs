@@ -1,7 +1,7 @@
 //! The main job: analyse one capture against a link profile.
 //!
 //! Takes a capture path, a [`ResolvedProfile`] and [`AnalyseOptions`]; gives a
-//! [`Report`] (schema `iqaudit-report/1`). The stages run in data-flow order:
+//! [`Report`] (schema `iqaudit-report/2`). The stages run in data-flow order:
 //!
 //! 1. `capture` — open the file (memory map, chunked decoding);
 //! 2. `signal` — build the training symbols, the known payload (if any), the
@@ -17,6 +17,18 @@
 //!
 //! Bursts are processed in parallel and collected in capture order; all sums are
 //! taken in index order, so the report is identical for any thread count.
+//!
+//! ## Bounded memory
+//!
+//! Bursts are analysed in batches of [`BURST_BATCH`]. After each batch only the
+//! traces of the *traced set* are kept: the first `K` bursts and the `K` bursts
+//! with the largest RMS EVM so far (ties: the lower index), `K` being
+//! [`AnalyseOptions::traced_bursts`] (default [`DEFAULT_TRACED_BURSTS`]). The
+//! worst-`K` set of all bursts does not depend on the order the bursts arrive
+//! in, so neither does the selection. Every other burst keeps its figures with
+//! `trace` and `channel.response_db` null; every burst lists at most
+//! [`ERROR_RUNS_KEPT`] error runs. The memory held is
+//! then a few KiB per burst plus at most `2K` traces, whatever the capture.
 //!
 //! ## Frame indexing
 //!
@@ -38,7 +50,8 @@ use crate::report::metrics::{
 use crate::report::provenance::sha256_file;
 use crate::report::schema::{
     BurstMetrics, BurstReport, ChannelReport, EqualiserReport, InputInfo, LimitCheck, Provenance,
-    Report, Summary, ToolInfo, Trace, Verdict, VerdictResult, Warning, WarningCode, SCHEMA,
+    Report, Summary, ToolInfo, Trace, Verdict, VerdictResult, Warning, WarningCode,
+    ERROR_RUNS_KEPT, SCHEMA,
 };
 use crate::signal::{rrc_taps, Constellation};
 use crate::sync::{BurstSync, ChunkReader, SampleSource, SyncConfig, Synchroniser};
@@ -52,6 +65,14 @@ pub const CONFIDENCE: f64 = 0.95;
 pub const TRACE_POINTS: usize = 2000;
 /// Samples either side of a burst's first-symbol instant kept for the sync-metric plot, in symbols.
 const SYNC_TRACE_SYMBOLS: usize = 16;
+/// Default `K` of the traced set: the first `K` bursts and the `K` worst by RMS
+/// EVM keep their plot traces (see the module documentation).
+pub const DEFAULT_TRACED_BURSTS: usize = 8;
+/// Largest accepted `K` (≈ 60 KiB of trace per burst: 2·1000 traces ≈ 120 MiB).
+pub const MAX_TRACED_BURSTS: usize = 1000;
+/// Bursts analysed in parallel before the traces outside the traced set are
+/// dropped; bounds the transient traces to this many.
+pub const BURST_BATCH: usize = 256;
 
 /// Options of one analysis besides the profile (command-line overrides).
 #[derive(Debug, Clone, Default)]
@@ -65,6 +86,64 @@ pub struct AnalyseOptions {
     /// The file's SHA-256 (lowercase hex) when the caller has just computed it
     /// (batch resume, recheck): recorded as is instead of hashing the file again.
     pub input_sha256: Option<String>,
+    /// `K` of the traced set (`--traced-bursts`); `None` means
+    /// [`DEFAULT_TRACED_BURSTS`]. At most [`MAX_TRACED_BURSTS`].
+    pub traced_bursts: Option<usize>,
+}
+
+/// Which bursts keep their trace: the first `k` and the `k` worst by RMS EVM
+/// (ties broken towards the lower index). Offer every burst once, in any order:
+/// the worst-`k` set of everything offered is the same whatever the order.
+#[derive(Debug)]
+struct TraceSelection {
+    k: usize,
+    worst: std::collections::BTreeSet<Badness>,
+}
+
+/// Order of "worse": larger RMS EVM, then the lower index.
+#[derive(Debug, Clone, Copy)]
+struct Badness {
+    evm: f64,
+    index: usize,
+}
+
+impl Ord for Badness {
+    fn cmp(&self, other: &Self) -> std::cmp::Ordering {
+        self.evm
+            .total_cmp(&other.evm)
+            .then_with(|| other.index.cmp(&self.index))
+    }
+}
+impl PartialOrd for Badness {
+    fn partial_cmp(&self, other: &Self) -> Option<std::cmp::Ordering> {
+        Some(self.cmp(other))
+    }
+}
+impl PartialEq for Badness {
+    fn eq(&self, other: &Self) -> bool {
+        self.cmp(other) == std::cmp::Ordering::Equal
+    }
+}
+impl Eq for Badness {}
+
+impl TraceSelection {
+    fn new(k: usize) -> TraceSelection {
+        TraceSelection {
+            k,
+            worst: std::collections::BTreeSet::new(),
+        }
+    }
+
+    /// Offer burst `index` with RMS EVM `evm`; returns the index of a burst
+    /// (possibly this one) that has just left the traced set for good.
+    fn offer(&mut self, index: usize, evm: f64) -> Option<usize> {
+        self.worst.insert(Badness { evm, index });
+        if self.worst.len() <= self.k {
+            return None;
+        }
+        let out = self.worst.pop_first()?;
+        (out.index >= self.k).then_some(out.index)
+    }
 }
 
 /// Everything prepared once per capture and shared by all bursts.
@@ -323,6 +402,12 @@ pub fn analyse_capture(
             ),
         ));
     }
+    let traced = opts.traced_bursts.unwrap_or(DEFAULT_TRACED_BURSTS);
+    if traced > MAX_TRACED_BURSTS {
+        return Err(usage(format!(
+            "--traced-bursts {traced}: at most {MAX_TRACED_BURSTS} (each traced burst holds ≈ 60 KiB)"
+        )));
+    }
     let bursts: Vec<BurstReport> = if capture.len() < sync.min_capture_len() {
         warnings.push(Warning::new(
             WarningCode::NoTrainingFound,
@@ -335,14 +420,32 @@ pub fn analyse_capture(
         Vec::new()
     } else {
         let detections = sync.search_source(&src)?;
-        detections
-            .par_iter()
-            .enumerate()
-            .map(|(k, det)| {
-                let bs = sync.refine(&src, det)?;
-                analyse_burst(k, &bs, &plan, profile, &sync, &src, &capture)
-            })
-            .collect::<Result<Vec<_>, Error>>()?
+        let mut selection = TraceSelection::new(traced);
+        let mut bursts: Vec<BurstReport> = Vec::with_capacity(detections.len());
+        for (b, batch) in detections.chunks(BURST_BATCH).enumerate() {
+            let done = batch
+                .par_iter()
+                .enumerate()
+                .map(|(j, det)| {
+                    let k = b * BURST_BATCH + j;
+                    let bs = sync.refine(&src, det)?;
+                    analyse_burst(k, &bs, &plan, profile, &sync, &src, &capture)
+                })
+                .collect::<Result<Vec<_>, Error>>()?;
+            // In index order, so `bursts[i].index == i`.
+            for mut r in done {
+                cap_error_runs(&mut r.metrics);
+                let dropped = selection.offer(r.index, r.metrics.evm_rms_percent);
+                bursts.push(r);
+                if let Some(i) = dropped {
+                    if let Some(d) = bursts.get_mut(i) {
+                        d.trace = None;
+                        d.channel.response_db = None;
+                    }
+                }
+            }
+        }
+        bursts
     };
     if bursts.is_empty()
         && !warnings
@@ -413,6 +516,7 @@ pub fn analyse_capture(
             profile_sha256: profile_sha,
             format_override: opts.format.map(|f| f.name().to_string()),
             sample_rate_override_hz: opts.sample_rate_hz,
+            traced_bursts: traced,
             threshold: sync.threshold(),
             recheck: "iqaudit recheck REPORT.json".into(),
         },
@@ -665,7 +769,16 @@ fn analyse_burst<S: SampleSource + ?Sized>(
         error_runs: runs,
         error_propagation: propagation,
     };
-    let trace = trace(bs, sync, src, plan, &z, &payload_numbers, reference, wrong)?;
+    let trace = Some(trace(
+        bs,
+        sync,
+        src,
+        plan,
+        &z,
+        &payload_numbers,
+        reference,
+        wrong,
+    )?);
     Ok(BurstReport {
         index,
         start_sample: bs.start_sample.max(0) as u64,
@@ -769,7 +882,7 @@ fn channel_report(ch: &crate::channel::ChannelEstimate) -> ChannelReport {
             SpanChoice::Fixed => "fixed".into(),
             SpanChoice::Mdl { .. } => "mdl".into(),
         },
-        response_db,
+        response_db: Some(response_db),
     }
 }
 
@@ -880,6 +993,14 @@ fn trace<S: SampleSource + ?Sized>(
     })
 }
 
+/// Keep the first [`ERROR_RUNS_KEPT`] error runs (the histogram covers them all).
+fn cap_error_runs(m: &mut BurstMetrics) {
+    if m.error_runs.len() > ERROR_RUNS_KEPT {
+        m.error_runs.truncate(ERROR_RUNS_KEPT);
+        m.error_runs.shrink_to_fit();
+    }
+}
+
 fn summarise(bursts: &[BurstReport]) -> Summary {
     let mut s = Summary {
         bursts: bursts.len(),
@@ -924,7 +1045,7 @@ fn summarise(bursts: &[BurstReport]) -> Summary {
     s.cfo_abs_max_hz = bursts.iter().map(|b| b.cfo_hz.abs()).reduce(f64::max);
     s.longest_error_run = bursts
         .iter()
-        .flat_map(|b| b.metrics.error_runs.iter().map(|r| r.length))
+        .map(|b| b.metrics.longest_error_run())
         .max()
         .unwrap_or(0);
     s
@@ -1028,7 +1149,7 @@ pub struct RecordedReport {
 }
 
 /// Parse and check report text for `recheck` without touching any other file:
-/// valid JSON, schema `iqaudit-report/1`, every key known, `input.sha256` a
+/// valid JSON, schema `iqaudit-report/2`, every key known, `input.sha256` a
 /// 64-digit hex string, the recorded profile usable and within the caps of
 /// `crate::limits`, the format override a known format. `report_path` only
 /// names the report in errors.
@@ -1047,11 +1168,17 @@ pub fn parse_recorded_report(text: &str, report_path: &Path) -> Result<RecordedR
         .and_then(|s| s.as_str())
         .unwrap_or("");
     if schema != SCHEMA {
+        let why = if schema.starts_with("iqaudit-report/") {
+            "written by another iqaudit version; analyse the capture again"
+        } else {
+            "not an iqaudit report?"
+        };
         return Err(bad(format!(
-            "schema is '{schema}', expected '{SCHEMA}' (not an iqaudit report?)"
+            "schema is '{schema}', expected '{SCHEMA}' ({why})"
         )));
     }
-    let report: Report = serde_json::from_value(recorded.clone())
+    // From a borrow: cloning the tree first would hold it twice.
+    let report = <Report as serde::Deserialize>::deserialize(&recorded)
         .map_err(|e| bad(format!("does not match the {SCHEMA} schema: {e}")))?;
     if !crate::report::provenance::is_sha256_hex(&report.input.sha256) {
         return Err(bad(format!(
@@ -1072,6 +1199,12 @@ pub fn parse_recorded_report(text: &str, report_path: &Path) -> Result<RecordedR
         })?),
         None => None,
     };
+    if report.provenance.traced_bursts > MAX_TRACED_BURSTS {
+        return Err(bad(format!(
+            "provenance.traced_bursts {} is above the cap {MAX_TRACED_BURSTS}",
+            report.provenance.traced_bursts
+        )));
+    }
     if let Some(r) = report.provenance.sample_rate_override_hz {
         if !(r.is_finite() && r > 0.0) {
             return Err(bad(format!(
@@ -1091,7 +1224,7 @@ pub fn parse_recorded_report(text: &str, report_path: &Path) -> Result<RecordedR
 ///
 /// # Errors
 /// [`Error::Report`] when the report cannot be read or is not an
-/// `iqaudit-report/1` document (see [`parse_recorded_report`]); [`Error::Io`]
+/// `iqaudit-report/2` document (see [`parse_recorded_report`]); [`Error::Io`]
 /// when the capture is missing; [`Error::InputChanged`] when its SHA-256 differs
 /// from the recorded one; and any error of [`analyse_capture`].
 pub fn recheck(report_path: &Path) -> Result<RecheckResult, Error> {
@@ -1110,6 +1243,7 @@ pub fn recheck(report_path: &Path) -> Result<RecheckResult, Error> {
         profile,
         format,
     } = parse_recorded_report(&text, report_path)?;
+    drop(text);
     let input = locate_input(report_path, &report.input.path);
     let found = sha256_file(&input).map_err(|source| Error::Io {
         path: input.clone(),
@@ -1127,14 +1261,82 @@ pub fn recheck(report_path: &Path) -> Result<RecheckResult, Error> {
         sample_rate_hz: report.provenance.sample_rate_override_hz,
         command: report.command.clone(),
         input_sha256: Some(found),
+        traced_bursts: Some(report.provenance.traced_bursts),
     };
+    let recorded_path = report.input.path.clone();
+    drop(report);
     let mut again = analyse_capture(&input, &profile, &opts)?;
-    again.input.path = report.input.path.clone();
-    let again = serde_json::to_value(&again).map_err(|e| bad(e.to_string()))?;
-    let differences = crate::report::compare::differences(&recorded, &again, &["command"]);
+    again.input.path = recorded_path;
+    // Burst by burst: one JSON tree (the recorded one) in memory, not two.
+    let differences = crate::report::compare::report_differences(&recorded, again, &["command"])
+        .map_err(|e| bad(e.to_string()))?;
     Ok(RecheckResult {
         input,
         differences,
         figures: count_numbers(&recorded),
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use rand::seq::SliceRandom;
+    use rand::{Rng, SeedableRng};
+
+    /// The slow twin: sort everything by (EVM descending, index ascending), take
+    /// `k`, add the first `k` indices (the documented rule; common practice).
+    fn reference(evm: &[f64], k: usize) -> Vec<usize> {
+        let mut order: Vec<usize> = (0..evm.len()).collect();
+        order.sort_by(|&a, &b| evm[b].total_cmp(&evm[a]).then(a.cmp(&b)));
+        let mut set: std::collections::BTreeSet<usize> = order.into_iter().take(k).collect();
+        set.extend(0..k.min(evm.len()));
+        set.into_iter().collect()
+    }
+
+    /// Offer every burst in `order`; the indices still traced at the end.
+    fn streamed(evm: &[f64], k: usize, order: &[usize]) -> Vec<usize> {
+        let mut sel = TraceSelection::new(k);
+        let mut traced = vec![true; evm.len()];
+        for &i in order {
+            if let Some(d) = sel.offer(i, evm[i]) {
+                traced[d] = false;
+            }
+        }
+        (0..evm.len()).filter(|&i| traced[i]).collect()
+    }
+
+    #[test]
+    fn the_traced_set_matches_a_full_sort_for_any_arrival_order_with_ties() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(9);
+        for n in [0usize, 1, 2, 3, 7, 31, 300] {
+            for k in [0usize, 1, 2, 5, 40] {
+                // Few distinct values, so ties are common.
+                let evm: Vec<f64> = (0..n).map(|_| f64::from(rng.gen_range(0..6u8))).collect();
+                let want = reference(&evm, k);
+                assert!(want.len() <= 2 * k);
+                let mut order: Vec<usize> = (0..n).collect();
+                assert_eq!(streamed(&evm, k, &order), want, "n {n} k {k} in order");
+                for _ in 0..5 {
+                    order.shuffle(&mut rng);
+                    assert_eq!(streamed(&evm, k, &order), want, "n {n} k {k} shuffled");
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn a_burst_dropped_from_the_traced_set_is_named_once_and_never_one_of_the_first_k() {
+        let evm = [9.0, 1.0, 2.0, 8.0, 3.0, 7.0, 0.5];
+        let mut sel = TraceSelection::new(2);
+        let dropped: Vec<usize> = (0..evm.len())
+            .filter_map(|i| sel.offer(i, evm[i]))
+            .collect();
+        // Worst two: 0 (9.0) and 3 (8.0); first two: 0, 1. Traced {0, 1, 3}:
+        // worked by hand from the rule.
+        let mut sorted = dropped.clone();
+        sorted.sort_unstable();
+        sorted.dedup();
+        assert_eq!(sorted.len(), dropped.len());
+        assert_eq!(sorted, vec![2, 4, 5, 6]);
+    }
 }

@@ -7,8 +7,16 @@
 //! decoding code only ever sees `&[u8]`. Offsets and lengths are in bytes from the
 //! start of the file.
 //!
-//! This file holds the crate's only `unsafe` block (the call to `Mmap::map`).
-//! Everything else takes `&[u8]` or `&[Cf32]`.
+//! This file holds the crate's only `unsafe` code: the call to `Mmap::map` and
+//! the `MADV_DONTNEED` advice of [`Source::release`]. Everything else takes
+//! `&[u8]` or `&[Cf32]`.
+//!
+//! Resident memory: every page of a map that has been touched counts in the
+//! process's resident set (`RssFile`) until it is unmapped, so a search over a
+//! 1 GiB capture would hold 1 GiB resident although each byte is needed for a
+//! moment. Callers therefore [`release`](Source::release) each range once they
+//! have decoded it: the pages leave the process (they stay in the kernel's page
+//! cache, so reading them again costs a minor fault, not a disk read).
 //!
 //! Truncation while mapped: touching a mapped page that lies past the file's
 //! current end raises SIGBUS, which no `Result` can catch. So every access to a
@@ -55,6 +63,10 @@ pub(crate) enum Access {
     /// Never map; always use positioned reads.
     ReadOnly,
 }
+
+/// Granularity of [`Source::release`], bytes: a multiple of the kernel's
+/// fault-around window (64 KiB by default on Linux), with room for a larger one.
+const RELEASE_ALIGN: usize = 128 << 10;
 
 thread_local! {
     /// Per-thread scratch for the read fallback; grows to the largest request
@@ -124,6 +136,52 @@ impl Source {
             Source::Memory(_) => "memory",
             Source::File { .. } => "read",
         }
+    }
+
+    /// For a mapped file: drop the process's mapping of the pages around the
+    /// bytes `[offset, offset + len)`: the range rounded outwards to
+    /// [`RELEASE_ALIGN`] boundaries of the address space, clamped to the map.
+    /// The rounding matters: on a page fault Linux maps the neighbouring cached
+    /// pages too ("fault-around", a 64 KiB window aligned in the address space),
+    /// and pages mapped that way beside a range that another thread has already
+    /// released would otherwise stay resident. The bytes stay readable: the next
+    /// access maps the same page-cache page again. A no-op for the other sources
+    /// and off Unix; failure is ignored (it changes memory use, not data).
+    pub(crate) fn release(&self, offset: u64, len: usize) {
+        #[cfg(unix)]
+        if let Source::Mapped { map, .. } = self {
+            let (Ok(start), true) = (usize::try_from(offset), len > 0) else {
+                return;
+            };
+            let Some(end) = start.checked_add(len).filter(|&e| e <= map.len()) else {
+                return;
+            };
+            // Round in the address space (where fault-around windows are aligned).
+            let base = map.as_ptr() as usize;
+            let lo = (base + start) & !(RELEASE_ALIGN - 1);
+            let hi = (base + end).div_ceil(RELEASE_ALIGN) * RELEASE_ALIGN;
+            let start = lo.saturating_sub(base);
+            let len = hi.saturating_sub(base).min(map.len()) - start;
+            // SAFETY: `MADV_DONTNEED` on this map only unmaps pages from this
+            // process; it never changes the bytes seen through it. The map is a
+            // read-only shared (`MAP_SHARED`, `PROT_READ`) mapping of a file that
+            // this crate never writes, so after the advice the next access —
+            // including one by another thread that holds a `&[u8]` into the same
+            // pages at this moment — faults in the page-cache page of the same
+            // file offset, which holds the bytes the pages held before. (The
+            // data-loss case of `MADV_DONTNEED`, discarding private modified
+            // pages, cannot arise: nothing is ever written through the map.) The
+            // range lies inside the map (checked above; memmap2 rounds the start
+            // down to a page boundary of the map, and the kernel rounds the
+            // length up, still within the map's last page). The one remaining
+            // hazard is the one of `Mmap::map` itself: a file truncated by another
+            // process, for which `ensure_present` guards every access.
+            let _ = unsafe {
+                map.unchecked_advise_range(memmap2::UncheckedAdvice::DontNeed, start, len)
+            };
+        }
+        #[cfg(not(unix))]
+        let _ = (offset, len);
     }
 
     /// For a mapped file: check that bytes up to `end` still exist in the file

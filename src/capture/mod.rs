@@ -678,7 +678,9 @@ impl Capture {
 
     /// Decode samples `[start, start + out.len())` into `out` and return the
     /// clipped and non-finite counts for that range (non-finite samples are
-    /// replaced by 0 in `out`).
+    /// replaced by 0 in `out`). For a memory-mapped file the pages of the range
+    /// are released afterwards, so the process's resident memory does not grow
+    /// with the part of the capture read (reading them again is a minor fault).
     pub fn read_into(&self, start: usize, out: &mut [Cf32]) -> Result<ReadStats, CaptureError> {
         let end = start.checked_add(out.len());
         let end = match end {
@@ -710,6 +712,9 @@ impl Capture {
                     source,
                 })?,
         };
+        // The samples are decoded into `out`: let the mapped pages go, so
+        // that a pass over the whole capture does not keep it resident.
+        self.source.release(offset, out.len() * bps);
         if self.swap_iq {
             for s in out.iter_mut() {
                 *s = Cf32::new(s.im, s.re);

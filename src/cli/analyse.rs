@@ -54,6 +54,11 @@ pub struct AnalyseArgs {
     /// Worker threads (default: all cores). Results are identical for any value.
     #[arg(long, short = 'j', value_name = "N")]
     pub jobs: Option<usize>,
+
+    /// Keep plot traces for the first K bursts and the K worst by RMS EVM
+    /// (default 8, at most 1000; 0 keeps none). Other bursts report `trace: null`.
+    #[arg(long, value_name = "K")]
+    pub traced_bursts: Option<usize>,
 }
 
 /// Arguments of `iqaudit recheck`.
@@ -149,6 +154,7 @@ pub fn run_analyse(args: &AnalyseArgs, argv: &[String]) -> Result<Outcome, Error
         sample_rate_hz: args.sample_rate,
         command: argv.to_vec(),
         input_sha256: None,
+        traced_bursts: args.traced_bursts,
     };
     let run = || analyse_capture(&args.capture, &profile, &opts);
     let report = match args.jobs {

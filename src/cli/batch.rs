@@ -149,6 +149,7 @@ pub fn run_batch_cmd(args: &BatchArgs, argv: &[String]) -> Result<Outcome, Error
         sample_rate_hz: args.sample_rate,
         command: argv.to_vec(),
         input_sha256: None,
+        traced_bursts: None,
     };
     let outcome = run_batch(&opts, |p, known_sha256| {
         // A digest the resume check already computed is passed through, so the

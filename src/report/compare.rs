@@ -6,6 +6,7 @@
 //! the same capture and profile by the same tool version reproduces every figure
 //! bit for bit.
 
+use super::schema::Report;
 use serde_json::Value;
 
 /// One difference between the recorded and the re-computed report.
@@ -46,6 +47,50 @@ pub fn differences(recorded: &Value, recomputed: &Value, skip: &[&str]) -> Vec<D
         _ => walk(Some(recorded), Some(recomputed), String::new(), &mut out),
     }
     out
+}
+
+/// [`differences`] between a recorded report document and a re-computed
+/// [`Report`], converting the re-computed bursts to JSON one at a time instead
+/// of the whole report at once, so a re-check holds one document tree (the
+/// recorded one), not two. Same paths and order as [`differences`] on the whole
+/// document (`bursts` sorts first among the top-level keys).
+///
+/// # Errors
+/// A re-computed value that cannot be converted to JSON.
+pub fn report_differences(
+    recorded: &Value,
+    mut recomputed: Report,
+    skip: &[&str],
+) -> Result<Vec<Difference>, serde_json::Error> {
+    let bursts = std::mem::take(&mut recomputed.bursts);
+    let mut out = Vec::new();
+    if !skip.contains(&"bursts") {
+        match recorded.get("bursts") {
+            Some(Value::Array(rec)) if rec.len() == bursts.len() => {
+                for (i, (r, b)) in rec.iter().zip(&bursts).enumerate() {
+                    let b = serde_json::to_value(b)?;
+                    walk(Some(r), Some(&b), format!("bursts[{i}]"), &mut out);
+                }
+            }
+            rec => out.push(Difference {
+                path: "bursts".into(),
+                recorded: match rec {
+                    Some(Value::Array(a)) => format!("{} bursts", a.len()),
+                    other => show(other),
+                },
+                recomputed: format!("{} bursts", bursts.len()),
+            }),
+        }
+    }
+    drop(bursts);
+    let mut rest = serde_json::to_value(&recomputed)?;
+    let mut skip_rest: Vec<&str> = skip.to_vec();
+    skip_rest.push("bursts");
+    if let Value::Object(m) = &mut rest {
+        m.remove("bursts");
+    }
+    out.extend(differences(recorded, &rest, &skip_rest));
+    Ok(out)
 }
 
 fn show(v: Option<&Value>) -> String {
@@ -101,6 +146,41 @@ mod tests {
         assert_eq!(d[0].path, "bursts[0].metrics.evm_rms_percent");
         assert!(d[0].to_string().contains("3.1"));
         assert!(differences(&a, &a, &[]).is_empty());
+    }
+
+    /// The committed fuzz seed: a real report written by `iqaudit analyse`.
+    fn seed() -> (Value, Report) {
+        let text = include_str!("../../fuzz/seeds/report/small-report.json");
+        let v: Value = serde_json::from_str(text).unwrap();
+        let r: Report = serde_json::from_value(v.clone()).unwrap();
+        (v, r)
+    }
+
+    #[test]
+    fn comparing_burst_by_burst_finds_what_comparing_whole_documents_finds() {
+        let (v, r) = seed();
+        assert!(!r.bursts.is_empty());
+        // Slow twin: the whole re-computed document as one JSON tree.
+        let whole = |rec: &Value, again: &Report| {
+            differences(rec, &serde_json::to_value(again).unwrap(), &["command"])
+        };
+        assert!(report_differences(&v, r.clone(), &["command"])
+            .unwrap()
+            .is_empty());
+        let mut edited = v.clone();
+        edited["bursts"][0]["cfo_hz"] = json!(123.25);
+        edited["summary"]["bursts"] = json!(99);
+        edited["command"] = json!(["elsewhere"]);
+        let got = report_differences(&edited, r.clone(), &["command"]).unwrap();
+        assert_eq!(got, whole(&edited, &r));
+        assert_eq!(got.len(), 2);
+        assert_eq!(got[0].path, "bursts[0].cfo_hz");
+        let mut fewer = r.clone();
+        fewer.bursts.pop();
+        let got = report_differences(&v, fewer.clone(), &["command"]).unwrap();
+        assert_eq!(got.len(), 1);
+        assert_eq!(got[0].path, "bursts");
+        assert_eq!(whole(&v, &fewer)[0].path, "bursts");
     }
 
     #[test]

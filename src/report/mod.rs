@@ -1,7 +1,7 @@
 //! Reporting: figures of merit, the JSON audit trail and its atomic writer.
 //!
 //! Takes the per-burst results of the analysis and gives the report document
-//! (schema `iqaudit-report/1`), the terminal summary and the plots.
+//! (schema `iqaudit-report/2`), the terminal summary and the plots.
 
 pub mod compare;
 pub mod metrics;

@@ -3,11 +3,14 @@
 //! Every plot is drawn from the report document alone (plus the ideal
 //! constellation points of the profile's payload modulation), never from the
 //! analysis' internal state, so a report re-read months later draws the same
-//! pictures. Files written per burst `k`: `burst-k-constellation.svg`,
-//! `burst-k-taps.svg`, `burst-k-response.svg`, `burst-k-evm.svg`,
-//! `burst-k-sync.svg`; and `index.html` linking them all with the summary.
+//! pictures. Files written per burst `k` that carries a trace (the report's
+//! traced set: the first `provenance.traced_bursts` bursts and as many again
+//! with the largest RMS EVM): `burst-k-constellation.svg`, `burst-k-taps.svg`,
+//! `burst-k-response.svg`, `burst-k-evm.svg`, `burst-k-sync.svg`; and
+//! `index.html` linking them all with the summary. A burst without a trace draws
+//! empty constellation, EVM and sync charts if asked directly.
 
-use super::schema::{BurstReport, Report, VerdictResult};
+use super::schema::{BurstReport, Report, Trace, VerdictResult};
 use super::svg::{palette, Chart, Range};
 use super::write::{write_atomic, WriteError};
 use crate::Cf32;
@@ -16,6 +19,14 @@ use std::path::{Path, PathBuf};
 
 const W: f64 = 560.0;
 const H: f64 = 380.0;
+
+/// The burst's trace, or an empty one when the burst is outside the traced set.
+fn trace_of(b: &BurstReport) -> std::borrow::Cow<'_, Trace> {
+    match &b.trace {
+        Some(t) => std::borrow::Cow::Borrowed(t),
+        None => std::borrow::Cow::Owned(Trace::default()),
+    }
+}
 
 /// Constellation of the equalised payload with ideal points and wrong decisions.
 pub fn constellation_svg(b: &BurstReport, ideal: &[Cf32]) -> String {
@@ -35,9 +46,10 @@ pub fn constellation_svg(b: &BurstReport, ideal: &[Cf32]) -> String {
         r,
         r,
     );
-    let wrong: std::collections::BTreeSet<usize> = b.trace.wrong.iter().copied().collect();
+    let trace = trace_of(b);
+    let wrong: std::collections::BTreeSet<usize> = trace.wrong.iter().copied().collect();
     let (mut good, mut bad) = (Vec::new(), Vec::new());
-    for p in &b.trace.constellation {
+    for p in &trace.constellation {
         let pt = (p[1], p[2]);
         if wrong.contains(&(p[0] as usize)) {
             bad.push(pt);
@@ -128,7 +140,13 @@ pub fn taps_svg(b: &BurstReport) -> String {
 
 /// Channel frequency response |H(f)| in dB over one symbol-rate period.
 pub fn response_svg(b: &BurstReport) -> String {
-    let pts: Vec<(f64, f64)> = b.channel.response_db.iter().map(|p| (p[0], p[1])).collect();
+    let pts: Vec<(f64, f64)> = b
+        .channel
+        .response_db
+        .iter()
+        .flatten()
+        .map(|p| (p[0], p[1]))
+        .collect();
     let y = Range::covering(pts.iter().map(|p| p.1), 0.1, Range { lo: -20.0, hi: 5.0 });
     let mut c = Chart::new(
         W,
@@ -145,7 +163,11 @@ pub fn response_svg(b: &BurstReport) -> String {
 
 /// RMS EVM over consecutive blocks of the burst, with decision-error runs shaded.
 pub fn evm_svg(b: &BurstReport) -> String {
-    let pts: Vec<(f64, f64)> = b.trace.evm_blocks.iter().map(|p| (p[0], p[1])).collect();
+    let pts: Vec<(f64, f64)> = trace_of(b)
+        .evm_blocks
+        .iter()
+        .map(|p| (p[0], p[1]))
+        .collect();
     let x = Range {
         lo: 0.0,
         hi: (b.metrics.symbols.max(1)) as f64,
@@ -185,7 +207,11 @@ pub fn evm_svg(b: &BurstReport) -> String {
 
 /// The normalised sync metric around the burst's training block.
 pub fn sync_svg(b: &BurstReport, threshold: f64) -> String {
-    let pts: Vec<(f64, f64)> = b.trace.sync_metric.iter().map(|p| (p[0], p[1])).collect();
+    let pts: Vec<(f64, f64)> = trace_of(b)
+        .sync_metric
+        .iter()
+        .map(|p| (p[0], p[1]))
+        .collect();
     let x = Range::covering(pts.iter().map(|p| p.0), 0.0, Range { lo: -1.0, hi: 1.0 });
     let mut c = Chart::new(
         W,
@@ -259,6 +285,16 @@ section{{border-top:2px solid {grid};margin-top:1.5em;padding-top:.5em}}img{{mar
     for w in &report.warnings {
         let _ = write!(h, "<p>⚠ {}</p>", esc(&w.to_string()));
     }
+    if files.len() < report.bursts.len() {
+        let k = report.provenance.traced_bursts;
+        let _ = write!(
+            h,
+            "<p>Plots for {} of {} bursts: the first {k} and the {k} with the largest RMS EVM \
+             (<code>--traced-bursts</code>). Every burst's figures are in the JSON report.</p>",
+            files.len(),
+            report.bursts.len()
+        );
+    }
     for (k, names) in files {
         let _ = write!(h, "<section><h2>Burst {k}</h2>");
         for n in names {
@@ -273,8 +309,8 @@ section{{border-top:2px solid {grid};margin-top:1.5em;padding-top:.5em}}img{{mar
     h
 }
 
-/// Write every plot of `report` and `index.html` into `dir` (created if needed).
-/// Returns the paths written.
+/// Write the plots of every burst that carries a trace, and `index.html`, into
+/// `dir` (created if needed). Returns the paths written.
 pub fn write_plots(
     report: &Report,
     ideal: &[Cf32],
@@ -287,7 +323,7 @@ pub fn write_plots(
     })?;
     let mut written = Vec::new();
     let mut index = Vec::new();
-    for b in &report.bursts {
+    for b in report.bursts.iter().filter(|b| b.trace.is_some()) {
         let k = b.index;
         let plots = [
             (

@@ -1,4 +1,4 @@
-//! The report document, schema `iqaudit-report/1`.
+//! The report document, schema `iqaudit-report/2`.
 //!
 //! One JSON object per analysed capture. Every key is listed here with its unit
 //! and when it is `null`; docs/report.md repeats this reference for users.
@@ -8,23 +8,38 @@
 //!
 //! | key | meaning |
 //! |---|---|
-//! | `schema` | always `"iqaudit-report/1"` |
+//! | `schema` | always `"iqaudit-report/2"` |
 //! | `tool` | `{name, version}` of the program that wrote the report |
 //! | `command` | the command line, one argument per element |
 //! | `input` | path, `size_bytes`, `sha256` (hex), format, `sample_rate_hz`, `center_freq_hz` (null when unknown), `samples` |
 //! | `profile` | the resolved link profile with every default filled in |
-//! | `bursts` | one [`BurstReport`] per burst found, in capture order |
+//! | `bursts` | one [`BurstReport`] per burst found, in capture order; only a bounded set of them carries a [`Trace`] |
 //! | `summary` | [`Summary`] over all bursts |
 //! | `verdict` | [`Verdict`]: `pass`, `fail` or `no-training`, with each limit checked |
 //! | `warnings` | capture-level [`Warning`]s (burst-level ones are inside each burst) |
-//! | `provenance` | what is needed to re-run: tool version, profile SHA-256, the `recheck` command |
+//! | `provenance` | what is needed to re-run: tool version, profile SHA-256, the trace selection, the `recheck` command |
+//!
+//! Size: apart from the traced bursts, every burst entry has a size bounded by
+//! the profile (taps, at most [`ERROR_RUNS_KEPT`] error runs, a run-length
+//! histogram no longer than the longest run). Traces (≈ 60 KiB each in
+//! memory) are kept only for the first `provenance.traced_bursts` bursts and the
+//! `provenance.traced_bursts` bursts with the largest RMS EVM (ties: the lower
+//! index), so the traced count is at most twice that figure whatever the capture.
+//!
+//! Schema history: `/2` made `trace` and `channel.response_db` nullable (null
+//! outside the traced set), capped `metrics.error_runs` and added
+//! `provenance.traced_bursts`.
 
 use super::metrics::{ErrorPropagation, ErrorRate, ErrorRun};
 use serde::{Deserialize, Serialize};
 use std::fmt;
 
 /// The schema identifier written into every report.
-pub const SCHEMA: &str = "iqaudit-report/1";
+pub const SCHEMA: &str = "iqaudit-report/2";
+
+/// Most decision-error runs listed per burst in `metrics.error_runs` (the first
+/// ones in payload order); `metrics.run_length_histogram` covers them all.
+pub const ERROR_RUNS_KEPT: usize = 256;
 
 /// A complex number as `[re, im]`.
 pub type Complex2 = [f64; 2];
@@ -115,8 +130,10 @@ pub struct BurstReport {
     pub equaliser: EqualiserReport,
     /// Figures of merit of the equalised payload.
     pub metrics: BurstMetrics,
-    /// Data for the plots (decimated so reports stay small).
-    pub trace: Trace,
+    /// Data for the plots (decimated so reports stay small); `null` for bursts
+    /// outside the traced set (the first `provenance.traced_bursts` bursts and
+    /// as many again with the largest RMS EVM).
+    pub trace: Option<Trace>,
     /// Burst-level warnings.
     pub warnings: Vec<Warning>,
 }
@@ -149,8 +166,10 @@ pub struct ChannelReport {
     pub image_level_db: Option<f64>,
     /// How the tap counts were chosen: `fixed` or `mdl`.
     pub span_choice: String,
-    /// Channel frequency response: `[f, |H(f)| dB]` with f in cycles/symbol from −0.5 to 0.5.
-    pub response_db: Vec<[f64; 2]>,
+    /// Channel frequency response: `[f, |H(f)| dB]` with f in cycles/symbol from
+    /// −0.5 to 0.5 (129 points); `null` for bursts without a trace (it follows
+    /// from `taps`: `H(f) = Σ_k h[k]·exp(−j2πfk)`, k counted from the main tap).
+    pub response_db: Option<Vec<[f64; 2]>>,
 }
 
 /// Which equaliser ran and what it was expected to achieve.
@@ -197,12 +216,31 @@ pub struct BurstMetrics {
     pub ser: Option<ErrorRate>,
     /// Bit error rate with 95 % interval; `null` when the payload is unknown.
     pub ber: Option<ErrorRate>,
-    /// Runs of consecutive decision errors (payload symbol index, length); empty when unknown.
+    /// Runs of consecutive decision errors (payload symbol index, length), the
+    /// first [`ERROR_RUNS_KEPT`] in payload order; empty when unknown.
+    /// `run_length_histogram` covers every run.
     pub error_runs: Vec<ErrorRun>,
-    /// Entry i counts error runs of length i + 1.
+    /// Entry i counts error runs of length i + 1, over every run of the burst
+    /// (its sum is the number of runs, its length the longest run).
     pub run_length_histogram: Vec<u64>,
     /// DFE errors against the genie DFE fed true symbols; `null` when the payload is unknown.
     pub error_propagation: Option<ErrorPropagation>,
+}
+
+impl BurstMetrics {
+    /// Number of decision-error runs in the burst (the sum of the histogram;
+    /// `error_runs` may list fewer).
+    pub fn error_run_count(&self) -> u64 {
+        self.run_length_histogram.iter().sum()
+    }
+
+    /// Length of the longest decision-error run, symbols (0 without errors).
+    pub fn longest_error_run(&self) -> usize {
+        self.run_length_histogram
+            .iter()
+            .rposition(|&n| n > 0)
+            .map_or(0, |i| i + 1)
+    }
 }
 
 /// Decimated data the plots are drawn from.
@@ -289,6 +327,9 @@ pub struct Provenance {
     pub format_override: Option<String>,
     /// Sample rate given on the command line, Hz, if any.
     pub sample_rate_override_hz: Option<f64>,
+    /// Trace selection: the first this-many bursts and the this-many with the
+    /// largest RMS EVM carry a `trace` (see [`BurstReport::trace`]).
+    pub traced_bursts: usize,
     /// Detection threshold actually used (the profile's, or the one derived from the false-alarm target).
     pub threshold: f64,
     /// Command that re-runs the analysis and compares every figure.

@@ -84,7 +84,7 @@ fn burst_lines(out: &mut String, b: &BurstReport, st: &Style) {
         opt(e.linear_mmse_evm_percent, 2, " %"),
     );
     if let Some(ser) = &m.ser {
-        let longest = m.error_runs.iter().map(|r| r.length).max().unwrap_or(0);
+        let longest = m.longest_error_run();
         let _ = writeln!(
             out,
             "       errors: {} of {} symbols (SER {:.2e}, 95 % {:.1e}…{:.1e}), {} runs, longest {}",
@@ -93,7 +93,7 @@ fn burst_lines(out: &mut String, b: &BurstReport, st: &Style) {
             ser.rate,
             ser.ci_low,
             ser.ci_high,
-            m.error_runs.len(),
+            m.error_run_count(),
             longest
         );
     }
@@ -144,6 +144,15 @@ pub fn render(report: &Report, colour: bool) -> String {
             out,
             "  … {} more bursts in the JSON report",
             report.bursts.len() - SHOWN
+        );
+    }
+    let traced = report.bursts.iter().filter(|b| b.trace.is_some()).count();
+    if traced < report.bursts.len() {
+        let k = report.provenance.traced_bursts;
+        let _ = writeln!(
+            out,
+            "  plot traces kept for {traced} of {} bursts (the first {k} and the {k} worst by EVM)",
+            report.bursts.len()
         );
     }
     let s = &report.summary;

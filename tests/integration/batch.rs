@@ -70,6 +70,7 @@ fn minimal_report(path: &Path, result: VerdictResult, profile_sha: &str) -> Repo
             profile_sha256: profile_sha.to_string(),
             format_override: None,
             sample_rate_override_hz: None,
+            traced_bursts: 8,
             threshold: 0.5,
             recheck: "iqaudit recheck".into(),
         },

@@ -9,6 +9,7 @@ mod bad_inputs;
 mod batch;
 mod batch_cli;
 mod batch_kill;
+mod bounded_memory;
 mod capture_formats;
 mod fuzz_seeds;
 mod info_cli;
