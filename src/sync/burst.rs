@@ -13,11 +13,10 @@ use std::ops::Range;
 
 use super::timing::{best_instant, interpolate_with, sinc_weights, SINC_HALF};
 use super::{
-    cfo, read_padded, rotation, BurstSync, Detection, SampleSource, SymbolSpan, SyncError,
-    Synchroniser,
+    cfo, derotate_run, read_padded, rotation, BurstSync, Detection, SampleSource, SymbolSpan,
+    SyncError, Synchroniser,
 };
 use crate::channel::{fit_channel, ChannelFitConfig, TapSpan};
-use crate::signal::rrc::matched_filter_into;
 use crate::{Cf32, Cf64};
 
 /// Symbols processed per piece in [`Synchroniser::extract_symbols`] (bounds memory).
@@ -42,13 +41,17 @@ impl Synchroniser {
         let mut x = vec![Cf32::new(0.0, 0.0); count + self.pulse.len() - 1];
         let start = first - d as i64;
         read_padded(src, start, &mut x)?;
-        for (i, v) in x.iter_mut().enumerate() {
-            *v *= rotation(-f, (start + i as i64) as f64 - t_ref);
+        derotate_run(&mut x, -f, |i| (start + i as i64) as f64 - t_ref);
+        // Only the `count` outputs with the whole pulse inside `x` are needed:
+        // `y[k] = Σ_m pulse[m]·x[k+m]`, accumulated tap by tap across all outputs
+        // (vectorises over k; each output still sums its terms in tap order, as
+        // `matched_filter_at` does, so the values are the same).
+        let mut y = vec![Cf32::new(0.0, 0.0); count];
+        for (m, &h) in self.pulse.iter().enumerate() {
+            for (o, &v) in y.iter_mut().zip(&x[m..m + count]) {
+                *o += v * h;
+            }
         }
-        let mut y = vec![Cf32::new(0.0, 0.0); x.len()];
-        matched_filter_into(&x, &self.pulse, &mut y);
-        y.truncate(d + count);
-        y.drain(..d);
         Ok(y)
     }
 

@@ -761,3 +761,29 @@ fn metric_matches_a_direct_per_lag_computation_and_any_sub_range_gives_identical
         assert_eq!(part, m[range.clone()].to_vec(), "range {range:?}");
     }
 }
+
+#[test]
+fn anchored_phasor_derotation_matches_a_sin_cos_per_sample() {
+    // Slow twin of `derotate_run`: `rotation` (one f64 sin_cos per sample).
+    // Tolerance 2e-7 on unit-magnitude samples: the f32 rounding of the phasor
+    // (2⁻²⁴ ≈ 6e-8 per component) plus the f64 recurrence error between anchors
+    // (≈ 32 steps × a few 2⁻⁵³), i.e. the results agree to f32 precision.
+    for &f in &[0.0, 1e-6, -3.7e-3, 0.01, 0.25, -0.4999] {
+        for &m0 in &[0.0, -123.25, 1.0e8 + 0.5] {
+            for n in [0usize, 1, 31, 32, 33, 1000] {
+                let x: Vec<Cf32> = (0..n)
+                    .map(|k| Cf32::from_polar(1.0, k as f32 * 0.37))
+                    .collect();
+                let mut fast = x.clone();
+                derotate_run(&mut fast, f, |i| m0 + i as f64);
+                for (k, (a, v)) in fast.iter().zip(&x).enumerate() {
+                    let want = *v * rotation(f, m0 + k as f64);
+                    assert!(
+                        (a - want).norm() <= 2e-7,
+                        "f={f} m0={m0} n={n} k={k}: {a} vs {want}"
+                    );
+                }
+            }
+        }
+    }
+}
