@@ -167,8 +167,13 @@ pub fn run_analyse(args: &AnalyseArgs, argv: &[String]) -> Result<Outcome, Error
             .install(run)?,
         None => run()?,
     };
-    let json =
-        iqaudit::report::provenance::report_json(&report).map_err(|e| stdout_err(e.into()))?;
+    // Serialise only when a JSON form is asked for (a file or stdout): on a
+    // capture with thousands of bursts it is a noticeable share of the run.
+    let json = if args.report.is_some() || args.json {
+        iqaudit::report::provenance::report_json(&report).map_err(|e| stdout_err(e.into()))?
+    } else {
+        Vec::new()
+    };
     if let Some(r) = &args.report {
         write_atomic(r, &json)?;
     }
