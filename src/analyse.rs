@@ -432,6 +432,16 @@ pub fn analyse_capture(
                     analyse_burst(k, &bs, &plan, profile, &sync, &src, &capture)
                 })
                 .collect::<Result<Vec<_>, Error>>()?;
+            // Burst reads are small and leave their pages mapped; let this
+            // batch's stretch of the capture go in one call (generously
+            // padded: releasing too much only costs a re-read from the cache).
+            if let (Some(first), Some(last)) = (batch.first(), batch.last()) {
+                let pad = 2 * (plan.frame_symbols() + 2 * plan.margin) * plan.sps + 4096;
+                capture.release_samples(
+                    first.start_sample.saturating_sub(pad),
+                    last.start_sample.saturating_add(pad),
+                );
+            }
             // In index order, so `bursts[i].index == i`.
             for mut r in done {
                 cap_error_runs(&mut r.metrics);

@@ -450,6 +450,11 @@ pub struct Capture {
     sidecar: Option<PathBuf>,
 }
 
+/// Reads at least this long release their mapped pages at once (see
+/// [`Capture::read_into`]); shorter ones leave that to
+/// [`Capture::release_samples`].
+pub const RELEASE_MIN_READ_BYTES: usize = 256 << 10;
+
 impl Capture {
     /// Open the capture at `path`, memory-mapping it (falls back to buffered reads
     /// when mapping fails). See the module doc for how the format is resolved.
@@ -713,14 +718,34 @@ impl Capture {
                 })?,
         };
         // The samples are decoded into `out`: let the mapped pages go, so
-        // that a pass over the whole capture does not keep it resident.
-        self.source.release(offset, out.len() * bps);
+        // that a pass over the whole capture does not keep it resident. Only
+        // for large (sequential) reads: releasing costs a system call and, with
+        // other threads running, a TLB shootdown, so the many small reads of
+        // burst analysis are released in bulk by the caller
+        // ([`release_samples`](Self::release_samples)).
+        if out.len() * bps >= RELEASE_MIN_READ_BYTES {
+            self.source.release(offset, out.len() * bps);
+        }
         if self.swap_iq {
             for s in out.iter_mut() {
                 *s = Cf32::new(s.im, s.re);
             }
         }
         Ok(stats)
+    }
+
+    /// Let the process's mapping of samples `[start, end)` go (clamped to the
+    /// capture): a hint that they will not be read again soon. The samples stay
+    /// readable — the next read maps the same cached pages again — so calling
+    /// this is never wrong, only possibly slower. A no-op unless memory-mapped.
+    pub fn release_samples(&self, start: usize, end: usize) {
+        let end = end.min(self.len);
+        if start >= end {
+            return;
+        }
+        let bps = self.container.bytes_per_sample() as u64;
+        let offset = self.data_offset + start as u64 * bps;
+        self.source.release(offset, (end - start) * bps as usize);
     }
 
     /// Check that samples `[start, end)` are still in the file: a memory-mapped
