@@ -24,10 +24,39 @@ use crate::Cf32;
 /// If `bytes.len() != out.len() * container.bytes_per_sample()` (a programming
 /// error in the caller, never an input error).
 pub(crate) fn decode(container: Container, bytes: &[u8], out: &mut [Cf32]) -> ReadStats {
-    let need = out.len() * container.bytes_per_sample();
+    let bps = container.bytes_per_sample();
+    let need = out.len() * bps;
     if bytes.len() != need {
         length_mismatch(bytes.len(), need);
     }
+    // Block by block, each block's bytes touched first (see `touch_bytes`).
+    // Block boundaries are whole samples and multiples of the block size, so the
+    // alignment seen by the typed fast paths is that of `bytes` itself.
+    let mut stats = ReadStats::default();
+    for (b, o) in bytes.chunks(BLOCK * bps).zip(out.chunks_mut(BLOCK)) {
+        touch_bytes(b);
+        let st = decode_block(container, b, o);
+        stats.clipped += st.clipped;
+        stats.non_finite += st.non_finite;
+    }
+    stats
+}
+
+/// Read one byte of every cache line of `b` in a light loop of independent
+/// loads before the decode loop runs on it: on a memory-mapped capture this
+/// streams the block in at the memory's speed (many loads in flight), where
+/// the heavier decode loop alone leaves its loads waiting (measured on the
+/// development VM: cf32 from a cached map 234 → 440 M samples/s).
+#[inline(always)]
+fn touch_bytes(b: &[u8]) {
+    let mut acc = 0u8;
+    for line in b.chunks(64) {
+        acc ^= line[0];
+    }
+    std::hint::black_box(acc);
+}
+
+fn decode_block(container: Container, bytes: &[u8], out: &mut [Cf32]) -> ReadStats {
     match container {
         Container::Raw(SampleFormat::Cf32Le) | Container::Wav(WavEncoding::Float32) => {
             match bytemuck::try_cast_slice::<u8, [u32; 2]>(bytes) {
@@ -247,7 +276,14 @@ fn float_words(words: &[[u32; 2]], out: &mut [Cf32], order: impl Fn(u32) -> u32)
 /// zero-copy `cf32_le` view): same results, vectorised.
 pub(crate) fn check_floats(src: &[Cf32], out: &mut [Cf32]) -> ReadStats {
     let n = src.len().min(out.len());
-    float_words(bytemuck::cast_slice(&src[..n]), &mut out[..n], |w| w)
+    let mut stats = ReadStats::default();
+    for (s, o) in src[..n].chunks(BLOCK).zip(out[..n].chunks_mut(BLOCK)) {
+        touch_bytes(bytemuck::cast_slice(s));
+        let st = float_words(bytemuck::cast_slice(s), o, |w| w);
+        stats.clipped += st.clipped;
+        stats.non_finite += st.non_finite;
+    }
+    stats
 }
 
 /// Float layouts: non-finite → 0 and counted; `|x| ≥ 1` counted as clipped.
