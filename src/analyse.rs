@@ -71,8 +71,11 @@ pub const DEFAULT_TRACED_BURSTS: usize = 8;
 /// Largest accepted `K` (≈ 60 KiB of trace per burst: 2·1000 traces ≈ 120 MiB).
 pub const MAX_TRACED_BURSTS: usize = 1000;
 /// Bursts analysed in parallel before the traces outside the traced set are
-/// dropped; bounds the transient traces to this many.
-pub const BURST_BATCH: usize = 256;
+/// dropped and the batch's stretch of the mapped capture is released; bounds
+/// the transient traces to this many, and the capture pages the bursts' small
+/// reads keep mapped to this many bursts' worth (the kernel may map up to a
+/// 2 MiB page-cache folio around each read).
+pub const BURST_BATCH: usize = 64;
 
 /// Options of one analysis besides the profile (command-line overrides).
 #[derive(Debug, Clone, Default)]
