@@ -314,6 +314,9 @@ pub fn capture_stats(
         for p in parts {
             total.merge(&p?);
         }
+        // The zero-copy path reads the map directly: release what this batch
+        // of chunks touched (read_into releases its own large reads).
+        capture.release_samples(first * chunk, last * chunk);
         first = last;
     }
     let n = total.n.max(1) as f64;
@@ -410,9 +413,15 @@ pub fn welch_psd(
             },
             |(seg, scratch), g| {
                 let mut acc = vec![0.0f64; n];
-                for i in g * WELCH_GROUP..((g + 1) * WELCH_GROUP).min(m) {
+                let range = g * WELCH_GROUP..((g + 1) * WELCH_GROUP).min(m);
+                for i in range.clone() {
                     capture.read_into(start_of(i), seg)?;
                     add_periodogram(seg, &window, fft.as_ref(), scratch, &mut acc);
+                }
+                // Segment reads are small and keep their pages mapped: let the
+                // group's stretch of a mapped capture go in one call.
+                if let (Some(a), Some(b)) = (range.clone().next(), range.last()) {
+                    capture.release_samples(start_of(a), start_of(b) + n);
                 }
                 Ok(acc)
             },
