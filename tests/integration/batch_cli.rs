@@ -40,6 +40,23 @@ fn without_command(mut v: Value) -> Value {
     v
 }
 
+/// `iqaudit analyse CAPTURE --profile P --report DIR/single.report.json`, the
+/// report parsed (the single-capture run a batch report must equal).
+fn analyse_report(dir: &Path, capture: &Path, profile: &Path) -> Value {
+    let single = dir.join("single.report.json");
+    let a = iqaudit()
+        .arg("analyse")
+        .arg(capture)
+        .arg("--profile")
+        .arg(profile)
+        .arg("--report")
+        .arg(&single)
+        .output()
+        .unwrap();
+    assert!(a.status.code().is_some_and(|c| c <= 1), "{}", stderr_of(&a));
+    serde_json::from_slice(&fs::read(&single).unwrap()).unwrap()
+}
+
 #[test]
 fn batch_reports_equal_analyse_reports_and_bad_files_become_rows() {
     let dir = tempdir();
@@ -96,21 +113,10 @@ fn batch_reports_equal_analyse_reports_and_bad_files_become_rows() {
     }
 
     // The batch report is the analyse report (bar the recorded command line).
-    let single = dir.path().join("single.report.json");
-    let a = iqaudit()
-        .arg("analyse")
-        .arg(field.join("quay/crane-2.cf32"))
-        .arg("--profile")
-        .arg(&prof)
-        .arg("--report")
-        .arg(&single)
-        .output()
-        .unwrap();
-    assert!(a.status.code().is_some_and(|c| c <= 1), "{}", stderr_of(&a));
+    let from_analyse = analyse_report(dir.path(), &field.join("quay/crane-2.cf32"), &prof);
     let from_batch: Value =
         serde_json::from_slice(&fs::read(out.join("quay/crane-2.cf32.report.json")).unwrap())
             .unwrap();
-    let from_analyse: Value = serde_json::from_slice(&fs::read(&single).unwrap()).unwrap();
     assert_eq!(without_command(from_batch), without_command(from_analyse));
 
     // A second run reuses both reports and writes the same summary.
@@ -243,20 +249,9 @@ fn a_capture_changed_in_place_is_hashed_once_and_its_report_is_what_analyse_writ
 
     // The report made with the passed-on digest is the one `analyse` makes
     // hashing the file itself (bar the recorded command line).
-    let single = dir.path().join("single.report.json");
-    let a = iqaudit()
-        .arg("analyse")
-        .arg(&capture)
-        .arg("--profile")
-        .arg(&prof)
-        .arg("--report")
-        .arg(&single)
-        .output()
-        .unwrap();
-    assert!(a.status.code().is_some_and(|c| c <= 1), "{}", stderr_of(&a));
+    let from_analyse = analyse_report(dir.path(), &capture, &prof);
     let from_batch: Value =
         serde_json::from_slice(&fs::read(out.join("crane-7.ci16.report.json")).unwrap()).unwrap();
-    let from_analyse: Value = serde_json::from_slice(&fs::read(&single).unwrap()).unwrap();
     assert_eq!(
         without_command(from_batch.clone()),
         without_command(from_analyse)
