@@ -92,6 +92,11 @@ pub struct AnalyseOptions {
     /// `K` of the traced set (`--traced-bursts`); `None` means
     /// [`DEFAULT_TRACED_BURSTS`]. At most [`MAX_TRACED_BURSTS`].
     pub traced_bursts: Option<usize>,
+    /// Do not hash the file (when `input_sha256` is `None`): the report's
+    /// `input.sha256` is then the empty string. For callers that will not write
+    /// or show the report's JSON (the terminal summary has no digest), where the
+    /// hash would be a whole second pass over the capture for nothing.
+    pub skip_input_hash: bool,
 }
 
 /// Which bursts keep their trace: the first `k` and the `k` worst by RMS EVM
@@ -390,7 +395,11 @@ pub fn analyse_capture(
     // The SHA-256 of the whole file is a second pass over it: run it beside the
     // search and the bursts (same bytes, same digest) instead of after them.
     let hash_path = path.to_path_buf();
-    let known = opts.input_sha256.clone();
+    let known = match (&opts.input_sha256, opts.skip_input_hash) {
+        (Some(d), _) => Some(d.clone()),
+        (None, true) => Some(String::new()),
+        (None, false) => None,
+    };
     let hasher = std::thread::spawn(move || known.map_or_else(|| sha256_file(&hash_path), Ok));
     let src = ChunkReader::new(capture.len(), |s, out: &mut [Cf32]| {
         capture.read_into(s, out).map(|_| ())
@@ -1275,6 +1284,7 @@ pub fn recheck(report_path: &Path) -> Result<RecheckResult, Error> {
         command: report.command.clone(),
         input_sha256: Some(found),
         traced_bursts: Some(report.provenance.traced_bursts),
+        skip_input_hash: false,
     };
     let recorded_path = report.input.path.clone();
     drop(report);

@@ -155,6 +155,9 @@ pub fn run_analyse(args: &AnalyseArgs, argv: &[String]) -> Result<Outcome, Error
         command: argv.to_vec(),
         input_sha256: None,
         traced_bursts: args.traced_bursts,
+        // The digest appears only in the JSON (file or stdout); the terminal
+        // summary and the plots do not show it.
+        skip_input_hash: args.report.is_none() && !args.json,
     };
     let run = || analyse_capture(&args.capture, &profile, &opts);
     let report = match args.jobs {

@@ -150,6 +150,7 @@ pub fn run_batch_cmd(args: &BatchArgs, argv: &[String]) -> Result<Outcome, Error
         command: argv.to_vec(),
         input_sha256: None,
         traced_bursts: None,
+        skip_input_hash: false,
     };
     let outcome = run_batch(&opts, |p, known_sha256| {
         // A digest the resume check already computed is passed through, so the

@@ -308,14 +308,19 @@ pub(crate) fn read_padded<S: SampleSource + ?Sized>(
     start: i64,
     out: &mut [Cf32],
 ) -> Result<(), SyncError> {
-    out.fill(Cf32::new(0.0, 0.0));
+    let zero = Cf32::new(0.0, 0.0);
     let len = src.len() as i64;
     let lo = start.max(0);
     let hi = (start + out.len() as i64).min(len);
     if lo < hi {
+        // Zero only the padding: the read overwrites the rest.
         let a = (lo - start) as usize;
         let b = (hi - start) as usize;
+        out[..a].fill(zero);
+        out[b..].fill(zero);
         src.read(lo as usize, &mut out[a..b])?;
+    } else {
+        out.fill(zero);
     }
     Ok(())
 }

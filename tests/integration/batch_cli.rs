@@ -289,3 +289,35 @@ fn a_digest_given_to_analyse_is_recorded_as_given_instead_of_rehashing() {
     given.input.sha256.clone_from(&own.input.sha256);
     assert_eq!(given, own, "the digest changes nothing else");
 }
+
+#[test]
+fn analyse_skips_the_digest_only_when_no_json_is_written() {
+    // The terminal summary carries no digest, so `analyse` without --report/--json
+    // does not hash the file; the JSON forms always carry it. Reference: sha2's
+    // own digest of the file (FIPS 180-4), via `batch::sha256_file`.
+    let dir = tempdir();
+    let prof = profile(dir.path());
+    let capture = dir.path().join("crane-8.ci16");
+    synth(&prof, &capture, "22");
+    let profile = iqaudit::profile::load_profile(&prof).unwrap();
+    let skip = iqaudit::analyse::AnalyseOptions {
+        skip_input_hash: true,
+        ..Default::default()
+    };
+    let mut skipped = iqaudit::analyse::analyse_capture(&capture, &profile, &skip).unwrap();
+    assert_eq!(skipped.input.sha256, "");
+    let own = iqaudit::analyse::analyse_capture(&capture, &profile, &Default::default()).unwrap();
+    let digest = iqaudit::batch::sha256_file(&capture).unwrap();
+    assert_eq!(own.input.sha256, digest);
+    skipped.input.sha256.clone_from(&own.input.sha256);
+    assert_eq!(skipped, own, "skipping the digest changes nothing else");
+    let out = iqaudit()
+        .args(["analyse", capture.to_str().unwrap(), "--profile"])
+        .arg(&prof)
+        .arg("--json")
+        .output()
+        .unwrap();
+    assert!(out.status.success(), "{}", stderr_of(&out));
+    let v: Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(v["input"]["sha256"], serde_json::json!(digest));
+}
