@@ -142,15 +142,20 @@ impl TraceSelection {
         }
     }
 
-    /// Offer burst `index` with RMS EVM `evm`; returns the index of a burst
-    /// (possibly this one) that has just left the traced set for good.
-    fn offer(&mut self, index: usize, evm: f64) -> Option<usize> {
+    /// Offer burst `index` with RMS EVM `evm`.
+    fn offer(&mut self, index: usize, evm: f64) {
         self.worst.insert(Badness { evm, index });
-        if self.worst.len() <= self.k {
-            return None;
+        if self.worst.len() > self.k {
+            self.worst.pop_first();
         }
-        let out = self.worst.pop_first()?;
-        (out.index >= self.k).then_some(out.index)
+    }
+
+    /// The traced set once all `n` bursts are offered, in increasing index order:
+    /// bursts `0..k` and the `k` worst.
+    fn members(&self, n: usize) -> Vec<usize> {
+        let mut v: std::collections::BTreeSet<usize> = (0..self.k.min(n)).collect();
+        v.extend(self.worst.iter().map(|b| b.index));
+        v.into_iter().collect()
     }
 }
 
@@ -441,7 +446,7 @@ pub fn analyse_capture(
                 .map(|(j, det)| {
                     let k = b * BURST_BATCH + j;
                     let bs = sync.refine(&src, det)?;
-                    analyse_burst(k, &bs, &plan, profile, &sync, &src, &capture)
+                    analyse_burst(k, &bs, &plan, profile, &sync, &src, &capture, false)
                 })
                 .collect::<Result<Vec<_>, Error>>()?;
             // Burst reads are small and leave their pages mapped; let this
@@ -457,14 +462,27 @@ pub fn analyse_capture(
             // In index order, so `bursts[i].index == i`.
             for mut r in done {
                 cap_error_runs(&mut r.metrics);
-                let dropped = selection.offer(r.index, r.metrics.evm_rms_percent);
+                selection.offer(r.index, r.metrics.evm_rms_percent);
                 bursts.push(r);
-                if let Some(i) = dropped {
-                    if let Some(d) = bursts.get_mut(i) {
-                        d.trace = None;
-                        d.channel.response_db = None;
-                    }
-                }
+            }
+        }
+        // Traces only for the traced set, known once every burst is in: analyse
+        // those bursts again with the trace on. The analysis is deterministic, so
+        // the second run gives the very figures of the first; only the trace and
+        // the channel response are taken from it.
+        let traced: Vec<usize> = selection.members(bursts.len());
+        let details = traced
+            .par_iter()
+            .map(|&k| {
+                let bs = sync.refine(&src, &detections[k])?;
+                analyse_burst(k, &bs, &plan, profile, &sync, &src, &capture, true)
+            })
+            .collect::<Result<Vec<_>, Error>>()?;
+        for (k, d) in traced.into_iter().zip(details) {
+            if let Some(b) = bursts.get_mut(k) {
+                debug_assert_eq!(b.metrics.evm_rms_percent, d.metrics.evm_rms_percent);
+                b.trace = d.trace;
+                b.channel.response_db = d.channel.response_db;
             }
         }
         bursts
@@ -561,6 +579,7 @@ fn analyse_burst<S: SampleSource + ?Sized>(
     sync: &Synchroniser,
     src: &S,
     capture: &Capture,
+    detail: bool,
 ) -> Result<BurstReport, Error> {
     let mut warnings = Vec::new();
     let l = plan.training.len();
@@ -744,7 +763,7 @@ fn analyse_burst<S: SampleSource + ?Sized>(
     });
 
     let ch = &out.channel;
-    let channel = channel_report(ch);
+    let channel = channel_report(ch, detail);
     let main_power = ch.taps[ch.pre].norm_sqr();
     let strongest = ch.taps.iter().map(|t| t.norm_sqr()).fold(0.0, f64::max);
     if main_power < 0.5 * strongest {
@@ -791,16 +810,20 @@ fn analyse_burst<S: SampleSource + ?Sized>(
         error_runs: runs,
         error_propagation: propagation,
     };
-    let trace = Some(trace(
-        bs,
-        sync,
-        src,
-        plan,
-        &z,
-        &payload_numbers,
-        reference,
-        wrong,
-    )?);
+    let trace = if detail {
+        Some(trace(
+            bs,
+            sync,
+            src,
+            plan,
+            &z,
+            &payload_numbers,
+            reference,
+            wrong,
+        )?)
+    } else {
+        None
+    };
     Ok(BurstReport {
         index,
         start_sample: bs.start_sample.max(0) as u64,
@@ -848,7 +871,8 @@ fn pick<'a>(
 }
 
 /// Channel figures for the report.
-fn channel_report(ch: &crate::channel::ChannelEstimate) -> ChannelReport {
+/// The frequency response (`response_db`) only with `detail`.
+fn channel_report(ch: &crate::channel::ChannelEstimate, detail: bool) -> ChannelReport {
     let main = ch.taps[ch.pre].norm().max(1e-300);
     let powers: Vec<f64> = ch.taps.iter().map(|t| t.norm_sqr()).collect();
     let total: f64 = powers.iter().sum::<f64>().max(1e-300);
@@ -866,21 +890,23 @@ fn channel_report(ch: &crate::channel::ChannelEstimate) -> ChannelReport {
         / total)
         .sqrt();
     const GRID: usize = 128;
-    let response_db = (0..=GRID)
-        .map(|g| {
-            let f = g as f64 / GRID as f64 - 0.5;
-            let h: Cf64 = ch
-                .taps
-                .iter()
-                .enumerate()
-                .map(|(i, t)| {
-                    let k = i as f64 - ch.pre as f64;
-                    t * Cf64::from_polar(1.0, -2.0 * std::f64::consts::PI * f * k)
-                })
-                .sum();
-            [f, 20.0 * h.norm().max(1e-12).log10()]
-        })
-        .collect();
+    let response_db = detail.then(|| {
+        (0..=GRID)
+            .map(|g| {
+                let f = g as f64 / GRID as f64 - 0.5;
+                let h: Cf64 = ch
+                    .taps
+                    .iter()
+                    .enumerate()
+                    .map(|(i, t)| {
+                        let k = i as f64 - ch.pre as f64;
+                        t * Cf64::from_polar(1.0, -2.0 * std::f64::consts::PI * f * k)
+                    })
+                    .sum();
+                [f, 20.0 * h.norm().max(1e-12).log10()]
+            })
+            .collect()
+    });
     ChannelReport {
         taps: ch.taps.iter().map(|t| [t.re, t.im]).collect(),
         taps_db: ch
@@ -904,7 +930,7 @@ fn channel_report(ch: &crate::channel::ChannelEstimate) -> ChannelReport {
             SpanChoice::Fixed => "fixed".into(),
             SpanChoice::Mdl { .. } => "mdl".into(),
         },
-        response_db: Some(response_db),
+        response_db,
     }
 }
 
@@ -1316,16 +1342,13 @@ mod tests {
         set.into_iter().collect()
     }
 
-    /// Offer every burst in `order`; the indices still traced at the end.
+    /// Offer every burst in `order`; the traced set at the end.
     fn streamed(evm: &[f64], k: usize, order: &[usize]) -> Vec<usize> {
         let mut sel = TraceSelection::new(k);
-        let mut traced = vec![true; evm.len()];
         for &i in order {
-            if let Some(d) = sel.offer(i, evm[i]) {
-                traced[d] = false;
-            }
+            sel.offer(i, evm[i]);
         }
-        (0..evm.len()).filter(|&i| traced[i]).collect()
+        sel.members(evm.len())
     }
 
     #[test]
@@ -1348,18 +1371,14 @@ mod tests {
     }
 
     #[test]
-    fn a_burst_dropped_from_the_traced_set_is_named_once_and_never_one_of_the_first_k() {
+    fn the_traced_set_of_a_worked_example_is_the_first_k_and_the_worst_k() {
         let evm = [9.0, 1.0, 2.0, 8.0, 3.0, 7.0, 0.5];
         let mut sel = TraceSelection::new(2);
-        let dropped: Vec<usize> = (0..evm.len())
-            .filter_map(|i| sel.offer(i, evm[i]))
-            .collect();
+        for (i, e) in evm.iter().enumerate() {
+            sel.offer(i, *e);
+        }
         // Worst two: 0 (9.0) and 3 (8.0); first two: 0, 1. Traced {0, 1, 3}:
         // worked by hand from the rule.
-        let mut sorted = dropped.clone();
-        sorted.sort_unstable();
-        sorted.dedup();
-        assert_eq!(sorted.len(), dropped.len());
-        assert_eq!(sorted, vec![2, 4, 5, 6]);
+        assert_eq!(sel.members(evm.len()), vec![0, 1, 3]);
     }
 }
