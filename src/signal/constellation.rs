@@ -201,18 +201,131 @@ enum Slicer {
     /// Sign of Re + Im (points on the diagonal).
     Bpsk,
     /// Per-axis rounding. `levels` levels per axis at ±1, ±3, … (×`scale`);
-    /// `i_label[idx]`/`q_label[idx]` hold that axis's bits already placed in the label.
+    /// `i_label[idx]`/`q_label[idx]` hold that axis's bits already placed in the label;
+    /// `i_value[idx]`/`q_value[idx]` the point's real/imaginary part at that level
+    /// (so the decided point needs no second lookup through the label).
     SquareQam {
         levels: usize,
         inv_scale: f32,
         i_label: Vec<usize>,
         q_label: Vec<usize>,
+        i_value: Vec<f32>,
+        q_value: Vec<f32>,
     },
     /// Sector lookup: sector `k` is centred on angle `offset_rad + k·2π/M`.
     Psk {
         offset_rad: f32,
         sector_label: Vec<usize>,
     },
+}
+
+/// A constellation's slicer with the scheme chosen once: hot loops that slice
+/// many symbols match on the kernel outside the loop and call the kernel's
+/// `decide` inside it (inlined, no per-symbol match). [`Constellation::slice`]
+/// goes through the same kernels, so both give the same label for every input.
+#[derive(Clone, Copy, Debug)]
+pub(crate) enum SliceKernel<'a> {
+    /// BPSK.
+    Bpsk(BpskKernel<'a>),
+    /// QPSK and square QAM.
+    SquareQam(QamKernel<'a>),
+    /// 8PSK.
+    Psk(PskKernel<'a>),
+}
+
+/// BPSK kernel: sign of the projection on the diagonal.
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct BpskKernel<'a> {
+    points: &'a [Cf32],
+}
+
+impl BpskKernel<'_> {
+    /// Label of the nearest point.
+    #[inline(always)]
+    pub(crate) fn slice(&self, z: Cf32) -> usize {
+        usize::from(z.re + z.im < 0.0)
+    }
+    /// Label and point of the nearest point.
+    #[inline(always)]
+    pub(crate) fn decide(&self, z: Cf32) -> (usize, Cf32) {
+        let l = self.slice(z);
+        (l, self.points[l & 1])
+    }
+}
+
+/// Square-QAM kernel: per-axis rounding and clamping to a level index.
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct QamKernel<'a> {
+    /// Levels per axis as f32 (`L`).
+    l: f32,
+    /// `L − 1` as f32.
+    max: f32,
+    inv_scale: f32,
+    i_label: &'a [usize],
+    q_label: &'a [usize],
+    i_value: &'a [f32],
+    q_value: &'a [f32],
+}
+
+impl QamKernel<'_> {
+    /// Level indices `(I, Q)` of the nearest point, each in `[0, L−1]`.
+    #[inline(always)]
+    fn indices(&self, z: Cf32) -> (usize, usize) {
+        // Level index = floor((x + L)/2) with x in grid units, clamped to [0, L−1].
+        // `f32::clamp` would keep NaN; `max(0).min(max)` maps NaN to 0. After
+        // the clamp the value is ≥ 0, where the truncating `as usize` is the
+        // floor (and no libm `floorf` call on targets without SSE4.1).
+        let ii = ((z.re * self.inv_scale + self.l) * 0.5)
+            .max(0.0)
+            .min(self.max) as usize;
+        let qi = ((z.im * self.inv_scale + self.l) * 0.5)
+            .max(0.0)
+            .min(self.max) as usize;
+        (ii, qi)
+    }
+    /// Label of the nearest point.
+    #[inline(always)]
+    pub(crate) fn slice(&self, z: Cf32) -> usize {
+        let (ii, qi) = self.indices(z);
+        self.i_label[ii] | self.q_label[qi]
+    }
+    /// Label and point of the nearest point (the point read per axis).
+    #[inline(always)]
+    pub(crate) fn decide(&self, z: Cf32) -> (usize, Cf32) {
+        let (ii, qi) = self.indices(z);
+        (
+            self.i_label[ii] | self.q_label[qi],
+            Cf32::new(self.i_value[ii], self.q_value[qi]),
+        )
+    }
+}
+
+/// PSK kernel: angle, sector, label.
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct PskKernel<'a> {
+    offset_rad: f32,
+    sector_label: &'a [usize],
+    points: &'a [Cf32],
+}
+
+impl PskKernel<'_> {
+    /// Label of the nearest point.
+    #[inline(always)]
+    pub(crate) fn slice(&self, z: Cf32) -> usize {
+        let m = self.sector_label.len();
+        let step = 2.0 * PI / m as f32;
+        let theta = z.im.atan2(z.re) - self.offset_rad;
+        let k = (theta / step).round();
+        // `as i64` saturates and maps NaN to 0; rem_euclid keeps it in range.
+        let k = (k as i64).rem_euclid(m as i64) as usize;
+        self.sector_label[k]
+    }
+    /// Label and point of the nearest point.
+    #[inline(always)]
+    pub(crate) fn decide(&self, z: Cf32) -> (usize, Cf32) {
+        let l = self.slice(z);
+        (l, self.points[l])
+    }
 }
 
 /// A constellation: its points indexed by label and an O(1) slicer.
@@ -274,6 +387,8 @@ impl Constellation {
         let mut points = Vec::with_capacity(order);
         let mut i_label = vec![0usize; levels];
         let mut q_label = vec![0usize; levels];
+        let mut i_value = vec![0f32; levels];
+        let mut q_value = vec![0f32; levels];
         for label in 0..order {
             // Split label bits b0 b1 b2 … (MSB first) into I = b0 b2 …, Q = b1 b3 ….
             let (mut ib, mut qb) = (0usize, 0usize);
@@ -283,12 +398,15 @@ impl Constellation {
             }
             let li = axis_level(ib, k);
             let lq = axis_level(qb, k);
-            points.push(Cf32::new(li as f32 * scale, lq as f32 * scale));
+            let point = Cf32::new(li as f32 * scale, lq as f32 * scale);
+            points.push(point);
             // Level index: level −(L−1) → 0, …, +(L−1) → L−1.
             let idx_i = ((li + levels as i32 - 1) / 2) as usize;
             let idx_q = ((lq + levels as i32 - 1) / 2) as usize;
             i_label[idx_i] = label & Self::i_mask(bps);
             q_label[idx_q] = label & !Self::i_mask(bps) & (order - 1);
+            i_value[idx_i] = point.re;
+            q_value[idx_q] = point.im;
         }
         Constellation {
             modulation: m,
@@ -300,6 +418,8 @@ impl Constellation {
                 inv_scale: norm.sqrt() as f32,
                 i_label,
                 q_label,
+                i_value,
+                q_value,
             },
         }
     }
@@ -425,39 +545,47 @@ impl Constellation {
         }
     }
 
-    /// Label of the point nearest to `z` (Euclidean), O(1).
+    /// The slicer with the scheme chosen once (see [`SliceKernel`]).
     #[inline]
-    pub fn slice(&self, z: Cf32) -> usize {
+    pub(crate) fn kernel(&self) -> SliceKernel<'_> {
         match &self.slicer {
-            Slicer::Bpsk => usize::from(z.re + z.im < 0.0),
+            Slicer::Bpsk => SliceKernel::Bpsk(BpskKernel {
+                points: &self.points,
+            }),
             Slicer::SquareQam {
                 levels,
                 inv_scale,
                 i_label,
                 q_label,
-            } => {
-                let l = *levels as f32;
-                let max = (*levels - 1) as f32;
-                // Level index = floor((x + L)/2) with x in grid units, clamped to [0, L−1].
-                // `f32::clamp` would keep NaN; `max(0).min(max)` maps NaN to 0. After
-                // the clamp the value is ≥ 0, where the truncating `as usize` is the
-                // floor (and no libm `floorf` call on targets without SSE4.1).
-                let ii = ((z.re * inv_scale + l) * 0.5).max(0.0).min(max) as usize;
-                let qi = ((z.im * inv_scale + l) * 0.5).max(0.0).min(max) as usize;
-                i_label[ii] | q_label[qi]
-            }
+                i_value,
+                q_value,
+            } => SliceKernel::SquareQam(QamKernel {
+                l: *levels as f32,
+                max: (*levels - 1) as f32,
+                inv_scale: *inv_scale,
+                i_label,
+                q_label,
+                i_value,
+                q_value,
+            }),
             Slicer::Psk {
                 offset_rad,
                 sector_label,
-            } => {
-                let m = sector_label.len();
-                let step = 2.0 * PI / m as f32;
-                let theta = z.im.atan2(z.re) - offset_rad;
-                let k = (theta / step).round();
-                // `as i64` saturates and maps NaN to 0; rem_euclid keeps it in range.
-                let k = (k as i64).rem_euclid(m as i64) as usize;
-                sector_label[k]
-            }
+            } => SliceKernel::Psk(PskKernel {
+                offset_rad: *offset_rad,
+                sector_label,
+                points: &self.points,
+            }),
+        }
+    }
+
+    /// Label of the point nearest to `z` (Euclidean), O(1).
+    #[inline]
+    pub fn slice(&self, z: Cf32) -> usize {
+        match self.kernel() {
+            SliceKernel::Bpsk(k) => k.slice(z),
+            SliceKernel::SquareQam(k) => k.slice(z),
+            SliceKernel::Psk(k) => k.slice(z),
         }
     }
 
@@ -804,6 +932,54 @@ mod tests {
                 Cf32::new(0.0, 0.0),
             ] {
                 assert!(c.slice(z) < c.order());
+            }
+        }
+    }
+
+    #[test]
+    fn kernel_decide_gives_the_slice_label_and_its_point_for_every_input() {
+        // Reference: `slice` (checked against brute force above) and `points()[label]`;
+        // the per-axis point tables must reproduce the point exactly (bit for bit),
+        // including for non-finite and far-out inputs. Source: common practice
+        // (fast path against the plain path).
+        let mut rng = ChaCha8Rng::seed_from_u64(0x5eed_0002);
+        let specials = [
+            Cf32::new(f32::NAN, 0.0),
+            Cf32::new(0.0, f32::NAN),
+            Cf32::new(f32::INFINITY, f32::NEG_INFINITY),
+            Cf32::new(f32::MAX, -f32::MAX),
+            Cf32::new(0.0, 0.0),
+            Cf32::new(-0.0, 0.0),
+        ];
+        for c in all_constellations() {
+            let zs = specials
+                .iter()
+                .copied()
+                .chain(c.points().iter().copied())
+                .chain((0..20_000).map(|n| {
+                    let r = if n % 10 == 0 { 50.0 } else { 1.6 };
+                    Cf32::new(rng.gen_range(-r..r), rng.gen_range(-r..r))
+                }));
+            for z in zs {
+                let (label, point) = match c.kernel() {
+                    SliceKernel::Bpsk(k) => k.decide(z),
+                    SliceKernel::SquareQam(k) => k.decide(z),
+                    SliceKernel::Psk(k) => k.decide(z),
+                };
+                assert_eq!(label, c.slice(z), "{:?} z={z}", c.modulation());
+                let want = c.points()[label];
+                assert_eq!(
+                    point.re.to_bits(),
+                    want.re.to_bits(),
+                    "{:?}",
+                    c.modulation()
+                );
+                assert_eq!(
+                    point.im.to_bits(),
+                    want.im.to_bits(),
+                    "{:?}",
+                    c.modulation()
+                );
             }
         }
     }
