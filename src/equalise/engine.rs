@@ -41,7 +41,7 @@ impl Decide for BpskKernel<'_> {
     }
 }
 
-impl Decide for QamKernel<'_> {
+impl<const T: usize> Decide for QamKernel<'_, T> {
     #[inline(always)]
     fn decide(&self, z: Cf32) -> (usize, Cf32) {
         QamKernel::decide(self, z)
@@ -74,7 +74,19 @@ macro_rules! with_decider {
     ($slicer:expr, |$k:ident| $body:expr) => {{
         let slicer: &dyn $crate::equalise::Slicer = $slicer;
         match slicer.as_constellation().map(|c| c.kernel()) {
-            Some($crate::signal::constellation::SliceKernel::SquareQam(q)) => {
+            Some($crate::signal::constellation::SliceKernel::Qam3(q)) => {
+                let $k = &q;
+                $body
+            }
+            Some($crate::signal::constellation::SliceKernel::Qam1(q)) => {
+                let $k = &q;
+                $body
+            }
+            Some($crate::signal::constellation::SliceKernel::Qam7(q)) => {
+                let $k = &q;
+                $body
+            }
+            Some($crate::signal::constellation::SliceKernel::QamFormula(q)) => {
                 let $k = &q;
                 $body
             }

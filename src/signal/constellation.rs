@@ -211,6 +211,9 @@ enum Slicer {
         q_label: Vec<usize>,
         i_value: Vec<f32>,
         q_value: Vec<f32>,
+        /// `thresholds[j − 1]`: the smallest f32 the rounding formula puts at
+        /// level index ≥ `j` (see [`QamKernel`]).
+        thresholds: Vec<f32>,
     },
     /// Sector lookup: sector `k` is centred on angle `offset_rad + k·2π/M`.
     Psk {
@@ -227,8 +230,14 @@ enum Slicer {
 pub(crate) enum SliceKernel<'a> {
     /// BPSK.
     Bpsk(BpskKernel<'a>),
-    /// QPSK and square QAM.
-    SquareQam(QamKernel<'a>),
+    /// QPSK (one threshold per axis).
+    Qam1(QamKernel<'a, 1>),
+    /// 16-QAM (three thresholds per axis).
+    Qam3(QamKernel<'a, 3>),
+    /// 64-QAM (seven thresholds per axis).
+    Qam7(QamKernel<'a, 7>),
+    /// Square QAM by the rounding formula (256-QAM).
+    QamFormula(QamKernel<'a, 0>),
     /// 8PSK.
     Psk(PskKernel<'a>),
 }
@@ -253,46 +262,105 @@ impl BpskKernel<'_> {
     }
 }
 
-/// Square-QAM kernel: per-axis rounding and clamping to a level index.
+/// Square-QAM kernel: per-axis level index, then table lookups.
+///
+/// The level index is defined by the rounding formula
+/// `floor((x·inv_scale + L)/2)` clamped to `[0, L−1]` ([`QamKernel::index_by_formula`]).
+/// With `T = L − 1 > 0` it is found instead by counting the `T` thresholds
+/// `x` reaches: the formula is a non-decreasing function of `x`, so its value
+/// is the number of `j ≥ 1` whose threshold (the smallest f32 the formula puts at
+/// ≥ `j`, found by bisection when the constellation is built) is ≤ `x` — the
+/// same index for every input, NaN included (no comparison holds: index 0, as
+/// the formula's `max(0)` gives), with a much shorter dependency chain than
+/// multiply, add, clamp and convert. `T = 0` uses the formula.
 #[derive(Clone, Copy, Debug)]
-pub(crate) struct QamKernel<'a> {
+pub(crate) struct QamKernel<'a, const T: usize> {
     /// Levels per axis as f32 (`L`).
     l: f32,
     /// `L − 1` as f32.
     max: f32,
     inv_scale: f32,
+    thresholds: [f32; T],
     i_label: &'a [usize],
     q_label: &'a [usize],
     i_value: &'a [f32],
     q_value: &'a [f32],
 }
 
-impl QamKernel<'_> {
-    /// Level indices `(I, Q)` of the nearest point, each in `[0, L−1]`.
+/// Level index of one axis value by the rounding formula (see [`QamKernel`]).
+#[inline(always)]
+fn qam_index_by_formula(x: f32, inv_scale: f32, l: f32, max: f32) -> usize {
+    // Level index = floor((x + L)/2) with x in grid units, clamped to [0, L−1].
+    // `f32::clamp` would keep NaN; `max(0).min(max)` maps NaN to 0. After
+    // the clamp the value is ≥ 0, where the truncating `as usize` is the
+    // floor (and no libm `floorf` call on targets without SSE4.1).
+    ((x * inv_scale + l) * 0.5).max(0.0).min(max) as usize
+}
+
+/// `thresholds[j − 1]` of [`QamKernel`] for `j = 1..levels`: the smallest f32
+/// `x` with `qam_index_by_formula(x) ≥ j`, by bisection over the f32 values in
+/// order (the formula is non-decreasing in `x`).
+fn qam_thresholds(levels: usize, inv_scale: f32) -> Vec<f32> {
+    // Order-preserving map between f32 (not NaN) and i64.
+    let key = |x: f32| -> i64 {
+        let b = x.to_bits();
+        if b >> 31 == 1 {
+            -i64::from(b & 0x7fff_ffff)
+        } else {
+            i64::from(b)
+        }
+    };
+    let value = |k: i64| -> f32 {
+        if k < 0 {
+            f32::from_bits((-k) as u32 | 0x8000_0000)
+        } else {
+            f32::from_bits(k as u32)
+        }
+    };
+    let l = levels as f32;
+    let max = (levels - 1) as f32;
+    let f = |x: f32| qam_index_by_formula(x, inv_scale, l, max);
+    (1..levels)
+        .map(|j| {
+            // f(−∞) = 0 < j ≤ L − 1 = f(+∞): invariant f(lo) < j ≤ f(hi).
+            let (mut lo, mut hi) = (key(f32::NEG_INFINITY), key(f32::INFINITY));
+            while hi - lo > 1 {
+                let mid = lo + (hi - lo) / 2;
+                if f(value(mid)) >= j {
+                    hi = mid;
+                } else {
+                    lo = mid;
+                }
+            }
+            value(hi)
+        })
+        .collect()
+}
+
+impl<const T: usize> QamKernel<'_, T> {
+    /// Level index of one axis value by the rounding formula.
     #[inline(always)]
-    fn indices(&self, z: Cf32) -> (usize, usize) {
-        // Level index = floor((x + L)/2) with x in grid units, clamped to [0, L−1].
-        // `f32::clamp` would keep NaN; `max(0).min(max)` maps NaN to 0. After
-        // the clamp the value is ≥ 0, where the truncating `as usize` is the
-        // floor (and no libm `floorf` call on targets without SSE4.1).
-        let ii = ((z.re * self.inv_scale + self.l) * 0.5)
-            .max(0.0)
-            .min(self.max) as usize;
-        let qi = ((z.im * self.inv_scale + self.l) * 0.5)
-            .max(0.0)
-            .min(self.max) as usize;
-        (ii, qi)
+    pub(crate) fn index_by_formula(&self, x: f32) -> usize {
+        qam_index_by_formula(x, self.inv_scale, self.l, self.max)
+    }
+    /// Level index of one axis value (thresholds when `T > 0`).
+    #[inline(always)]
+    fn index(&self, x: f32) -> usize {
+        if T == 0 {
+            self.index_by_formula(x)
+        } else {
+            self.thresholds.iter().map(|&t| usize::from(x >= t)).sum()
+        }
     }
     /// Label of the nearest point.
     #[inline(always)]
     pub(crate) fn slice(&self, z: Cf32) -> usize {
-        let (ii, qi) = self.indices(z);
-        self.i_label[ii] | self.q_label[qi]
+        self.i_label[self.index(z.re)] | self.q_label[self.index(z.im)]
     }
     /// Label and point of the nearest point (the point read per axis).
     #[inline(always)]
     pub(crate) fn decide(&self, z: Cf32) -> (usize, Cf32) {
-        let (ii, qi) = self.indices(z);
+        let (ii, qi) = (self.index(z.re), self.index(z.im));
         (
             self.i_label[ii] | self.q_label[qi],
             Cf32::new(self.i_value[ii], self.q_value[qi]),
@@ -420,6 +488,7 @@ impl Constellation {
                 q_label,
                 i_value,
                 q_value,
+                thresholds: qam_thresholds(levels, norm.sqrt() as f32),
             },
         }
     }
@@ -559,15 +628,40 @@ impl Constellation {
                 q_label,
                 i_value,
                 q_value,
-            } => SliceKernel::SquareQam(QamKernel {
-                l: *levels as f32,
-                max: (*levels - 1) as f32,
-                inv_scale: *inv_scale,
-                i_label,
-                q_label,
-                i_value,
-                q_value,
-            }),
+                thresholds,
+            } => {
+                fn make<'a, const T: usize>(
+                    levels: usize,
+                    inv_scale: f32,
+                    thresholds: [f32; T],
+                    tables: [&'a [usize]; 2],
+                    values: [&'a [f32]; 2],
+                ) -> QamKernel<'a, T> {
+                    QamKernel {
+                        l: levels as f32,
+                        max: (levels - 1) as f32,
+                        inv_scale,
+                        thresholds,
+                        i_label: tables[0],
+                        q_label: tables[1],
+                        i_value: values[0],
+                        q_value: values[1],
+                    }
+                }
+                let (n, s) = (*levels, *inv_scale);
+                let t = [&i_label[..], &q_label[..]];
+                let v = [&i_value[..], &q_value[..]];
+                let th = &thresholds[..];
+                if let Ok(a) = <[f32; 1]>::try_from(th) {
+                    SliceKernel::Qam1(make(n, s, a, t, v))
+                } else if let Ok(a) = <[f32; 3]>::try_from(th) {
+                    SliceKernel::Qam3(make(n, s, a, t, v))
+                } else if let Ok(a) = <[f32; 7]>::try_from(th) {
+                    SliceKernel::Qam7(make(n, s, a, t, v))
+                } else {
+                    SliceKernel::QamFormula(make(n, s, [], t, v))
+                }
+            }
             Slicer::Psk {
                 offset_rad,
                 sector_label,
@@ -584,7 +678,10 @@ impl Constellation {
     pub fn slice(&self, z: Cf32) -> usize {
         match self.kernel() {
             SliceKernel::Bpsk(k) => k.slice(z),
-            SliceKernel::SquareQam(k) => k.slice(z),
+            SliceKernel::Qam1(k) => k.slice(z),
+            SliceKernel::Qam3(k) => k.slice(z),
+            SliceKernel::Qam7(k) => k.slice(z),
+            SliceKernel::QamFormula(k) => k.slice(z),
             SliceKernel::Psk(k) => k.slice(z),
         }
     }
@@ -963,7 +1060,10 @@ mod tests {
             for z in zs {
                 let (label, point) = match c.kernel() {
                     SliceKernel::Bpsk(k) => k.decide(z),
-                    SliceKernel::SquareQam(k) => k.decide(z),
+                    SliceKernel::Qam1(k) => k.decide(z),
+                    SliceKernel::Qam3(k) => k.decide(z),
+                    SliceKernel::Qam7(k) => k.decide(z),
+                    SliceKernel::QamFormula(k) => k.decide(z),
                     SliceKernel::Psk(k) => k.decide(z),
                 };
                 assert_eq!(label, c.slice(z), "{:?} z={z}", c.modulation());
@@ -982,6 +1082,65 @@ mod tests {
                 );
             }
         }
+    }
+
+    #[test]
+    fn qam_threshold_count_gives_the_formula_level_index_for_every_input() {
+        // Reference: the rounding formula (`index_by_formula`, the slicer's
+        // definition). Exact equality, checked on both sides of every threshold
+        // (the neighbouring f32 values), at specials and on a random sweep.
+        // Source: common practice (fast path against the plain formula).
+        fn check<const T: usize>(k: &QamKernel<'_, T>, name: &str) {
+            let mut rng = ChaCha8Rng::seed_from_u64(0x5eed_0003);
+            let mut xs = vec![
+                f32::NAN,
+                -f32::NAN,
+                f32::INFINITY,
+                f32::NEG_INFINITY,
+                f32::MAX,
+                -f32::MAX,
+                0.0,
+                -0.0,
+                f32::MIN_POSITIVE,
+                -f32::MIN_POSITIVE,
+            ];
+            for &t in &k.thresholds {
+                let up = f32::from_bits(if t >= 0.0 {
+                    t.to_bits() + 1
+                } else {
+                    t.to_bits() - 1
+                });
+                let down = f32::from_bits(if t > 0.0 {
+                    t.to_bits() - 1
+                } else {
+                    t.to_bits() + 1
+                });
+                xs.extend([t, up, down]);
+            }
+            xs.extend((0..100_000).map(|n| {
+                let r = if n % 10 == 0 { 100.0 } else { 1.6 };
+                rng.gen_range(-r..r)
+            }));
+            for x in xs {
+                assert_eq!(k.index(x), k.index_by_formula(x), "{name} x={x:e}");
+            }
+        }
+        for c in all_constellations() {
+            let name = c.modulation().name();
+            match c.kernel() {
+                SliceKernel::Qam1(k) => check(&k, name),
+                SliceKernel::Qam3(k) => check(&k, name),
+                SliceKernel::Qam7(k) => check(&k, name),
+                SliceKernel::QamFormula(k) => check(&k, name),
+                SliceKernel::Bpsk(_) | SliceKernel::Psk(_) => {}
+            }
+        }
+        // Every square QAM but 256-QAM takes the threshold path.
+        let kinds: Vec<bool> = [Modulation::Qpsk, Modulation::Qam16, Modulation::Qam64]
+            .into_iter()
+            .map(|m| matches!(Constellation::new(m).kernel(), SliceKernel::QamFormula(_)))
+            .collect();
+        assert_eq!(kinds, [false, false, false]);
     }
 
     #[test]
