@@ -486,11 +486,13 @@ fn fixed_lanes<K: Decide>(lanes: &mut [FixedLane<'_>], cons: &K, scratch: &mut [
             feedforward_block(lane, sc, s0);
         }
         let m = BLOCK.min(longest - s0);
-        if let ([lane], [sc]) = (&mut *lanes, &mut *scratch) {
-            // One lane (the common single-pass case): no per-symbol lane test.
-            for k in 0..sc.m {
-                fixed_step(lane, sc, cons, s0, k);
-            }
+        let mut active = lanes
+            .iter_mut()
+            .zip(scratch.iter_mut())
+            .filter(|(_, sc)| sc.m > 0);
+        if let (Some((lane, sc)), None) = (active.next(), active.next()) {
+            // One lane in this block (a single pass, or the others have ended).
+            single_lane_block(lane, sc, cons, s0);
         } else {
             for k in 0..m {
                 for (lane, sc) in lanes.iter_mut().zip(scratch.iter_mut()) {
@@ -575,6 +577,78 @@ fn feedforward_block(lane: &FixedLane<'_>, sc: &mut PassScratch, s0: usize) {
             *oi += a * vi + b * vr;
         }
     }
+}
+
+/// The serial part of one block when a single lane runs: the same arithmetic
+/// as [`fixed_step`] in the same order, with the loop state and the newest
+/// fed-back symbol kept in locals (registers) rather than re-read from memory
+/// each symbol, which shortens the per-symbol dependency chain.
+fn single_lane_block<K: Decide>(
+    lane: &mut FixedLane<'_>,
+    sc: &mut PassScratch,
+    cons: &K,
+    s0: usize,
+) {
+    let start = lane.pass.range.start;
+    let truth = lane.pass.truth;
+    let truth_range = lane.pass.truth_range.clone();
+    let mut pll = lane.pll.take();
+    let PassScratch {
+        hist,
+        br,
+        bi,
+        accr,
+        acci,
+        m,
+        ..
+    } = sc;
+    let nb = br.len();
+    let (br, bi) = (&br[..], &bi[..]);
+    let (older_r, older_i) = (&br[..nb.saturating_sub(1)], &bi[..nb.saturating_sub(1)]);
+    let newest = br.last().copied().zip(bi.last().copied());
+    let mut last = if nb > 0 {
+        hist[s0 + nb - 1]
+    } else {
+        Cf32::new(0.0, 0.0)
+    };
+    for k in 0..*m {
+        let i = s0 + k;
+        let n = start + i;
+        let mut z = Cf32::new(accr[k], acci[k]);
+        if let Some(p) = pll.as_ref() {
+            z *= p.phasor().conj();
+        }
+        // Oldest first, the newest (in `last`) added last: the order of `fixed_step`.
+        let (mut sr, mut si) = (0f32, 0f32);
+        for ((d, &a), &b) in hist[i..i + nb.saturating_sub(1)]
+            .iter()
+            .zip(older_r)
+            .zip(older_i)
+        {
+            sr += a * d.re - b * d.im;
+            si += a * d.im + b * d.re;
+        }
+        if let Some((a, b)) = newest {
+            sr += a * last.re - b * last.im;
+            si += a * last.im + b * last.re;
+        }
+        z -= Cf32::new(sr, si);
+        let (label, point) = cons.decide(z);
+        let d = if truth_range.contains(&n) {
+            truth[n]
+        } else {
+            point
+        };
+        lane.soft[n] = z;
+        lane.labels[n] = label;
+        if let Some(p) = pll.as_mut() {
+            lane.phase[n] = p.phase as f32;
+            track_phase(p, z, d);
+        }
+        hist[i + nb] = d;
+        last = d;
+    }
+    lane.pll = pll;
 }
 
 /// The serial part for symbol `start + s0 + k` of one lane: rotation,

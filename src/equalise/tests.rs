@@ -1136,16 +1136,24 @@ fn skipping_the_zf_dfe_leaves_every_other_result_unchanged() {
 #[test]
 fn interleaved_passes_give_bit_identical_symbols_to_each_equaliser_run_alone() {
     // Source: definition (the lanes of `run_cores` share nothing but the input).
-    // Every equaliser type, the phase loop on, payload on both sides of the
-    // training (time-reversed lanes), an adapting core among fixed ones and a
-    // genie that must fail (no known symbols) while the others run.
+    // Every equaliser type, the phase loop on, an adapting core among fixed
+    // ones and a genie that must fail (no known symbols) while the others run;
+    // training first (forward lanes only: one core alone takes the single-lane
+    // path, all together the interleaved one) and in the middle (time-reversed
+    // lanes too, ending long before the forward ones).
+    for before in [0, 150] {
+        interleaving_case(before);
+    }
+}
+
+fn interleaving_case(before: usize) {
     let h = [
         Cf64::new(0.15, 0.1),
         Cf64::new(1.0, 0.0),
         Cf64::new(0.4, -0.2),
     ];
     let c = Constellation::new(Modulation::Qam16);
-    let sim = simulate(34, Modulation::Qam16, &h, 1, 22.0, 150, 64, 700);
+    let sim = simulate(34, Modulation::Qam16, &h, 1, 22.0, before, 64, 700);
     let est = fit_channel(&sim.y, sim.training(), sim.offset, &fixed(1, 1)).unwrap();
     let ch = design_input(&est);
     let opts = RunOptions {
@@ -1176,7 +1184,7 @@ fn interleaved_passes_give_bit_identical_symbols_to_each_equaliser_run_alone() {
         for (k, core) in cores.iter().enumerate() {
             let mut alone = EqualisedSymbols::default();
             let want = core.run_into(&view, &mut alone);
-            assert_eq!(status[k], want, "core {k}, known {known}");
+            assert_eq!(status[k], want, "core {k}, known {known}, before {before}");
             if want.is_ok() {
                 // Bit for bit (`PartialEq` on f32 would also accept 0.0 == −0.0).
                 let bits = |s: &EqualisedSymbols| {
@@ -1187,7 +1195,11 @@ fn interleaved_passes_give_bit_identical_symbols_to_each_equaliser_run_alone() {
                         s.phase_rad.iter().map(|p| p.to_bits()).collect::<Vec<_>>(),
                     )
                 };
-                assert_eq!(bits(&outs[k]), bits(&alone), "core {k}, known {known}");
+                assert_eq!(
+                    bits(&outs[k]),
+                    bits(&alone),
+                    "core {k}, known {known}, before {before}"
+                );
             }
         }
         assert_eq!(status[4].is_ok(), known);

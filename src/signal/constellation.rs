@@ -698,8 +698,21 @@ impl Constellation {
     /// If the lengths differ (a programmer error).
     pub fn slice_into(&self, z: &[Cf32], labels: &mut [usize]) {
         assert_eq!(z.len(), labels.len(), "slice_into: length mismatch");
-        for (l, &v) in labels.iter_mut().zip(z) {
-            *l = self.slice(v);
+        // The scheme is chosen once for the block.
+        macro_rules! each {
+            ($k:expr) => {
+                for (l, &v) in labels.iter_mut().zip(z) {
+                    *l = $k.slice(v);
+                }
+            };
+        }
+        match self.kernel() {
+            SliceKernel::Bpsk(k) => each!(k),
+            SliceKernel::Qam1(k) => each!(k),
+            SliceKernel::Qam3(k) => each!(k),
+            SliceKernel::Qam7(k) => each!(k),
+            SliceKernel::QamFormula(k) => each!(k),
+            SliceKernel::Psk(k) => each!(k),
         }
     }
 }
