@@ -173,7 +173,7 @@ const DEROTATE_ANCHOR: usize = 32;
 /// `out[n] = y[n]·e^{−j(2π·nu·n + phase)}`.
 ///
 /// The phasor is computed exactly (one f64 `sin_cos` of the angle) every
-/// [`DEROTATE_ANCHOR`] samples and advanced by one f64 complex multiply by
+/// 32 samples (`DEROTATE_ANCHOR`) and advanced by one f64 complex multiply by
 /// `e^{−j2π·nu}` in between. Between anchors the f64 phasor drifts by a few
 /// ε = 2⁻⁵³ per step (≈ 1e-14 after 32 steps), far below the f32 rounding of the
 /// phasor (2⁻²⁴ ≈ 6e-8), so each output equals the `sin_cos`-per-sample result
