@@ -11,11 +11,101 @@
 //! window is a contiguous slice of a zero-padded copy of `y` (made once per
 //! segment) and the feedback history is a contiguous slice of a per-segment
 //! decision buffer.
+//!
+//! Passes whose filters do not adapt run through [`run_fixed_lanes`], which
+//! takes several independent passes (the forward and time-reversed halves of a
+//! burst, and the different equalisers of one burst) and steps them in lockstep,
+//! one symbol of each lane in turn. Every lane does exactly the arithmetic it
+//! would do alone, in the same order, so its output is bit-identical to a
+//! single-lane run; the gain is that the per-symbol recursions (feedback,
+//! slicer, phase loop — a long chain of dependent operations) of different
+//! lanes overlap in the processor instead of waiting on each other. The slicer
+//! is chosen once per call ([`with_decider`]), not per symbol.
 
 use super::tracking::{AdaptMode, PhaseLoop, TrackingConfig};
 use super::Slicer;
+use crate::signal::constellation::{BpskKernel, PskKernel, QamKernel};
 use crate::{Cf32, Cf64};
 use std::ops::Range;
+
+/// Hard decision of one symbol: the label and the point it stands for.
+pub(crate) trait Decide {
+    /// `(label, points[label])` of the point nearest to `z`.
+    fn decide(&self, z: Cf32) -> (usize, Cf32);
+}
+
+impl Decide for BpskKernel<'_> {
+    #[inline(always)]
+    fn decide(&self, z: Cf32) -> (usize, Cf32) {
+        BpskKernel::decide(self, z)
+    }
+}
+
+impl<const T: usize> Decide for QamKernel<'_, T> {
+    #[inline(always)]
+    fn decide(&self, z: Cf32) -> (usize, Cf32) {
+        QamKernel::decide(self, z)
+    }
+}
+
+impl Decide for PskKernel<'_> {
+    #[inline(always)]
+    fn decide(&self, z: Cf32) -> (usize, Cf32) {
+        PskKernel::decide(self, z)
+    }
+}
+
+/// Any other [`Slicer`], called through the trait object. A label outside
+/// `points()` decides to 0 (such a slicer is broken, but the loop must not panic).
+pub(crate) struct DynDecider<'a>(pub &'a dyn Slicer);
+
+impl Decide for DynDecider<'_> {
+    #[inline]
+    fn decide(&self, z: Cf32) -> (usize, Cf32) {
+        let l = self.0.slice(z);
+        (l, self.0.points().get(l).copied().unwrap_or_default())
+    }
+}
+
+/// Evaluates `$body` with `$k` bound to a `&impl Decide` for `$slicer`: the
+/// constellation's own kernel when it is one (monomorphised, inlined), else
+/// the trait object.
+macro_rules! with_decider {
+    ($slicer:expr, |$k:ident| $body:expr) => {{
+        let slicer: &dyn $crate::equalise::Slicer = $slicer;
+        match slicer.as_constellation().map(|c| c.kernel()) {
+            Some($crate::signal::constellation::SliceKernel::Qam3(q)) => {
+                let $k = &q;
+                $body
+            }
+            Some($crate::signal::constellation::SliceKernel::Qam1(q)) => {
+                let $k = &q;
+                $body
+            }
+            Some($crate::signal::constellation::SliceKernel::Qam7(q)) => {
+                let $k = &q;
+                $body
+            }
+            Some($crate::signal::constellation::SliceKernel::QamFormula(q)) => {
+                let $k = &q;
+                $body
+            }
+            Some($crate::signal::constellation::SliceKernel::Bpsk(b)) => {
+                let $k = &b;
+                $body
+            }
+            Some($crate::signal::constellation::SliceKernel::Psk(p)) => {
+                let $k = &p;
+                $body
+            }
+            None => {
+                let d = $crate::equalise::engine::DynDecider(slicer);
+                let $k = &d;
+                $body
+            }
+        }
+    }};
+}
 
 /// Buffers of one pass, kept by the caller and reused from pass to pass (and
 /// burst to burst) so a pass allocates nothing once they have grown. Contents
@@ -32,6 +122,10 @@ pub(crate) struct PassScratch {
     yi: Vec<f32>,
     accr: Vec<f32>,
     acci: Vec<f32>,
+    /// Zeros in front of `y` inside `ypad`.
+    left: usize,
+    /// Symbols of the current block (fixed-filter lanes).
+    m: usize,
 }
 
 /// `v` cleared and refilled with `n` copies of `x`.
@@ -113,15 +207,9 @@ impl Adapt {
     }
 }
 
-/// Run one forward pass. `soft`, `labels`, `phase` are indexed like `y`
-/// (only `pass.range` is written).
-///
-/// # Panics
-/// When the output slices are shorter than `pass.range.end` or `truth` is
-/// shorter than `y` (programmer errors).
 /// One phase-loop step from the output `z` and its decision `d`: the detector
 /// is `Im(z·d*)/|d|²` (0 for a zero decision).
-#[inline]
+#[inline(always)]
 fn track_phase(p: &mut PhaseLoop, z: Cf32, d: Cf32) {
     let dn = d.norm_sqr();
     let err = if dn > 0.0 {
@@ -132,12 +220,45 @@ fn track_phase(p: &mut PhaseLoop, z: Cf32, d: Cf32) {
     p.update(err);
 }
 
+/// Fills `scratch.ypad` (zero-padded copy of `y`, `scratch.left` zeros in
+/// front) and `scratch.hist` (feedback history: `hist[i + nb] = d[start + i]`,
+/// `hist[..nb] = d[start−nb..start]` from the reference symbols where known).
+fn pad_and_history(pass: &Pass<'_>, f: &LoopFilters, scratch: &mut PassScratch) {
+    let Range { start, end } = pass.range.clone();
+    let nf = f.ffr.len();
+    let nb = f.fbr.len();
+    let zero = Cf32::new(0.0, 0.0);
+    // Padded copy: ypad[i + left] = y[i]; window for n is
+    // ypad[n + lag − (nf−1) + left ..= n + lag + left].
+    let first = start as isize + f.lag - (nf as isize - 1);
+    let left = (-first).max(0) as usize;
+    let last = end as isize - 1 + f.lag;
+    let right = (last - (pass.y.len() as isize - 1)).max(0) as usize;
+    reset(&mut scratch.ypad, left + pass.y.len() + right, zero);
+    scratch.ypad[left..left + pass.y.len()].copy_from_slice(pass.y);
+    scratch.left = left;
+    reset(&mut scratch.hist, nb + end.saturating_sub(start), zero);
+    for (j, h) in scratch.hist[..nb].iter_mut().enumerate() {
+        let n = start as isize - nb as isize + j as isize;
+        if n >= 0 && pass.truth_range.contains(&(n as usize)) {
+            *h = pass.truth[n as usize];
+        }
+    }
+}
+
+/// Run one forward pass. `soft`, `labels`, `phase` are indexed like `y`
+/// (only `pass.range` is written). Passes whose filters do not adapt go
+/// through [`run_fixed_lanes`] (as a single lane).
+///
+/// # Panics
+/// When the output slices are shorter than `pass.range.end` or `truth` is
+/// shorter than `y` (programmer errors).
 #[allow(clippy::too_many_arguments)] // the caller-owned outputs are separate slices on purpose
 pub(crate) fn run_pass(
     pass: &Pass<'_>,
     f: &mut LoopFilters,
     cons: &dyn Slicer,
-    mut pll: Option<&mut PhaseLoop>,
+    pll: Option<&mut PhaseLoop>,
     adapt: &mut Adapt,
     soft: &mut [Cf32],
     labels: &mut [usize],
@@ -150,35 +271,52 @@ pub(crate) fn run_pass(
     }
     assert!(soft.len() >= end && labels.len() >= end && phase.len() >= end);
     assert!(pass.truth.len() >= pass.y.len());
+    if adapt.mode == AdaptMode::Off {
+        let mut lane = [FixedLane {
+            pass: Pass {
+                y: pass.y,
+                truth: pass.truth,
+                truth_range: pass.truth_range.clone(),
+                range: pass.range.clone(),
+            },
+            filters: &*f,
+            pll: pll.as_deref().cloned(),
+            soft,
+            labels,
+            phase,
+        }];
+        run_fixed_lanes(&mut lane, cons, std::slice::from_mut(scratch));
+        if let (Some(p), Some(q)) = (pll, lane[0].pll.take()) {
+            *p = q;
+        }
+        return;
+    }
+    with_decider!(cons, |k| adaptive_pass(
+        pass, f, k, pll, adapt, soft, labels, phase, scratch
+    ))
+}
+
+/// The symbol-by-symbol loop with LMS or RLS updates of the filters.
+#[allow(clippy::too_many_arguments)]
+fn adaptive_pass<K: Decide>(
+    pass: &Pass<'_>,
+    f: &mut LoopFilters,
+    cons: &K,
+    mut pll: Option<&mut PhaseLoop>,
+    adapt: &mut Adapt,
+    soft: &mut [Cf32],
+    labels: &mut [usize],
+    phase: &mut [f32],
+    scratch: &mut PassScratch,
+) {
+    let Range { start, end } = pass.range.clone();
     let nf = f.ffr.len();
     let nb = f.fbr.len();
     let zero = Cf32::new(0.0, 0.0);
-    // Padded copy: ypad[i + left] = y[i]; window for n is
-    // ypad[n + lag − (nf−1) + left ..= n + lag + left].
-    let first = start as isize + f.lag - (nf as isize - 1);
-    let left = (-first).max(0) as usize;
-    let last = end as isize - 1 + f.lag;
-    let right = (last - (pass.y.len() as isize - 1)).max(0) as usize;
-    let mut ypad = std::mem::take(&mut scratch.ypad);
-    reset(&mut ypad, left + pass.y.len() + right, zero);
-    ypad[left..left + pass.y.len()].copy_from_slice(pass.y);
-    // Feedback history: hist[i + nb] = d[start + i]; hist[..nb] = d[start−nb..start].
-    let mut hist = std::mem::take(&mut scratch.hist);
-    reset(&mut hist, nb + (end - start), zero);
-    for (j, h) in hist[..nb].iter_mut().enumerate() {
-        let n = start as isize - nb as isize + j as isize;
-        if n >= 0 && pass.truth_range.contains(&(n as usize)) {
-            *h = pass.truth[n as usize];
-        }
-    }
-    if adapt.mode == AdaptMode::Off {
-        fixed_filter_pass(
-            pass, f, cons, pll, &ypad, left, &mut hist, soft, labels, phase, scratch,
-        );
-        scratch.ypad = ypad;
-        scratch.hist = hist;
-        return;
-    }
+    pad_and_history(pass, f, scratch);
+    let left = scratch.left;
+    let ypad = &scratch.ypad[..];
+    let hist = &mut scratch.hist[..];
     let ntot = nf + nb;
     for n in start..end {
         let i = n - start;
@@ -196,11 +334,11 @@ pub(crate) fn run_pass(
             fbs += b * d;
         }
         z -= fbs;
-        let label = cons.slice(z);
+        let (label, point) = cons.decide(z);
         let d = if pass.truth_range.contains(&n) {
             pass.truth[n]
         } else {
-            cons.points()[label]
+            point
         };
         soft[n] = z;
         labels[n] = label;
@@ -289,115 +427,266 @@ pub(crate) fn run_pass(
         }
         hist[i + nb] = d;
     }
-    scratch.ypad = ypad;
-    scratch.hist = hist;
 }
 
 /// Symbols per block of the fixed-filter fast path.
 const BLOCK: usize = 256;
 
-/// Fast path when the filters do not adapt: the feedforward output does not
-/// depend on decisions (the phase loop rotates it afterwards), so it is
-/// computed block by block as a FIR vectorised over the output index (split
-/// real/imaginary arrays, one axpy per tap); only the feedback, the rotation,
-/// the slicer and the loop stay in the serial per-symbol recursion.
-#[allow(clippy::too_many_arguments)]
-fn fixed_filter_pass(
-    pass: &Pass<'_>,
-    f: &LoopFilters,
+/// One pass with fixed filters, for [`run_fixed_lanes`]. `soft`, `labels`,
+/// `phase` are indexed like `pass.y` (only `pass.range` is written); `pll`
+/// is left in its state after the last symbol.
+pub(crate) struct FixedLane<'a> {
+    pub pass: Pass<'a>,
+    pub filters: &'a LoopFilters,
+    pub pll: Option<PhaseLoop>,
+    pub soft: &'a mut [Cf32],
+    pub labels: &'a mut [usize],
+    pub phase: &'a mut [f32],
+}
+
+/// Runs independent fixed-filter passes in lockstep (see the module doc); each
+/// lane's outputs are bit-identical to running it alone. `scratch` needs at
+/// least `lanes.len()` entries (one per lane).
+///
+/// The feedforward output does not depend on decisions (the phase loop
+/// rotates it afterwards), so it is computed block by block as a FIR
+/// vectorised over the output index (split real/imaginary arrays, one axpy per
+/// tap); only the feedback, the rotation, the slicer and the loop stay in the
+/// serial per-symbol recursion.
+///
+/// # Panics
+/// When `scratch` is shorter than `lanes`, a lane's outputs are shorter than
+/// its `pass.range.end` or its `truth` is shorter than its `y` (programmer errors).
+pub(crate) fn run_fixed_lanes(
+    lanes: &mut [FixedLane<'_>],
     cons: &dyn Slicer,
-    mut pll: Option<&mut PhaseLoop>,
-    ypad: &[Cf32],
-    left: usize,
-    hist: &mut [Cf32],
-    soft: &mut [Cf32],
-    labels: &mut [usize],
-    phase: &mut [f32],
-    scratch: &mut PassScratch,
+    scratch: &mut [PassScratch],
 ) {
-    let Range { start, end } = pass.range.clone();
+    with_decider!(cons, |k| fixed_lanes(lanes, k, scratch))
+}
+
+fn fixed_lanes<K: Decide>(lanes: &mut [FixedLane<'_>], cons: &K, scratch: &mut [PassScratch]) {
+    assert!(scratch.len() >= lanes.len());
+    let scratch = &mut scratch[..lanes.len()];
+    let mut longest = 0;
+    for (lane, sc) in lanes.iter().zip(scratch.iter_mut()) {
+        sc.m = 0;
+        if lane.pass.range.is_empty() {
+            continue;
+        }
+        let end = lane.pass.range.end;
+        assert!(lane.soft.len() >= end && lane.labels.len() >= end && lane.phase.len() >= end);
+        assert!(lane.pass.truth.len() >= lane.pass.y.len());
+        longest = longest.max(lane.pass.range.len());
+        prepare_fixed(lane, sc);
+    }
+    let mut s0 = 0;
+    while s0 < longest {
+        for (lane, sc) in lanes.iter().zip(scratch.iter_mut()) {
+            feedforward_block(lane, sc, s0);
+        }
+        let m = BLOCK.min(longest - s0);
+        let mut active = lanes
+            .iter_mut()
+            .zip(scratch.iter_mut())
+            .filter(|(_, sc)| sc.m > 0);
+        if let (Some((lane, sc)), None) = (active.next(), active.next()) {
+            // One lane in this block (a single pass, or the others have ended).
+            single_lane_block(lane, sc, cons, s0);
+        } else {
+            for k in 0..m {
+                for (lane, sc) in lanes.iter_mut().zip(scratch.iter_mut()) {
+                    if k < sc.m {
+                        fixed_step(lane, sc, cons, s0, k);
+                    }
+                }
+            }
+        }
+        s0 += m;
+    }
+}
+
+/// Padded input, history and split filters of one lane.
+fn prepare_fixed(lane: &FixedLane<'_>, sc: &mut PassScratch) {
+    let f = lane.filters;
     let nf = f.ffr.len();
-    let nb = f.fbr.len();
+    pad_and_history(&lane.pass, f, sc);
+    sc.wr.clear();
+    sc.wi.clear();
+    sc.br.clear();
+    sc.bi.clear();
+    for w in &f.ffr {
+        sc.wr.push(w.re);
+        sc.wi.push(w.im);
+    }
+    for w in &f.fbr {
+        sc.br.push(w.re);
+        sc.bi.push(w.im);
+    }
+    reset(&mut sc.yr, BLOCK + nf, 0.0);
+    reset(&mut sc.yi, BLOCK + nf, 0.0);
+    reset(&mut sc.accr, BLOCK, 0.0);
+    reset(&mut sc.acci, BLOCK, 0.0);
+    sc.m = 0;
+}
+
+/// Feedforward outputs of the lane's symbols `start + s0 ..` (at most
+/// [`BLOCK`]) into `accr`/`acci`; sets `sc.m` to their count (0 past the end).
+fn feedforward_block(lane: &FixedLane<'_>, sc: &mut PassScratch, s0: usize) {
+    let Range { start, end } = lane.pass.range.clone();
+    let f = lane.filters;
+    let nf = f.ffr.len();
+    let n0 = start + s0;
+    let m = if start < end {
+        BLOCK.min(end.saturating_sub(n0))
+    } else {
+        0
+    };
+    sc.m = m;
+    if m == 0 {
+        return;
+    }
     let PassScratch {
+        ypad,
         wr,
         wi,
-        br,
-        bi,
         yr,
         yi,
         accr,
         acci,
+        left,
         ..
-    } = scratch;
-    wr.clear();
-    wi.clear();
-    br.clear();
-    bi.clear();
-    for w in &f.ffr {
-        wr.push(w.re);
-        wi.push(w.im);
+    } = sc;
+    let base0 = (n0 as isize + f.lag - (nf as isize - 1) + *left as isize) as usize;
+    for (k, v) in ypad[base0..base0 + m + nf - 1].iter().enumerate() {
+        yr[k] = v.re;
+        yi[k] = v.im;
     }
-    for w in &f.fbr {
-        br.push(w.re);
-        bi.push(w.im);
+    accr[..m].fill(0.0);
+    acci[..m].fill(0.0);
+    for t in 0..nf {
+        let (a, b) = (wr[t], wi[t]);
+        let (xr, xi) = (&yr[t..t + m], &yi[t..t + m]);
+        for (((or, oi), &vr), &vi) in accr[..m]
+            .iter_mut()
+            .zip(acci[..m].iter_mut())
+            .zip(xr)
+            .zip(xi)
+        {
+            *or += a * vr - b * vi;
+            *oi += a * vi + b * vr;
+        }
     }
-    let (wr, wi, br, bi) = (&wr[..], &wi[..], &br[..], &bi[..]);
-    reset(yr, BLOCK + nf, 0.0);
-    reset(yi, BLOCK + nf, 0.0);
-    reset(accr, BLOCK, 0.0);
-    reset(acci, BLOCK, 0.0);
-    let points = cons.points();
-    let mut n0 = start;
-    while n0 < end {
-        let m = BLOCK.min(end - n0);
-        let base0 = (n0 as isize + f.lag - (nf as isize - 1) + left as isize) as usize;
-        for (k, v) in ypad[base0..base0 + m + nf - 1].iter().enumerate() {
-            yr[k] = v.re;
-            yi[k] = v.im;
+}
+
+/// The serial part of one block when a single lane runs: the same arithmetic
+/// as [`fixed_step`] in the same order, with the loop state and the newest
+/// fed-back symbol kept in locals (registers) rather than re-read from memory
+/// each symbol, which shortens the per-symbol dependency chain.
+fn single_lane_block<K: Decide>(
+    lane: &mut FixedLane<'_>,
+    sc: &mut PassScratch,
+    cons: &K,
+    s0: usize,
+) {
+    let start = lane.pass.range.start;
+    let truth = lane.pass.truth;
+    let truth_range = lane.pass.truth_range.clone();
+    let mut pll = lane.pll.take();
+    let PassScratch {
+        hist,
+        br,
+        bi,
+        accr,
+        acci,
+        m,
+        ..
+    } = sc;
+    let nb = br.len();
+    let (br, bi) = (&br[..], &bi[..]);
+    let (older_r, older_i) = (&br[..nb.saturating_sub(1)], &bi[..nb.saturating_sub(1)]);
+    let newest = br.last().copied().zip(bi.last().copied());
+    let mut last = if nb > 0 {
+        hist[s0 + nb - 1]
+    } else {
+        Cf32::new(0.0, 0.0)
+    };
+    for k in 0..*m {
+        let i = s0 + k;
+        let n = start + i;
+        let mut z = Cf32::new(accr[k], acci[k]);
+        if let Some(p) = pll.as_ref() {
+            z *= p.phasor().conj();
         }
-        accr[..m].fill(0.0);
-        acci[..m].fill(0.0);
-        for t in 0..nf {
-            let (a, b) = (wr[t], wi[t]);
-            let (xr, xi) = (&yr[t..t + m], &yi[t..t + m]);
-            for (((or, oi), &vr), &vi) in accr[..m]
-                .iter_mut()
-                .zip(acci[..m].iter_mut())
-                .zip(xr)
-                .zip(xi)
-            {
-                *or += a * vr - b * vi;
-                *oi += a * vi + b * vr;
-            }
+        // Oldest first, the newest (in `last`) added last: the order of `fixed_step`.
+        let (mut sr, mut si) = (0f32, 0f32);
+        for ((d, &a), &b) in hist[i..i + nb.saturating_sub(1)]
+            .iter()
+            .zip(older_r)
+            .zip(older_i)
+        {
+            sr += a * d.re - b * d.im;
+            si += a * d.im + b * d.re;
         }
-        for k in 0..m {
-            let n = n0 + k;
-            let i = n - start;
-            let mut z = Cf32::new(accr[k], acci[k]);
-            if let Some(p) = pll.as_deref() {
-                z *= p.phasor().conj();
-            }
-            let past = &hist[i..i + nb];
-            let (mut sr, mut si) = (0f32, 0f32);
-            for ((d, &a), &b) in past.iter().zip(br).zip(bi) {
-                sr += a * d.re - b * d.im;
-                si += a * d.im + b * d.re;
-            }
-            z -= Cf32::new(sr, si);
-            let label = cons.slice(z);
-            let d = if pass.truth_range.contains(&n) {
-                pass.truth[n]
-            } else {
-                points[label]
-            };
-            soft[n] = z;
-            labels[n] = label;
-            if let Some(p) = pll.as_deref_mut() {
-                phase[n] = p.phase as f32;
-                track_phase(p, z, d);
-            }
-            hist[i + nb] = d;
+        if let Some((a, b)) = newest {
+            sr += a * last.re - b * last.im;
+            si += a * last.im + b * last.re;
         }
-        n0 += m;
+        z -= Cf32::new(sr, si);
+        let (label, point) = cons.decide(z);
+        let d = if truth_range.contains(&n) {
+            truth[n]
+        } else {
+            point
+        };
+        lane.soft[n] = z;
+        lane.labels[n] = label;
+        if let Some(p) = pll.as_mut() {
+            lane.phase[n] = p.phase as f32;
+            track_phase(p, z, d);
+        }
+        hist[i + nb] = d;
+        last = d;
     }
+    lane.pll = pll;
+}
+
+/// The serial part for symbol `start + s0 + k` of one lane: rotation,
+/// feedback, decision, phase loop.
+#[inline(always)]
+fn fixed_step<K: Decide>(
+    lane: &mut FixedLane<'_>,
+    sc: &mut PassScratch,
+    cons: &K,
+    s0: usize,
+    k: usize,
+) {
+    let start = lane.pass.range.start;
+    let nb = sc.br.len();
+    let i = s0 + k;
+    let n = start + i;
+    let mut z = Cf32::new(sc.accr[k], sc.acci[k]);
+    if let Some(p) = lane.pll.as_ref() {
+        z *= p.phasor().conj();
+    }
+    let past = &sc.hist[i..i + nb];
+    let (mut sr, mut si) = (0f32, 0f32);
+    for ((d, &a), &b) in past.iter().zip(&sc.br).zip(&sc.bi) {
+        sr += a * d.re - b * d.im;
+        si += a * d.im + b * d.re;
+    }
+    z -= Cf32::new(sr, si);
+    let (label, point) = cons.decide(z);
+    let d = if lane.pass.truth_range.contains(&n) {
+        lane.pass.truth[n]
+    } else {
+        point
+    };
+    lane.soft[n] = z;
+    lane.labels[n] = label;
+    if let Some(p) = lane.pll.as_mut() {
+        lane.phase[n] = p.phase as f32;
+        track_phase(p, z, d);
+    }
+    sc.hist[i + nb] = d;
 }

@@ -41,11 +41,12 @@ pub mod zf_dfe;
 use crate::channel::{ChannelError, ChannelEstimate, ChannelFitConfig};
 use crate::{Cf32, Cf64};
 use carrier::{CarrierConfig, CarrierReport};
-use engine::{run_pass, Adapt, LoopFilters, Pass};
+use engine::{run_fixed_lanes, run_pass, Adapt, FixedLane, LoopFilters, Pass};
 pub use genie::GenieDfe;
 pub use linear_mmse::LinearMmse;
 pub use mmse_dfe::{design_mmse_dfe, DesignInput};
 use serde::{Deserialize, Serialize};
+use std::ops::Range;
 use tracking::{AdaptMode, LoopConfig, PhaseLoop, TrackingConfig};
 pub use zf_dfe::design_zf_dfe;
 
@@ -114,6 +115,12 @@ pub trait Slicer {
     fn slice(&self, z: Cf32) -> usize;
     /// The points, indexed by label.
     fn points(&self) -> &[Cf32];
+    /// The crate's constellation behind this slicer, if it is one: the
+    /// equalisers then slice with its inlined per-scheme kernel instead of
+    /// calling [`Slicer::slice`] per symbol (same labels). Default: `None`.
+    fn as_constellation(&self) -> Option<&crate::signal::Constellation> {
+        None
+    }
 }
 
 /// Designed filters in apply form (see the module doc), scaled to give an
@@ -279,44 +286,30 @@ impl DfeCore {
         burst: &BurstView<'_>,
         out: &mut EqualisedSymbols,
     ) -> Result<(), EqualiseError> {
-        // One set of pass buffers per thread, reused by every pass of every
-        // burst (the buffers' contents never carry over: each use resets them).
-        // Should it be in use already (it cannot be: passes do not nest), a
-        // fresh set serves.
-        thread_local! {
-            static SCRATCH: std::cell::RefCell<RunScratch> = std::cell::RefCell::new(RunScratch::default());
-        }
-        SCRATCH.with(|cell| match cell.try_borrow_mut() {
-            Ok(mut s) => self.run_with(burst, out, &mut s),
-            Err(_) => self.run_with(burst, out, &mut RunScratch::default()),
+        run_cores(&[self], burst, std::slice::from_mut(out))
+            .pop()
+            .unwrap_or(Ok(()))
+    }
+
+    /// The phase loop of a pass (`sign` −1 for the time-reversed one), if on.
+    fn make_loop(&self, sign: f64) -> Option<PhaseLoop> {
+        let two_pi = 2.0 * std::f64::consts::PI;
+        self.opts.phase_loop.filter(|l| l.bandwidth > 0.0).map(|l| {
+            let mut p = PhaseLoop::new(&l);
+            p.freq = sign * two_pi * self.opts.initial_freq_cycles_per_symbol;
+            p
         })
     }
 
-    fn run_with(
+    /// Fills `truth` (reference symbols indexed like `y`) and returns the
+    /// range where they are fed back; `KnownSymbols` for a genie without them.
+    fn fill_truth(
         &self,
         burst: &BurstView<'_>,
-        out: &mut EqualisedSymbols,
-        scratch: &mut RunScratch,
-    ) -> Result<(), EqualiseError> {
+        truth: &mut Vec<Cf32>,
+    ) -> Result<Range<usize>, EqualiseError> {
         let len = burst.y.len();
         let nt = burst.training.len();
-        if burst.offset.checked_add(nt).map_or(true, |e| e > len) {
-            return Err(EqualiseError::TrainingOutOfRange {
-                offset: burst.offset,
-                training_len: nt,
-                samples: len,
-            });
-        }
-        let zero = Cf32::new(0.0, 0.0);
-        let RunScratch {
-            truth,
-            yr,
-            tr,
-            soft,
-            labels,
-            phase,
-            pass: pass_scratch,
-        } = scratch;
         truth.clear();
         if self.opts.genie {
             match burst.known {
@@ -328,40 +321,36 @@ impl DfeCore {
                     })
                 }
             }
+            Ok(0..len)
         } else {
-            truth.resize(len, zero);
+            truth.resize(len, Cf32::new(0.0, 0.0));
             truth[burst.offset..burst.offset + nt].copy_from_slice(burst.training);
+            Ok(burst.offset..burst.offset + nt)
         }
-        let truth = &truth[..];
-        let truth_range = if self.opts.genie {
-            0..len
-        } else {
-            burst.offset..burst.offset + nt
-        };
-        out.soft.clear();
-        out.soft.resize(len, zero);
-        out.labels.clear();
-        out.labels.resize(len, 0);
-        out.phase_rad.clear();
-        out.phase_rad.resize(len, 0.0);
-        let two_pi = 2.0 * std::f64::consts::PI;
-        let make_loop = |sign: f64| {
-            self.opts.phase_loop.filter(|l| l.bandwidth > 0.0).map(|l| {
-                let mut p = PhaseLoop::new(&l);
-                p.freq = sign * two_pi * self.opts.initial_freq_cycles_per_symbol;
-                p
-            })
-        };
+    }
+
+    /// Both passes of an adapting equaliser (LMS/RLS), one after the other.
+    fn run_adaptive(
+        &self,
+        burst: &BurstView<'_>,
+        truth_range: Range<usize>,
+        cs: &mut CoreScratch,
+        yr: &[Cf32],
+        out: &mut EqualisedSymbols,
+        pass_scratch: &mut engine::PassScratch,
+    ) {
+        let len = burst.y.len();
+        let nt = burst.training.len();
         let nadapt = |f: &DfeFilters| f.ff.len() + f.fb.len();
         // Forward: from the first training symbol to the end.
         {
             let mut lf = LoopFilters::new(&self.fwd.ff, &self.fwd.fb, self.fwd.lag());
-            let mut pll = make_loop(1.0);
+            let mut pll = self.make_loop(1.0);
             let mut adapt = Adapt::new(&self.opts.tracking, nadapt(&self.fwd));
             let pass = Pass {
                 y: burst.y,
-                truth,
-                truth_range: truth_range.clone(),
+                truth: &cs.truth,
+                truth_range,
                 range: burst.offset..len,
             };
             run_pass(
@@ -378,27 +367,17 @@ impl DfeCore {
         }
         // Backward: the symbols before the training, time-reversed.
         if burst.offset > 0 {
-            yr.clear();
-            yr.extend(burst.y.iter().rev());
-            tr.clear();
-            tr.extend(truth.iter().rev());
             let rr = if self.opts.genie {
                 0..len
             } else {
                 len - burst.offset - nt..len - burst.offset
             };
-            soft.clear();
-            soft.resize(len, zero);
-            labels.clear();
-            labels.resize(len, 0);
-            phase.clear();
-            phase.resize(len, 0.0);
             let mut lf = LoopFilters::new(&self.rev.ff, &self.rev.fb, self.rev.lag());
-            let mut pll = make_loop(-1.0);
+            let mut pll = self.make_loop(-1.0);
             let mut adapt = Adapt::new(&self.opts.tracking, nadapt(&self.rev));
             let pass = Pass {
                 y: yr,
-                truth: tr,
+                truth: &cs.tr,
                 truth_range: rr,
                 range: len - burst.offset - nt..len,
             };
@@ -408,31 +387,208 @@ impl DfeCore {
                 burst.slicer,
                 pll.as_mut(),
                 &mut adapt,
-                soft,
-                labels,
-                phase,
+                &mut cs.soft,
+                &mut cs.labels,
+                &mut cs.phase,
                 pass_scratch,
             );
-            for n in 0..burst.offset {
-                out.soft[n] = soft[len - 1 - n];
-                out.labels[n] = labels[len - 1 - n];
-                out.phase_rad[n] = phase[len - 1 - n];
-            }
         }
-        Ok(())
     }
 }
 
-/// Buffers of [`DfeCore::run_into`] reused across runs (see there).
+/// Runs every core in `cores` on `burst` into the matching `outs` entry
+/// (`outs.len() >= cores.len()`); returns one result per core, in order.
+///
+/// The passes of cores whose filters do not adapt — forward and
+/// time-reversed, of every such core — go through one
+/// [`engine::run_fixed_lanes`] call, which steps them in lockstep so their
+/// serial recursions overlap; each pass's output is bit-identical to running
+/// the core alone. Adapting cores (LMS/RLS) run one pass after the other.
+pub(crate) fn run_cores(
+    cores: &[&DfeCore],
+    burst: &BurstView<'_>,
+    outs: &mut [EqualisedSymbols],
+) -> Vec<Result<(), EqualiseError>> {
+    // One set of buffers per thread, reused by every run of every burst (the
+    // buffers' contents never carry over: each use resets them). Should it be
+    // in use already (it cannot be: runs do not nest), a fresh set serves.
+    thread_local! {
+        static SCRATCH: std::cell::RefCell<RunScratch> = std::cell::RefCell::new(RunScratch::default());
+    }
+    SCRATCH.with(|cell| match cell.try_borrow_mut() {
+        Ok(mut s) => run_cores_with(cores, burst, outs, &mut s),
+        Err(_) => run_cores_with(cores, burst, outs, &mut RunScratch::default()),
+    })
+}
+
+fn run_cores_with(
+    cores: &[&DfeCore],
+    burst: &BurstView<'_>,
+    outs: &mut [EqualisedSymbols],
+    scratch: &mut RunScratch,
+) -> Vec<Result<(), EqualiseError>> {
+    assert!(outs.len() >= cores.len());
+    let len = burst.y.len();
+    let nt = burst.training.len();
+    if burst.offset.checked_add(nt).map_or(true, |e| e > len) {
+        let e = EqualiseError::TrainingOutOfRange {
+            offset: burst.offset,
+            training_len: nt,
+            samples: len,
+        };
+        return cores.iter().map(|_| Err(e.clone())).collect();
+    }
+    let zero = Cf32::new(0.0, 0.0);
+    let RunScratch {
+        yr,
+        cores: cs,
+        pass,
+    } = scratch;
+    if cs.len() < cores.len() {
+        cs.resize_with(cores.len(), CoreScratch::default);
+    }
+    // Two passes per core at most.
+    if pass.len() < 2 * cores.len() {
+        pass.resize_with(2 * cores.len(), engine::PassScratch::default);
+    }
+    if burst.offset > 0 {
+        yr.clear();
+        yr.extend(burst.y.iter().rev());
+    }
+    let mut status = Vec::with_capacity(cores.len());
+    let mut truth_ranges = Vec::with_capacity(cores.len());
+    for ((core, c), out) in cores.iter().zip(cs.iter_mut()).zip(outs.iter_mut()) {
+        match core.fill_truth(burst, &mut c.truth) {
+            Ok(r) => {
+                status.push(Ok(()));
+                truth_ranges.push(r);
+            }
+            Err(e) => {
+                status.push(Err(e));
+                truth_ranges.push(0..0);
+                continue;
+            }
+        }
+        out.soft.clear();
+        out.soft.resize(len, zero);
+        out.labels.clear();
+        out.labels.resize(len, 0);
+        out.phase_rad.clear();
+        out.phase_rad.resize(len, 0.0);
+        if burst.offset > 0 {
+            c.tr.clear();
+            c.tr.extend(c.truth.iter().rev());
+            c.soft.clear();
+            c.soft.resize(len, zero);
+            c.labels.clear();
+            c.labels.resize(len, 0);
+            c.phase.clear();
+            c.phase.resize(len, 0.0);
+        }
+    }
+    // Adapting cores: alone.
+    for (((core, st), c), (out, tr)) in cores
+        .iter()
+        .zip(&status)
+        .zip(cs.iter_mut())
+        .zip(outs.iter_mut().zip(&truth_ranges))
+    {
+        if st.is_ok() && core.opts.tracking.mode != AdaptMode::Off {
+            core.run_adaptive(burst, tr.clone(), c, yr, out, &mut pass[0]);
+        }
+    }
+    // Fixed cores: every pass in one interleaved run.
+    let filters: Vec<(LoopFilters, LoopFilters)> = cores
+        .iter()
+        .map(|c| {
+            (
+                LoopFilters::new(&c.fwd.ff, &c.fwd.fb, c.fwd.lag()),
+                LoopFilters::new(&c.rev.ff, &c.rev.fb, c.rev.lag()),
+            )
+        })
+        .collect();
+    {
+        let mut lanes = Vec::with_capacity(2 * cores.len());
+        for ((((core, st), c), (out, tr)), (lf, lr)) in cores
+            .iter()
+            .zip(&status)
+            .zip(cs.iter_mut())
+            .zip(outs.iter_mut().zip(&truth_ranges))
+            .zip(&filters)
+        {
+            if st.is_err() || core.opts.tracking.mode != AdaptMode::Off {
+                continue;
+            }
+            lanes.push(FixedLane {
+                pass: Pass {
+                    y: burst.y,
+                    truth: &c.truth,
+                    truth_range: tr.clone(),
+                    range: burst.offset..len,
+                },
+                filters: lf,
+                pll: core.make_loop(1.0),
+                soft: &mut out.soft,
+                labels: &mut out.labels,
+                phase: &mut out.phase_rad,
+            });
+            if burst.offset > 0 {
+                let rr = if core.opts.genie {
+                    0..len
+                } else {
+                    len - burst.offset - nt..len - burst.offset
+                };
+                lanes.push(FixedLane {
+                    pass: Pass {
+                        y: yr,
+                        truth: &c.tr,
+                        truth_range: rr,
+                        range: len - burst.offset - nt..len,
+                    },
+                    filters: lr,
+                    pll: core.make_loop(-1.0),
+                    soft: &mut c.soft,
+                    labels: &mut c.labels,
+                    phase: &mut c.phase,
+                });
+            }
+        }
+        if !lanes.is_empty() {
+            run_fixed_lanes(&mut lanes, burst.slicer, pass);
+        }
+    }
+    // The time-reversed halves back into place.
+    if burst.offset > 0 {
+        for ((st, c), out) in status.iter().zip(cs.iter()).zip(outs.iter_mut()) {
+            if st.is_err() {
+                continue;
+            }
+            for n in 0..burst.offset {
+                out.soft[n] = c.soft[len - 1 - n];
+                out.labels[n] = c.labels[len - 1 - n];
+                out.phase_rad[n] = c.phase[len - 1 - n];
+            }
+        }
+    }
+    status
+}
+
+/// Per-core buffers of [`run_cores`].
 #[derive(Default)]
-struct RunScratch {
+struct CoreScratch {
     truth: Vec<Cf32>,
-    yr: Vec<Cf32>,
     tr: Vec<Cf32>,
     soft: Vec<Cf32>,
     labels: Vec<usize>,
     phase: Vec<f32>,
-    pass: engine::PassScratch,
+}
+
+/// Buffers of [`run_cores`] reused across runs (see there).
+#[derive(Default)]
+struct RunScratch {
+    yr: Vec<Cf32>,
+    cores: Vec<CoreScratch>,
+    pass: Vec<engine::PassScratch>,
 }
 
 macro_rules! equaliser_type {
@@ -639,19 +795,14 @@ pub fn process_burst(
         phase_loop: cfg.carrier.enabled.then_some(cfg.carrier.tracking_loop),
         ..RunOptions::default()
     };
-    let mut results = Vec::new();
-    let mut push = |name: &'static str, eq: Result<Box<dyn Equaliser>, EqualiseError>| {
-        let outcome = eq.and_then(|mut e| {
-            let s = e.run(&b)?;
-            Ok((e.filters().clone(), s))
-        });
-        results.push(EqualiserResult { name, outcome });
-    };
+    // Design every equaliser first, then run them all in one go so that their
+    // fixed-filter passes are interleaved (see `run_cores`).
+    let mut designs: Vec<(&'static str, Result<DfeCore, EqualiseError>)> = Vec::new();
     if cfg.run_zf_dfe {
-        push(
+        designs.push((
             "zf-dfe",
-            ZfDfe::new(&ch, cfg.zf_main_tap, cfg.zf_min_main_snr, opts).map(|e| Box::new(e) as _),
-        );
+            ZfDfe::new(&ch, cfg.zf_main_tap, cfg.zf_min_main_snr, opts).map(|e| e.core),
+        ));
     }
     let mmse = MmseDfe::new(&ch, cfg.ff_taps, cfg.fb_taps, cfg.delay, opts);
     // The genie uses the very filters of the MMSE-DFE (same channel, lengths and
@@ -660,11 +811,11 @@ pub fn process_burst(
         .as_ref()
         .map(|e| GenieDfe::from_design(&e.core))
         .map_err(Clone::clone);
-    push("mmse-dfe", mmse.map(|e| Box::new(e) as _));
-    push(
+    designs.push(("mmse-dfe", mmse.map(|e| e.core)));
+    designs.push((
         "linear-mmse",
-        LinearMmse::new(&ch, cfg.ff_taps, cfg.delay, opts).map(|e| Box::new(e) as _),
-    );
+        LinearMmse::new(&ch, cfg.ff_taps, cfg.delay, opts).map(|e| e.core),
+    ));
     if cfg.tracking.mode != AdaptMode::Off {
         let topts = RunOptions {
             phase_loop: Some(cfg.tracking.phase_loop),
@@ -676,13 +827,32 @@ pub fn process_burst(
         } else {
             "mmse-dfe-rls"
         };
-        push(
+        designs.push((
             name,
-            MmseDfe::new(&ch, cfg.ff_taps, cfg.fb_taps, cfg.delay, topts).map(|e| Box::new(e) as _),
-        );
+            MmseDfe::new(&ch, cfg.ff_taps, cfg.fb_taps, cfg.delay, topts).map(|e| e.core),
+        ));
     }
     if burst.known.is_some() {
-        push("genie-mmse-dfe", genie.map(|e| Box::new(e) as _));
+        designs.push(("genie-mmse-dfe", genie.map(|e| e.core)));
+    }
+    let cores: Vec<&DfeCore> = designs
+        .iter()
+        .filter_map(|(_, d)| d.as_ref().ok())
+        .collect();
+    let mut outs = vec![EqualisedSymbols::default(); cores.len()];
+    let mut runs = run_cores(&cores, &b, &mut outs).into_iter().zip(outs);
+    let mut results = Vec::with_capacity(designs.len());
+    for (name, design) in &designs {
+        let outcome = match design {
+            Ok(core) => match runs.next() {
+                Some((Ok(()), s)) => Ok((core.fwd.clone(), s)),
+                Some((Err(e), _)) => Err(e),
+                // One run per successful design: cannot happen.
+                None => Ok((core.fwd.clone(), EqualisedSymbols::default())),
+            },
+            Err(e) => Err(e.clone()),
+        };
+        results.push(EqualiserResult { name, outcome });
     }
     let bounds = theory::bounds(
         &channel.taps,
@@ -706,6 +876,9 @@ impl Slicer for crate::signal::Constellation {
     #[inline]
     fn points(&self) -> &[Cf32] {
         crate::signal::Constellation::points(self)
+    }
+    fn as_constellation(&self) -> Option<&crate::signal::Constellation> {
+        Some(self)
     }
 }
 

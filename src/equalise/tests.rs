@@ -1132,3 +1132,208 @@ fn skipping_the_zf_dfe_leaves_every_other_result_unchanged() {
         (b.channel, b.carrier, b.bounds, b.corrected)
     );
 }
+
+#[test]
+fn interleaved_passes_give_bit_identical_symbols_to_each_equaliser_run_alone() {
+    // Source: definition (the lanes of `run_cores` share nothing but the input).
+    // Every equaliser type, the phase loop on, an adapting core among fixed
+    // ones and a genie that must fail (no known symbols) while the others run;
+    // training first (forward lanes only: one core alone takes the single-lane
+    // path, all together the interleaved one) and in the middle (time-reversed
+    // lanes too, ending long before the forward ones).
+    for before in [0, 150] {
+        interleaving_case(before);
+    }
+}
+
+fn interleaving_case(before: usize) {
+    let h = [
+        Cf64::new(0.15, 0.1),
+        Cf64::new(1.0, 0.0),
+        Cf64::new(0.4, -0.2),
+    ];
+    let c = Constellation::new(Modulation::Qam16);
+    let sim = simulate(34, Modulation::Qam16, &h, 1, 22.0, before, 64, 700);
+    let est = fit_channel(&sim.y, sim.training(), sim.offset, &fixed(1, 1)).unwrap();
+    let ch = design_input(&est);
+    let opts = RunOptions {
+        phase_loop: Some(tracking::LoopConfig {
+            bandwidth: 0.01,
+            damping: std::f64::consts::FRAC_1_SQRT_2,
+        }),
+        initial_freq_cycles_per_symbol: 1e-4,
+        ..RunOptions::default()
+    };
+    let lms = RunOptions {
+        tracking: TrackingConfig {
+            mode: AdaptMode::Lms,
+            ..TrackingConfig::default()
+        },
+        ..opts
+    };
+    let zf = ZfDfe::new(&ch, None, 1.0, opts).unwrap();
+    let mmse = MmseDfe::new(&ch, 8, 3, None, opts).unwrap();
+    let lin = LinearMmse::new(&ch, 8, None, opts).unwrap();
+    let tracked = MmseDfe::new(&ch, 8, 3, None, lms).unwrap();
+    let genie = GenieDfe::from_design(&mmse.core);
+    let cores = [&zf.core, &mmse.core, &lin.core, &tracked.core, &genie.core];
+    for known in [true, false] {
+        let view = sim.view(&sim.y, &c, known);
+        let mut outs = vec![EqualisedSymbols::default(); cores.len()];
+        let status = run_cores(&cores, &view, &mut outs);
+        for (k, core) in cores.iter().enumerate() {
+            let mut alone = EqualisedSymbols::default();
+            let want = core.run_into(&view, &mut alone);
+            assert_eq!(status[k], want, "core {k}, known {known}, before {before}");
+            if want.is_ok() {
+                // Bit for bit (`PartialEq` on f32 would also accept 0.0 == −0.0).
+                let bits = |s: &EqualisedSymbols| {
+                    let f = |v: &Cf32| (v.re.to_bits(), v.im.to_bits());
+                    (
+                        s.soft.iter().map(f).collect::<Vec<_>>(),
+                        s.labels.clone(),
+                        s.phase_rad.iter().map(|p| p.to_bits()).collect::<Vec<_>>(),
+                    )
+                };
+                assert_eq!(
+                    bits(&outs[k]),
+                    bits(&alone),
+                    "core {k}, known {known}, before {before}"
+                );
+            }
+        }
+        assert_eq!(status[4].is_ok(), known);
+    }
+}
+
+/// Textbook DFE with the second-order phase loop: one symbol at a time, the
+/// feedforward sum straight from the apply form, the loop stepped by
+/// `PhaseLoop::update` with the detector `Im(z·d*)/|d|²`.
+#[allow(clippy::too_many_arguments)]
+fn textbook_dfe_with_loop(
+    y: &[Cf32],
+    f: &DfeFilters,
+    truth: &[Cf32],
+    truth_range: std::ops::Range<usize>,
+    start: usize,
+    mut pll: tracking::PhaseLoop,
+    c: &Constellation,
+) -> Vec<(Cf32, f32)> {
+    let mut d = vec![Cf32::new(0.0, 0.0); y.len()];
+    for n in truth_range.clone().filter(|&n| n < start) {
+        d[n] = truth[n];
+    }
+    let mut out = Vec::new();
+    for n in start..y.len() {
+        let mut acc = Cf32::new(0.0, 0.0);
+        for (r, w) in f.ff.iter().enumerate() {
+            let k = n as isize + f.lag() - r as isize;
+            if k >= 0 && (k as usize) < y.len() {
+                acc += w * y[k as usize];
+            }
+        }
+        let mut z = acc * pll.phasor().conj();
+        for (j, b) in f.fb.iter().enumerate() {
+            if let Some(k) = n.checked_sub(j + 1) {
+                z -= b * d[k];
+            }
+        }
+        d[n] = if truth_range.contains(&n) {
+            truth[n]
+        } else {
+            c.decide(z)
+        };
+        out.push((z, pll.phase as f32));
+        let e = (z * d[n].conj()).im / d[n].norm_sqr();
+        pll.update(e);
+    }
+    out
+}
+
+#[test]
+fn dfe_loop_with_the_phase_loop_matches_the_textbook_loop() {
+    // Reference: the one-symbol-at-a-time loop above. Both f32 with a different
+    // feedforward summation order: 1e-4 absolute on unit-power symbols and on
+    // the loop phase (decisions agree at 30 dB, so the loops see the same errors).
+    let c = Constellation::new(Modulation::Qam16);
+    let h = [
+        Cf64::new(0.2, 0.1),
+        Cf64::new(1.0, 0.0),
+        Cf64::new(0.4, -0.3),
+    ];
+    let cfg = tracking::LoopConfig {
+        bandwidth: 0.01,
+        damping: std::f64::consts::FRAC_1_SQRT_2,
+    };
+    for (after, nf, nb) in [(1, 1, 0), (37, 8, 3), (300, 16, 8), (301, 5, 0)] {
+        let sim = simulate(
+            60 + after as u64,
+            Modulation::Qam16,
+            &h,
+            1,
+            30.0,
+            0,
+            64,
+            after,
+        );
+        let est = fit_channel(&sim.y, sim.training(), 0, &fixed(1, 1)).unwrap();
+        let opts = RunOptions {
+            phase_loop: Some(cfg),
+            initial_freq_cycles_per_symbol: 2e-4,
+            ..RunOptions::default()
+        };
+        let mut eq = MmseDfe::new(&design_input(&est), nf, nb, None, opts).unwrap();
+        let out = eq.run(&sim.view(&sim.y, &c, false)).unwrap();
+        let mut pll = tracking::PhaseLoop::new(&cfg);
+        pll.freq = 2.0 * std::f64::consts::PI * 2e-4;
+        let mut truth = vec![Cf32::new(0.0, 0.0); sim.y.len()];
+        truth[..64].copy_from_slice(sim.training());
+        let slow = textbook_dfe_with_loop(&sim.y, eq.filters(), &truth, 0..64, 0, pll, &c);
+        for (n, (z, p)) in slow.iter().enumerate() {
+            assert!(
+                (out.soft[n] - z).norm() < 1e-4 && (out.phase_rad[n] - p).abs() < 1e-4,
+                "case {after}/{nf}/{nb}: first difference at n = {n}"
+            );
+        }
+    }
+}
+
+#[test]
+fn anchored_derotation_matches_a_sin_cos_per_sample() {
+    // Slow twin of `derotate_into`: one f64 sin_cos per sample (the former code).
+    // Tolerance 2e-7 on unit-magnitude samples: the f32 rounding of the phasor
+    // (2⁻²⁴ ≈ 6e-8 per component) plus the f64 recurrence error between anchors
+    // (≈ 32 steps × a few 2⁻⁵³); in practice almost every output is identical.
+    // Source: common practice (fast path against the plain formula).
+    let slow = |y: &[Cf32], nu: f64, phase: f64| -> Vec<Cf32> {
+        y.iter()
+            .enumerate()
+            .map(|(n, v)| {
+                let a = -(2.0 * std::f64::consts::PI * nu * n as f64 + phase);
+                v * Cf32::new(a.cos() as f32, a.sin() as f32)
+            })
+            .collect()
+    };
+    let (mut same, mut total) = (0usize, 0usize);
+    for &nu in &[0.0, 1e-6, -3.7e-3, 0.01, 0.25, -0.4999] {
+        for &phase in &[0.0, -2.5, 1.0e3] {
+            for n in [0usize, 1, 31, 32, 33, 97, 1124] {
+                let y: Vec<Cf32> = (0..n)
+                    .map(|k| Cf32::from_polar(1.0, k as f32 * 0.37))
+                    .collect();
+                let mut fast = vec![Cf32::new(f32::NAN, 0.0); n];
+                derotate_into(&y, nu, phase, &mut fast);
+                for (k, (a, want)) in fast.iter().zip(slow(&y, nu, phase)).enumerate() {
+                    assert!(
+                        (a - want).norm() <= 2e-7,
+                        "nu={nu} phase={phase} n={n} k={k}: {a} vs {want}"
+                    );
+                    same += usize::from(*a == want);
+                    total += 1;
+                }
+            }
+        }
+    }
+    // Informative bound, far from the 1-in-10⁶ expected: at most 1 % differ.
+    assert!(same * 100 >= total * 99, "{same} of {total} identical");
+}

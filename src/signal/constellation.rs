@@ -201,18 +201,199 @@ enum Slicer {
     /// Sign of Re + Im (points on the diagonal).
     Bpsk,
     /// Per-axis rounding. `levels` levels per axis at ±1, ±3, … (×`scale`);
-    /// `i_label[idx]`/`q_label[idx]` hold that axis's bits already placed in the label.
+    /// `i_label[idx]`/`q_label[idx]` hold that axis's bits already placed in the label;
+    /// `i_value[idx]`/`q_value[idx]` the point's real/imaginary part at that level
+    /// (so the decided point needs no second lookup through the label).
     SquareQam {
         levels: usize,
         inv_scale: f32,
         i_label: Vec<usize>,
         q_label: Vec<usize>,
+        i_value: Vec<f32>,
+        q_value: Vec<f32>,
+        /// `thresholds[j − 1]`: the smallest f32 the rounding formula puts at
+        /// level index ≥ `j` (see [`QamKernel`]).
+        thresholds: Vec<f32>,
     },
     /// Sector lookup: sector `k` is centred on angle `offset_rad + k·2π/M`.
     Psk {
         offset_rad: f32,
         sector_label: Vec<usize>,
     },
+}
+
+/// A constellation's slicer with the scheme chosen once: hot loops that slice
+/// many symbols match on the kernel outside the loop and call the kernel's
+/// `decide` inside it (inlined, no per-symbol match). [`Constellation::slice`]
+/// goes through the same kernels, so both give the same label for every input.
+#[derive(Clone, Copy, Debug)]
+pub(crate) enum SliceKernel<'a> {
+    /// BPSK.
+    Bpsk(BpskKernel<'a>),
+    /// QPSK (one threshold per axis).
+    Qam1(QamKernel<'a, 1>),
+    /// 16-QAM (three thresholds per axis).
+    Qam3(QamKernel<'a, 3>),
+    /// 64-QAM (seven thresholds per axis).
+    Qam7(QamKernel<'a, 7>),
+    /// Square QAM by the rounding formula (256-QAM).
+    QamFormula(QamKernel<'a, 0>),
+    /// 8PSK.
+    Psk(PskKernel<'a>),
+}
+
+/// BPSK kernel: sign of the projection on the diagonal.
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct BpskKernel<'a> {
+    points: &'a [Cf32],
+}
+
+impl BpskKernel<'_> {
+    /// Label of the nearest point.
+    #[inline(always)]
+    pub(crate) fn slice(&self, z: Cf32) -> usize {
+        usize::from(z.re + z.im < 0.0)
+    }
+    /// Label and point of the nearest point.
+    #[inline(always)]
+    pub(crate) fn decide(&self, z: Cf32) -> (usize, Cf32) {
+        let l = self.slice(z);
+        (l, self.points[l & 1])
+    }
+}
+
+/// Square-QAM kernel: per-axis level index, then table lookups.
+///
+/// The level index is defined by the rounding formula
+/// `floor((x·inv_scale + L)/2)` clamped to `[0, L−1]` ([`QamKernel::index_by_formula`]).
+/// With `T = L − 1 > 0` it is found instead by counting the `T` thresholds
+/// `x` reaches: the formula is a non-decreasing function of `x`, so its value
+/// is the number of `j ≥ 1` whose threshold (the smallest f32 the formula puts at
+/// ≥ `j`, found by bisection when the constellation is built) is ≤ `x` — the
+/// same index for every input, NaN included (no comparison holds: index 0, as
+/// the formula's `max(0)` gives), with a much shorter dependency chain than
+/// multiply, add, clamp and convert. `T = 0` uses the formula.
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct QamKernel<'a, const T: usize> {
+    /// Levels per axis as f32 (`L`).
+    l: f32,
+    /// `L − 1` as f32.
+    max: f32,
+    inv_scale: f32,
+    thresholds: [f32; T],
+    i_label: &'a [usize],
+    q_label: &'a [usize],
+    i_value: &'a [f32],
+    q_value: &'a [f32],
+}
+
+/// Level index of one axis value by the rounding formula (see [`QamKernel`]).
+#[inline(always)]
+fn qam_index_by_formula(x: f32, inv_scale: f32, l: f32, max: f32) -> usize {
+    // Level index = floor((x + L)/2) with x in grid units, clamped to [0, L−1].
+    // `f32::clamp` would keep NaN; `max(0).min(max)` maps NaN to 0. After
+    // the clamp the value is ≥ 0, where the truncating `as usize` is the
+    // floor (and no libm `floorf` call on targets without SSE4.1).
+    ((x * inv_scale + l) * 0.5).max(0.0).min(max) as usize
+}
+
+/// `thresholds[j − 1]` of [`QamKernel`] for `j = 1..levels`: the smallest f32
+/// `x` with `qam_index_by_formula(x) ≥ j`, by bisection over the f32 values in
+/// order (the formula is non-decreasing in `x`).
+fn qam_thresholds(levels: usize, inv_scale: f32) -> Vec<f32> {
+    // Order-preserving map between f32 (not NaN) and i64.
+    let key = |x: f32| -> i64 {
+        let b = x.to_bits();
+        if b >> 31 == 1 {
+            -i64::from(b & 0x7fff_ffff)
+        } else {
+            i64::from(b)
+        }
+    };
+    let value = |k: i64| -> f32 {
+        if k < 0 {
+            f32::from_bits((-k) as u32 | 0x8000_0000)
+        } else {
+            f32::from_bits(k as u32)
+        }
+    };
+    let l = levels as f32;
+    let max = (levels - 1) as f32;
+    let f = |x: f32| qam_index_by_formula(x, inv_scale, l, max);
+    (1..levels)
+        .map(|j| {
+            // f(−∞) = 0 < j ≤ L − 1 = f(+∞): invariant f(lo) < j ≤ f(hi).
+            let (mut lo, mut hi) = (key(f32::NEG_INFINITY), key(f32::INFINITY));
+            while hi - lo > 1 {
+                let mid = lo + (hi - lo) / 2;
+                if f(value(mid)) >= j {
+                    hi = mid;
+                } else {
+                    lo = mid;
+                }
+            }
+            value(hi)
+        })
+        .collect()
+}
+
+impl<const T: usize> QamKernel<'_, T> {
+    /// Level index of one axis value by the rounding formula.
+    #[inline(always)]
+    pub(crate) fn index_by_formula(&self, x: f32) -> usize {
+        qam_index_by_formula(x, self.inv_scale, self.l, self.max)
+    }
+    /// Level index of one axis value (thresholds when `T > 0`).
+    #[inline(always)]
+    fn index(&self, x: f32) -> usize {
+        if T == 0 {
+            self.index_by_formula(x)
+        } else {
+            self.thresholds.iter().map(|&t| usize::from(x >= t)).sum()
+        }
+    }
+    /// Label of the nearest point.
+    #[inline(always)]
+    pub(crate) fn slice(&self, z: Cf32) -> usize {
+        self.i_label[self.index(z.re)] | self.q_label[self.index(z.im)]
+    }
+    /// Label and point of the nearest point (the point read per axis).
+    #[inline(always)]
+    pub(crate) fn decide(&self, z: Cf32) -> (usize, Cf32) {
+        let (ii, qi) = (self.index(z.re), self.index(z.im));
+        (
+            self.i_label[ii] | self.q_label[qi],
+            Cf32::new(self.i_value[ii], self.q_value[qi]),
+        )
+    }
+}
+
+/// PSK kernel: angle, sector, label.
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct PskKernel<'a> {
+    offset_rad: f32,
+    sector_label: &'a [usize],
+    points: &'a [Cf32],
+}
+
+impl PskKernel<'_> {
+    /// Label of the nearest point.
+    #[inline(always)]
+    pub(crate) fn slice(&self, z: Cf32) -> usize {
+        let m = self.sector_label.len();
+        let step = 2.0 * PI / m as f32;
+        let theta = z.im.atan2(z.re) - self.offset_rad;
+        let k = (theta / step).round();
+        // `as i64` saturates and maps NaN to 0; rem_euclid keeps it in range.
+        let k = (k as i64).rem_euclid(m as i64) as usize;
+        self.sector_label[k]
+    }
+    /// Label and point of the nearest point.
+    #[inline(always)]
+    pub(crate) fn decide(&self, z: Cf32) -> (usize, Cf32) {
+        let l = self.slice(z);
+        (l, self.points[l])
+    }
 }
 
 /// A constellation: its points indexed by label and an O(1) slicer.
@@ -274,6 +455,8 @@ impl Constellation {
         let mut points = Vec::with_capacity(order);
         let mut i_label = vec![0usize; levels];
         let mut q_label = vec![0usize; levels];
+        let mut i_value = vec![0f32; levels];
+        let mut q_value = vec![0f32; levels];
         for label in 0..order {
             // Split label bits b0 b1 b2 … (MSB first) into I = b0 b2 …, Q = b1 b3 ….
             let (mut ib, mut qb) = (0usize, 0usize);
@@ -283,12 +466,15 @@ impl Constellation {
             }
             let li = axis_level(ib, k);
             let lq = axis_level(qb, k);
-            points.push(Cf32::new(li as f32 * scale, lq as f32 * scale));
+            let point = Cf32::new(li as f32 * scale, lq as f32 * scale);
+            points.push(point);
             // Level index: level −(L−1) → 0, …, +(L−1) → L−1.
             let idx_i = ((li + levels as i32 - 1) / 2) as usize;
             let idx_q = ((lq + levels as i32 - 1) / 2) as usize;
             i_label[idx_i] = label & Self::i_mask(bps);
             q_label[idx_q] = label & !Self::i_mask(bps) & (order - 1);
+            i_value[idx_i] = point.re;
+            q_value[idx_q] = point.im;
         }
         Constellation {
             modulation: m,
@@ -300,6 +486,9 @@ impl Constellation {
                 inv_scale: norm.sqrt() as f32,
                 i_label,
                 q_label,
+                i_value,
+                q_value,
+                thresholds: qam_thresholds(levels, norm.sqrt() as f32),
             },
         }
     }
@@ -425,39 +614,75 @@ impl Constellation {
         }
     }
 
-    /// Label of the point nearest to `z` (Euclidean), O(1).
+    /// The slicer with the scheme chosen once (see [`SliceKernel`]).
     #[inline]
-    pub fn slice(&self, z: Cf32) -> usize {
+    pub(crate) fn kernel(&self) -> SliceKernel<'_> {
         match &self.slicer {
-            Slicer::Bpsk => usize::from(z.re + z.im < 0.0),
+            Slicer::Bpsk => SliceKernel::Bpsk(BpskKernel {
+                points: &self.points,
+            }),
             Slicer::SquareQam {
                 levels,
                 inv_scale,
                 i_label,
                 q_label,
+                i_value,
+                q_value,
+                thresholds,
             } => {
-                let l = *levels as f32;
-                let max = (*levels - 1) as f32;
-                // Level index = floor((x + L)/2) with x in grid units, clamped to [0, L−1].
-                // `f32::clamp` would keep NaN; `max(0).min(max)` maps NaN to 0. After
-                // the clamp the value is ≥ 0, where the truncating `as usize` is the
-                // floor (and no libm `floorf` call on targets without SSE4.1).
-                let ii = ((z.re * inv_scale + l) * 0.5).max(0.0).min(max) as usize;
-                let qi = ((z.im * inv_scale + l) * 0.5).max(0.0).min(max) as usize;
-                i_label[ii] | q_label[qi]
+                fn make<'a, const T: usize>(
+                    levels: usize,
+                    inv_scale: f32,
+                    thresholds: [f32; T],
+                    tables: [&'a [usize]; 2],
+                    values: [&'a [f32]; 2],
+                ) -> QamKernel<'a, T> {
+                    QamKernel {
+                        l: levels as f32,
+                        max: (levels - 1) as f32,
+                        inv_scale,
+                        thresholds,
+                        i_label: tables[0],
+                        q_label: tables[1],
+                        i_value: values[0],
+                        q_value: values[1],
+                    }
+                }
+                let (n, s) = (*levels, *inv_scale);
+                let t = [&i_label[..], &q_label[..]];
+                let v = [&i_value[..], &q_value[..]];
+                let th = &thresholds[..];
+                if let Ok(a) = <[f32; 1]>::try_from(th) {
+                    SliceKernel::Qam1(make(n, s, a, t, v))
+                } else if let Ok(a) = <[f32; 3]>::try_from(th) {
+                    SliceKernel::Qam3(make(n, s, a, t, v))
+                } else if let Ok(a) = <[f32; 7]>::try_from(th) {
+                    SliceKernel::Qam7(make(n, s, a, t, v))
+                } else {
+                    SliceKernel::QamFormula(make(n, s, [], t, v))
+                }
             }
             Slicer::Psk {
                 offset_rad,
                 sector_label,
-            } => {
-                let m = sector_label.len();
-                let step = 2.0 * PI / m as f32;
-                let theta = z.im.atan2(z.re) - offset_rad;
-                let k = (theta / step).round();
-                // `as i64` saturates and maps NaN to 0; rem_euclid keeps it in range.
-                let k = (k as i64).rem_euclid(m as i64) as usize;
-                sector_label[k]
-            }
+            } => SliceKernel::Psk(PskKernel {
+                offset_rad: *offset_rad,
+                sector_label,
+                points: &self.points,
+            }),
+        }
+    }
+
+    /// Label of the point nearest to `z` (Euclidean), O(1).
+    #[inline]
+    pub fn slice(&self, z: Cf32) -> usize {
+        match self.kernel() {
+            SliceKernel::Bpsk(k) => k.slice(z),
+            SliceKernel::Qam1(k) => k.slice(z),
+            SliceKernel::Qam3(k) => k.slice(z),
+            SliceKernel::Qam7(k) => k.slice(z),
+            SliceKernel::QamFormula(k) => k.slice(z),
+            SliceKernel::Psk(k) => k.slice(z),
         }
     }
 
@@ -473,8 +698,21 @@ impl Constellation {
     /// If the lengths differ (a programmer error).
     pub fn slice_into(&self, z: &[Cf32], labels: &mut [usize]) {
         assert_eq!(z.len(), labels.len(), "slice_into: length mismatch");
-        for (l, &v) in labels.iter_mut().zip(z) {
-            *l = self.slice(v);
+        // The scheme is chosen once for the block.
+        macro_rules! each {
+            ($k:expr) => {
+                for (l, &v) in labels.iter_mut().zip(z) {
+                    *l = $k.slice(v);
+                }
+            };
+        }
+        match self.kernel() {
+            SliceKernel::Bpsk(k) => each!(k),
+            SliceKernel::Qam1(k) => each!(k),
+            SliceKernel::Qam3(k) => each!(k),
+            SliceKernel::Qam7(k) => each!(k),
+            SliceKernel::QamFormula(k) => each!(k),
+            SliceKernel::Psk(k) => each!(k),
         }
     }
 }
@@ -806,6 +1044,116 @@ mod tests {
                 assert!(c.slice(z) < c.order());
             }
         }
+    }
+
+    #[test]
+    fn kernel_decide_gives_the_slice_label_and_its_point_for_every_input() {
+        // Reference: `slice` (checked against brute force above) and `points()[label]`;
+        // the per-axis point tables must reproduce the point exactly (bit for bit),
+        // including for non-finite and far-out inputs. Source: common practice
+        // (fast path against the plain path).
+        let mut rng = ChaCha8Rng::seed_from_u64(0x5eed_0002);
+        let specials = [
+            Cf32::new(f32::NAN, 0.0),
+            Cf32::new(0.0, f32::NAN),
+            Cf32::new(f32::INFINITY, f32::NEG_INFINITY),
+            Cf32::new(f32::MAX, -f32::MAX),
+            Cf32::new(0.0, 0.0),
+            Cf32::new(-0.0, 0.0),
+        ];
+        for c in all_constellations() {
+            let zs = specials
+                .iter()
+                .copied()
+                .chain(c.points().iter().copied())
+                .chain((0..20_000).map(|n| {
+                    let r = if n % 10 == 0 { 50.0 } else { 1.6 };
+                    Cf32::new(rng.gen_range(-r..r), rng.gen_range(-r..r))
+                }));
+            for z in zs {
+                let (label, point) = match c.kernel() {
+                    SliceKernel::Bpsk(k) => k.decide(z),
+                    SliceKernel::Qam1(k) => k.decide(z),
+                    SliceKernel::Qam3(k) => k.decide(z),
+                    SliceKernel::Qam7(k) => k.decide(z),
+                    SliceKernel::QamFormula(k) => k.decide(z),
+                    SliceKernel::Psk(k) => k.decide(z),
+                };
+                assert_eq!(label, c.slice(z), "{:?} z={z}", c.modulation());
+                let want = c.points()[label];
+                assert_eq!(
+                    point.re.to_bits(),
+                    want.re.to_bits(),
+                    "{:?}",
+                    c.modulation()
+                );
+                assert_eq!(
+                    point.im.to_bits(),
+                    want.im.to_bits(),
+                    "{:?}",
+                    c.modulation()
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn qam_threshold_count_gives_the_formula_level_index_for_every_input() {
+        // Reference: the rounding formula (`index_by_formula`, the slicer's
+        // definition). Exact equality, checked on both sides of every threshold
+        // (the neighbouring f32 values), at specials and on a random sweep.
+        // Source: common practice (fast path against the plain formula).
+        fn check<const T: usize>(k: &QamKernel<'_, T>, name: &str) {
+            let mut rng = ChaCha8Rng::seed_from_u64(0x5eed_0003);
+            let mut xs = vec![
+                f32::NAN,
+                -f32::NAN,
+                f32::INFINITY,
+                f32::NEG_INFINITY,
+                f32::MAX,
+                -f32::MAX,
+                0.0,
+                -0.0,
+                f32::MIN_POSITIVE,
+                -f32::MIN_POSITIVE,
+            ];
+            for &t in &k.thresholds {
+                let up = f32::from_bits(if t >= 0.0 {
+                    t.to_bits() + 1
+                } else {
+                    t.to_bits() - 1
+                });
+                let down = f32::from_bits(if t > 0.0 {
+                    t.to_bits() - 1
+                } else {
+                    t.to_bits() + 1
+                });
+                xs.extend([t, up, down]);
+            }
+            xs.extend((0..100_000).map(|n| {
+                let r = if n % 10 == 0 { 100.0 } else { 1.6 };
+                rng.gen_range(-r..r)
+            }));
+            for x in xs {
+                assert_eq!(k.index(x), k.index_by_formula(x), "{name} x={x:e}");
+            }
+        }
+        for c in all_constellations() {
+            let name = c.modulation().name();
+            match c.kernel() {
+                SliceKernel::Qam1(k) => check(&k, name),
+                SliceKernel::Qam3(k) => check(&k, name),
+                SliceKernel::Qam7(k) => check(&k, name),
+                SliceKernel::QamFormula(k) => check(&k, name),
+                SliceKernel::Bpsk(_) | SliceKernel::Psk(_) => {}
+            }
+        }
+        // Every square QAM but 256-QAM takes the threshold path.
+        let kinds: Vec<bool> = [Modulation::Qpsk, Modulation::Qam16, Modulation::Qam64]
+            .into_iter()
+            .map(|m| matches!(Constellation::new(m).kernel(), SliceKernel::QamFormula(_)))
+            .collect();
+        assert_eq!(kinds, [false, false, false]);
     }
 
     #[test]
