@@ -150,6 +150,22 @@ impl TraceSelection {
         }
     }
 
+    /// The RMS EVM a burst offered next must exceed to enter the worst `k`, or
+    /// `None` while fewer than `k` bursts are in (any burst enters).
+    fn entry_floor(&self) -> Option<f64> {
+        if self.worst.len() < self.k {
+            return None;
+        }
+        Some(self.worst.first().map_or(f64::INFINITY, |b| b.evm))
+    }
+
+    /// Whether burst `index` with RMS EVM `evm`, offered after the bursts that
+    /// gave `floor` ([`entry_floor`](Self::entry_floor)), may be in the final
+    /// traced set (a superset test: a later burst can still push it out).
+    fn may_enter(&self, index: usize, evm: f64, floor: Option<f64>) -> bool {
+        self.k > 0 && (index < self.k || floor.map_or(true, |f| evm.total_cmp(&f).is_ge()))
+    }
+
     /// The traced set once all `n` bursts are offered, in increasing index order:
     /// bursts `0..k` and the `k` worst.
     fn members(&self, n: usize) -> Vec<usize> {
@@ -440,13 +456,17 @@ pub fn analyse_capture(
         let mut selection = TraceSelection::new(traced);
         let mut bursts: Vec<BurstReport> = Vec::with_capacity(detections.len());
         for (b, batch) in detections.chunks(BURST_BATCH).enumerate() {
+            // Detail (trace, channel response) for the bursts that may end up in
+            // the traced set, judged by what the earlier batches settled.
+            let floor = selection.entry_floor();
             let done = batch
                 .par_iter()
                 .enumerate()
                 .map(|(j, det)| {
                     let k = b * BURST_BATCH + j;
                     let bs = sync.refine(&src, det)?;
-                    analyse_burst(k, &bs, &plan, profile, &sync, &src, &capture, false)
+                    let want = |evm: f64| selection.may_enter(k, evm, floor);
+                    analyse_burst(k, &bs, &plan, profile, &sync, &src, &capture, &want)
                 })
                 .collect::<Result<Vec<_>, Error>>()?;
             // Burst reads are small and leave their pages mapped; let this
@@ -466,19 +486,29 @@ pub fn analyse_capture(
                 bursts.push(r);
             }
         }
-        // Traces only for the traced set, known once every burst is in: analyse
-        // those bursts again with the trace on. The analysis is deterministic, so
-        // the second run gives the very figures of the first; only the trace and
-        // the channel response are taken from it.
-        let traced: Vec<usize> = selection.members(bursts.len());
-        let details = traced
+        // The traced set is known once every burst is in. Drop the detail of
+        // the bursts outside it, and analyse again, with the detail on, the
+        // members that were not judged likely when their batch ran. The analysis
+        // is deterministic, so the second run gives the very figures of the first;
+        // only the trace and the channel response are taken from it.
+        let traced = selection.members(bursts.len());
+        let mut missing = Vec::new();
+        for (k, b) in bursts.iter_mut().enumerate() {
+            if traced.binary_search(&k).is_err() {
+                b.trace = None;
+                b.channel.response_db = None;
+            } else if b.trace.is_none() {
+                missing.push(k);
+            }
+        }
+        let details = missing
             .par_iter()
             .map(|&k| {
                 let bs = sync.refine(&src, &detections[k])?;
-                analyse_burst(k, &bs, &plan, profile, &sync, &src, &capture, true)
+                analyse_burst(k, &bs, &plan, profile, &sync, &src, &capture, &|_| true)
             })
             .collect::<Result<Vec<_>, Error>>()?;
-        for (k, d) in traced.into_iter().zip(details) {
+        for (k, d) in missing.into_iter().zip(details) {
             if let Some(b) = bursts.get_mut(k) {
                 debug_assert_eq!(b.metrics.evm_rms_percent, d.metrics.evm_rms_percent);
                 b.trace = d.trace;
@@ -579,7 +609,7 @@ fn analyse_burst<S: SampleSource + ?Sized>(
     sync: &Synchroniser,
     src: &S,
     capture: &Capture,
-    detail: bool,
+    want_detail: &(dyn Fn(f64) -> bool + Sync),
 ) -> Result<BurstReport, Error> {
     let mut warnings = Vec::new();
     let l = plan.training.len();
@@ -675,6 +705,9 @@ fn analyse_burst<S: SampleSource + ?Sized>(
     let mut acc = EvmAccumulator::default();
     acc.add(&z, reference, 0);
     let fig = acc.figures();
+    // The trace and the channel response only where the caller may keep them
+    // (the value judged is `metrics.evm_rms_percent` below).
+    let detail = want_detail(fig.map(|f| f.evm_rms_percent).unwrap_or(0.0));
     let payload_numbers: Vec<usize> = present.iter().map(|&(p, _)| p).collect();
 
     let (ser, ber, runs, wrong, propagation) = match &known_payload {
@@ -1365,6 +1398,40 @@ mod tests {
                 for _ in 0..5 {
                     order.shuffle(&mut rng);
                     assert_eq!(streamed(&evm, k, &order), want, "n {n} k {k} shuffled");
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn bursts_judged_unlikely_in_their_batch_never_end_up_in_the_traced_set() {
+        // The first pass computes details only where `may_enter` says yes, judged
+        // against the floor the earlier batches settled; the traced set at the end
+        // (checked against the full-sort twin) must lie inside what was judged.
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(11);
+        for n in [0usize, 1, 5, 64, 65, 300] {
+            for k in [0usize, 1, 3, 8] {
+                for batch in [1usize, 7, 64] {
+                    let evm: Vec<f64> = (0..n).map(|_| f64::from(rng.gen_range(0..9u8))).collect();
+                    let mut sel = TraceSelection::new(k);
+                    let mut judged = Vec::new();
+                    for start in (0..n).step_by(batch) {
+                        let floor = sel.entry_floor();
+                        let end = (start + batch).min(n);
+                        for (i, e) in evm.iter().enumerate().take(end).skip(start) {
+                            if sel.may_enter(i, *e, floor) {
+                                judged.push(i);
+                            }
+                        }
+                        for (i, e) in evm.iter().enumerate().take(end).skip(start) {
+                            sel.offer(i, *e);
+                        }
+                    }
+                    let members = sel.members(n);
+                    assert_eq!(members, reference(&evm, k), "n {n} k {k} batch {batch}");
+                    for m in &members {
+                        assert!(judged.contains(m), "n {n} k {k} batch {batch}: {m}");
+                    }
                 }
             }
         }
