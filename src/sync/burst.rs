@@ -15,8 +15,8 @@ use super::timing::{
     best_instant, interpolate_with, sinc_weights, sinc_weights_f64, training_correlation, SINC_HALF,
 };
 use super::{
-    cfo, derotate_run, read_padded, rotation, BurstSync, Detection, SampleSource, SymbolSpan,
-    SyncError, Synchroniser,
+    cfo, derotate_run, read_padded, BurstSync, Detection, SampleSource, SymbolSpan, SyncError,
+    Synchroniser,
 };
 use crate::channel::{fit_taps, ChannelFitConfig};
 use crate::{Cf32, Cf64};
@@ -48,8 +48,8 @@ fn folded_taps(pulse: &[f32], w: &[f64; 2 * SINC_HALF], g2: &mut [f32]) {
 }
 
 /// `Σ_q g_q·x_q` for complex `x` and real taps given as [`folded_taps`] writes them;
-/// `x.len()·2 == g2.len()`, a multiple of `2·FOLD_LANES`. Eight independent f32
-/// partial sums (four complex lanes), added lane by lane at the end.
+/// `x.len()·2 == g2.len()`, a multiple of `2·FOLD_LANES`. `2·FOLD_LANES` independent
+/// f32 partial sums (`FOLD_LANES` complex lanes), added lane by lane at the end.
 #[inline]
 fn dot_real_taps(x: &[Cf32], g2: &[f32]) -> Cf32 {
     let xf: &[f32] = bytemuck::cast_slice(x);
@@ -62,10 +62,12 @@ fn dot_real_taps(x: &[Cf32], g2: &[f32]) -> Cf32 {
             acc[l] += xc[l] * gc[l];
         }
     }
-    Cf32::new(
-        (acc[0] + acc[2]) + (acc[4] + acc[6]),
-        (acc[1] + acc[3]) + (acc[5] + acc[7]),
-    )
+    let (mut re, mut im) = (0.0f32, 0.0f32);
+    for pair in acc.chunks_exact(2) {
+        re += pair[0];
+        im += pair[1];
+    }
+    Cf32::new(re, im)
 }
 
 impl Synchroniser {
@@ -115,12 +117,14 @@ impl Synchroniser {
         read_padded(src, n0 - self.head as i64, &mut x)?;
         let s = self.cfg.cfo_segments.min(l).max(1);
         let seg = l / s;
+        // conj(ref_m·e^{j2πf_h·m})·x_m = conj(ref_m)·(x_m·e^{−j2πf_h·m}): de-rotate the
+        // samples with the anchored phasor instead of one sin_cos per reference sample.
+        derotate_run(&mut x, -f_h, |m| m as f64);
         let segs: Vec<Cf64> = (0..s)
             .map(|j| {
                 (j * seg..(j + 1) * seg)
                     .map(|m| {
-                        let r = self.reference[m] * rotation(f_h, m as f64);
-                        let p = r.conj() * x[m];
+                        let p = self.reference[m].conj() * x[m];
                         Cf64::new(f64::from(p.re), f64::from(p.im))
                     })
                     .sum()
