@@ -205,18 +205,25 @@ pub fn fit_taps(
     // Row t ∈ [t0, t1) of X holds x[t + pre − c] in column c (tap c − pre), so
     // (XᴴX)[a][b] = Σ_t conj(x[t+pre−a])·x[t+pre−b] and (Xᴴy)[a] = Σ_t conj(x[t+pre−a])·y[t].
     // The Gram is Hermitian: fill the lower triangle, read the upper by conjugation.
+    // With s = t + pre − a and lag δ = a − b ≥ 0, (XᴴX)[a][b] = Σ_s conj(x[s])·x[s+δ]
+    // over s ∈ [t0+pre−a, t1+pre−a): the window of (a+1, b+1) is that of (a, b) moved
+    // down by one sample, so each diagonal needs one full sum (b = 0) and then one term
+    // in and one out per step — O(M·K + K²) instead of O(M·K²).
     let x: Vec<Cf64> = training.iter().map(|v| widen(*v)).collect();
     let mut g = vec![Cf64::new(0.0, 0.0); k * k];
     let mut rhs = vec![Cf64::new(0.0, 0.0); k];
-    for t in t0..t1 {
-        let row = &x[t + pre + 1 - k..=t + pre];
-        let yv = widen(yt[t]);
-        for a in 0..k {
-            let xa = row[k - 1 - a].conj();
-            rhs[a] += xa * yv;
-            for b in 0..=a {
-                g[a * k + b] += xa * row[k - 1 - b];
-            }
+    for (a, r) in rhs.iter_mut().enumerate() {
+        *r = (t0..t1).map(|t| x[t + pre - a].conj() * widen(yt[t])).sum();
+    }
+    for delta in 0..k {
+        let (lo, hi) = (t0 + pre - delta, t1 + pre - delta);
+        let mut acc: Cf64 = (lo..hi).map(|s| x[s].conj() * x[s + delta]).sum();
+        g[delta * k] = acc;
+        for b in 1..k - delta {
+            // (a, b) = (delta + b, b): window [lo − b, hi − b).
+            let (add, drop) = (lo - b, hi - b);
+            acc += x[add].conj() * x[add + delta] - x[drop].conj() * x[drop + delta];
+            g[(delta + b) * k + b] = acc;
         }
     }
     // Cholesky G = L·Lᴴ in place (lower triangle).
