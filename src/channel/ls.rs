@@ -239,7 +239,7 @@ pub fn fit_taps(
         for p in 0..j {
             d -= g[j * k + p].norm_sqr();
         }
-        if !(d > 0.0) {
+        if d.is_nan() || d <= 0.0 {
             return Err(ill(f64::INFINITY));
         }
         min_pivot = min_pivot.min(d);
@@ -254,7 +254,7 @@ pub fn fit_taps(
         }
     }
     let bound = (max_diag / min_pivot).sqrt();
-    if !(bound <= max_condition) {
+    if bound.is_nan() || bound > max_condition {
         return Err(ill(bound));
     }
     // L·u = Xᴴy, then Lᴴ·h = u.

@@ -153,7 +153,7 @@ pub fn periodogram_frequency(u: &[Cf64], range: f64) -> f64 {
     let mut x = w;
     for _ in 0..NEWTON_ITERATIONS {
         let (_, d1, d2) = periodogram_derivatives(u, x);
-        if !(d2 < 0.0) {
+        if d2.is_nan() || d2 >= 0.0 {
             break;
         }
         let dx = -d1 / d2;
