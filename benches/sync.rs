@@ -3,7 +3,8 @@
 //!
 //! Takes in: optional `SYNC_BENCH_SAMPLES` (default 134 217 728 = 1 GiB of cf32) and
 //! `SYNC_BENCH_REPEATS` (default 3; the best run is reported), `SYNC_BENCH_CASES` (1 = only
-//! the one-hypothesis case). Gives out: a table on
+//! the one-hypothesis case, 0 = no search cases), `SYNC_BENCH_BURSTS` (default 4000, 0 = skip:
+//! bursts of the per-burst case, see `per_burst`). Gives out: a table on
 //! stdout. The capture is built in memory: complex white noise (Es/N0 10 dB relative to
 //! the bursts) with one QPSK burst (127-symbol training, sps 4, RRC β 0.25, 8-symbol
 //! span) every 2^20 samples. Run with `cargo bench --bench sync`.
@@ -216,11 +217,111 @@ fn file_mode(path: &Path, n: usize, repeats: usize, taps: &[f32], training: &[Cf
     }
 }
 
+/// Per-burst cost after the search, on a dense capture shaped like the end-to-end dense
+/// profile (`benches/e2e/profile.json`: 64-symbol QPSK training, 1024 payload symbols
+/// after it, sps 4, RRC β 0.25 span 8; a 3-tap symbol-spaced channel, Es/N0 20 dB,
+/// one burst every 4700 samples): `refine` alone, then `extract_symbols` of the frame
+/// (training and payload ± 8 symbols), 1 thread, best of `repeats`.
+fn per_burst(bursts: usize, repeats: usize, taps: &[f32]) {
+    const TRAIN: usize = 64;
+    const PAYLOAD: usize = 1024;
+    const SPACING: usize = 4700;
+    let training = qpsk(TRAIN, &mut ChaCha8Rng::seed_from_u64(9));
+    let mut rng = ChaCha8Rng::seed_from_u64(10);
+    let n = bursts * SPACING + 2000;
+    let s = (0.01f64 / 2.0).sqrt();
+    let mut x: Vec<Cf32> = (0..n)
+        .map(|_| {
+            let a: f64 = rng.sample(StandardNormal);
+            let c: f64 = rng.sample(StandardNormal);
+            Cf32::new((a * s) as f32, (c * s) as f32)
+        })
+        .collect();
+    let channel = [
+        Cf32::new(0.85, 0.0),
+        Cf32::new(0.3, -0.2),
+        Cf32::new(0.1, 0.05),
+    ];
+    for b in 0..bursts {
+        let mut symbols = training.clone();
+        symbols.extend(qpsk(PAYLOAD, &mut rng));
+        let through: Vec<Cf32> = (0..symbols.len())
+            .map(|k| {
+                channel
+                    .iter()
+                    .enumerate()
+                    .filter(|(i, _)| *i <= k)
+                    .map(|(i, h)| symbols[k - i] * *h)
+                    .sum()
+            })
+            .collect();
+        let burst = shape(&through, taps, SPS);
+        for (v, p) in x[1000 + b * SPACING..].iter_mut().zip(&burst) {
+            *v += *p;
+        }
+    }
+    let cfg = SyncConfig {
+        max_cfo_hz: 0.0,
+        ..SyncConfig::new(SPS, 1e6)
+    };
+    let s = Synchroniser::new(&training, taps, cfg).expect("valid settings");
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(1)
+        .build()
+        .expect("thread pool");
+    let found = pool.install(|| s.search(&x).expect("search"));
+    // Each timed run makes PASSES passes over all bursts, so the CPU time (read in
+    // 10 ms ticks) spans many ticks.
+    const PASSES: usize = 5;
+    let (rs, rcpu, synced) = best_of(repeats, || {
+        pool.install(|| {
+            let mut out = Vec::new();
+            for _ in 0..PASSES {
+                out = found
+                    .iter()
+                    .map(|d| s.refine(&x[..], d).expect("refine"))
+                    .collect::<Vec<_>>();
+            }
+            out
+        })
+    });
+    let frame = -8..(TRAIN + PAYLOAD + 8) as i64;
+    let mut y = vec![Cf32::new(0.0, 0.0); (frame.end - frame.start) as usize];
+    let (es, ecpu, _) = best_of(repeats, || {
+        pool.install(|| {
+            for _ in 0..PASSES {
+                for b in &synced {
+                    s.extract_symbols(&x[..], b, frame.clone(), &mut y)
+                        .expect("extract");
+                }
+            }
+        })
+    });
+    let per = |v: f64| v / (PASSES * found.len().max(1)) as f64 * 1e6;
+    println!(
+        "per burst (dense e2e shape, {} of {bursts} bursts found), 1 thread: refine {:.1} µs wall / {:.1} µs CPU, extract_symbols ({} symbols) {:.1} µs wall / {:.1} µs CPU",
+        found.len(),
+        per(rs),
+        per(rcpu),
+        y.len(),
+        per(es),
+        per(ecpu)
+    );
+}
+
 fn main() {
     let n = env_usize("SYNC_BENCH_SAMPLES", 1 << 27);
     let repeats = env_usize("SYNC_BENCH_REPEATS", 3).max(1);
     let taps = rrc_taps(0.25, 8, SPS);
     let training = qpsk(127, &mut ChaCha8Rng::seed_from_u64(7));
+
+    let bursts = env_usize("SYNC_BENCH_BURSTS", 4000);
+    if bursts > 0 {
+        per_burst(bursts, repeats, &taps);
+    }
+    if env_usize("SYNC_BENCH_CASES", 2) == 0 {
+        return;
+    }
 
     if let Ok(path) = std::env::var("SYNC_BENCH_FILE") {
         file_mode(Path::new(&path), n, repeats, &taps, &training);

@@ -142,6 +142,139 @@ pub fn fit_channel(
     }
 }
 
+/// Taps only: the least-squares taps `h[−pre..=post]` of the plain linear model (no DC,
+/// no conjugate taps) on the same observation window as [`fit_channel`], for callers
+/// that need nothing else (no noise variance, condition number or tap variances).
+///
+/// Solver: the normal equations `(XᴴX)·h = Xᴴy` by a Cholesky factorisation, in f64
+/// — `O(M·K²)` with `K = pre + post + 1` small, against the QR, SVD and triangular
+/// inverse of [`fit_channel`]. Forming `XᴴX` squares the condition number, which costs
+/// nothing at the condition numbers accepted here (≤ `max_condition`, default 1e3:
+/// relative error ≲ 1e6·ε ≈ 2e-10).
+///
+/// Conditioning: a pivot of the factorisation that is not positive, or
+/// `max_i (XᴴX)_ii / min_j d_j > max_condition²` (`d_j` the squared pivots) is
+/// rejected. Since `λ_max ≥ max_i (XᴴX)_ii` and `λ_min ≤ min_j d_j`, that ratio is a
+/// lower bound on `cond(X)²`: every training rejected here is also rejected by
+/// [`fit_channel`] with the same cap, while one whose bound passes but whose
+/// condition number is above the cap is accepted here and not there.
+///
+/// # Errors
+/// As [`fit_channel`]: [`ChannelError::BadConfig`] (cap not ≥ 1),
+/// [`ChannelError::TrainingOutOfRange`], [`ChannelError::NonFinite`],
+/// [`ChannelError::TooShort`] (`M < K + 1`) and [`ChannelError::IllConditioned`].
+pub fn fit_taps(
+    y: &[Cf32],
+    training: &[Cf32],
+    offset: usize,
+    pre: usize,
+    post: usize,
+    max_condition: f64,
+) -> Result<Vec<Cf64>, ChannelError> {
+    if max_condition.is_nan() || max_condition < 1.0 {
+        return Err(ChannelError::BadConfig {
+            key: "max_condition",
+            expected: "a number ≥ 1",
+            found: max_condition.to_string(),
+        });
+    }
+    let n = training.len();
+    if offset.checked_add(n).map_or(true, |end| end > y.len()) {
+        return Err(ChannelError::TrainingOutOfRange {
+            offset,
+            training_len: n,
+            samples: y.len(),
+        });
+    }
+    let yt = &y[offset..offset + n];
+    if let Some(i) = yt
+        .iter()
+        .position(|v| !(v.re.is_finite() && v.im.is_finite()))
+    {
+        return Err(ChannelError::NonFinite { index: offset + i });
+    }
+    let k = pre + post + 1;
+    let (t0, t1) = (post, n.saturating_sub(pre));
+    let m = t1.saturating_sub(t0);
+    if m < k + 1 {
+        return Err(ChannelError::TooShort {
+            observations: m,
+            unknowns: k,
+        });
+    }
+    // Row t ∈ [t0, t1) of X holds x[t + pre − c] in column c (tap c − pre), so
+    // (XᴴX)[a][b] = Σ_t conj(x[t+pre−a])·x[t+pre−b] and (Xᴴy)[a] = Σ_t conj(x[t+pre−a])·y[t].
+    // The Gram is Hermitian: fill the lower triangle, read the upper by conjugation.
+    // With s = t + pre − a and lag δ = a − b ≥ 0, (XᴴX)[a][b] = Σ_s conj(x[s])·x[s+δ]
+    // over s ∈ [t0+pre−a, t1+pre−a): the window of (a+1, b+1) is that of (a, b) moved
+    // down by one sample, so each diagonal needs one full sum (b = 0) and then one term
+    // in and one out per step — O(M·K + K²) instead of O(M·K²).
+    let x: Vec<Cf64> = training.iter().map(|v| widen(*v)).collect();
+    let mut g = vec![Cf64::new(0.0, 0.0); k * k];
+    let mut rhs = vec![Cf64::new(0.0, 0.0); k];
+    for (a, r) in rhs.iter_mut().enumerate() {
+        *r = (t0..t1).map(|t| x[t + pre - a].conj() * widen(yt[t])).sum();
+    }
+    for delta in 0..k {
+        let (lo, hi) = (t0 + pre - delta, t1 + pre - delta);
+        let mut acc: Cf64 = (lo..hi).map(|s| x[s].conj() * x[s + delta]).sum();
+        g[delta * k] = acc;
+        for b in 1..k - delta {
+            // (a, b) = (delta + b, b): window [lo − b, hi − b).
+            let (add, drop) = (lo - b, hi - b);
+            acc += x[add].conj() * x[add + delta] - x[drop].conj() * x[drop + delta];
+            g[(delta + b) * k + b] = acc;
+        }
+    }
+    // Cholesky G = L·Lᴴ in place (lower triangle).
+    let ill = |condition: f64| ChannelError::IllConditioned {
+        unknowns: k,
+        condition,
+        cap: max_condition,
+    };
+    let max_diag = (0..k).map(|j| g[j * k + j].re).fold(0.0f64, f64::max);
+    let mut min_pivot = f64::INFINITY;
+    for j in 0..k {
+        let mut d = g[j * k + j].re;
+        for p in 0..j {
+            d -= g[j * k + p].norm_sqr();
+        }
+        if d.is_nan() || d <= 0.0 {
+            return Err(ill(f64::INFINITY));
+        }
+        min_pivot = min_pivot.min(d);
+        let ljj = d.sqrt();
+        g[j * k + j] = Cf64::new(ljj, 0.0);
+        for i in j + 1..k {
+            let mut v = g[i * k + j];
+            for p in 0..j {
+                v -= g[i * k + p] * g[j * k + p].conj();
+            }
+            g[i * k + j] = v / ljj;
+        }
+    }
+    let bound = (max_diag / min_pivot).sqrt();
+    if bound.is_nan() || bound > max_condition {
+        return Err(ill(bound));
+    }
+    // L·u = Xᴴy, then Lᴴ·h = u.
+    for i in 0..k {
+        let mut v = rhs[i];
+        for p in 0..i {
+            v -= g[i * k + p] * rhs[p];
+        }
+        rhs[i] = v / g[i * k + i].re;
+    }
+    for i in (0..k).rev() {
+        let mut v = rhs[i];
+        for p in i + 1..k {
+            v -= g[p * k + i].conj() * rhs[p];
+        }
+        rhs[i] = v / g[i * k + i].re;
+    }
+    Ok(rhs)
+}
+
 fn unknown_count(pre: usize, post: usize, cfg: &ChannelFitConfig) -> usize {
     let l = pre + post + 1;
     l + usize::from(cfg.dc_offset) + if cfg.iq_imbalance { l } else { 0 }
@@ -396,6 +529,136 @@ mod tests {
                     (a - b).norm() < 1e-9 * (1.0 + b.norm()),
                     "N={n}: first difference at tap {i}: {a} vs {b}"
                 );
+            }
+        }
+    }
+
+    #[test]
+    fn taps_only_fit_matches_the_full_fit_and_dense_normal_equations() {
+        // References: fit_channel (Householder QR, the full fit) and the dense
+        // (XᴴX)h = Xᴴy LU solve of src/testutil.rs, on the same data. All in f64 on
+        // well-conditioned random trainings: agreement to 1e-9 relative (as the QR
+        // against dense test above). Sizes include the smallest allowed (M = K + 1),
+        // a prime N, one tap and a 7-tap span at N = 64 (the CFO rounds' case),
+        // with the training at a nonzero offset in y.
+        let q = qam_points(2);
+        for (n, pre, post, off) in [
+            (4usize, 0usize, 1usize, 0usize),
+            (7, 1, 1, 2),
+            (13, 0, 4, 0),
+            (31, 2, 2, 5),
+            (64, 3, 3, 9),
+            (101, 3, 5, 0),
+            (257, 0, 0, 1),
+        ] {
+            let (x, _) = random_symbols(&mut rng(40 + n as u64), &q, n);
+            let taps: Vec<Cf64> = (0..pre + post + 1)
+                .map(|i| c(1.0 / (1 + i) as f64, 0.1 * i as f64 - 0.2))
+                .collect();
+            let mut y = vec![Cf32::new(0.3, -0.1); off];
+            y.extend(burst(41, &x, &taps, pre, 0.05));
+            let fast = fit_taps(&y, &x, off, pre, post, 1e3).unwrap();
+            let full = fit_channel(&y, &x, off, &cfg(pre, post)).unwrap();
+            let slow = dense_ls_normal_equations(&y, &x, off, pre, post);
+            assert_eq!(fast.len(), full.taps.len());
+            for (i, ((a, b), d)) in fast.iter().zip(&full.taps).zip(&slow).enumerate() {
+                assert!(
+                    (a - b).norm() < 1e-9 * (1.0 + b.norm()),
+                    "N={n}: tap {i}: {a} vs full {b}"
+                );
+                assert!(
+                    (a - d).norm() < 1e-9 * (1.0 + d.norm()),
+                    "N={n}: tap {i}: {a} vs dense {d}"
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn taps_only_fit_rejects_what_the_full_fit_rejects() {
+        // Same typed errors as fit_channel on the same inputs (too short, a constant
+        // training that cannot separate taps, out of range, non-finite, bad cap).
+        let q = qam_points(2);
+        let (x, _) = random_symbols(&mut rng(6), &q, 16);
+        let y = burst(7, &x, &[c(1.0, 0.0)], 0, 0.01);
+        for n in [0usize, 1, 4] {
+            let r = fit_taps(&y, &x[..n], 0, 2, 2, 1e3);
+            assert!(
+                matches!(r, Err(ChannelError::TooShort { .. })),
+                "N={n}: {r:?}"
+            );
+        }
+        let constant = vec![q[0]; 16];
+        let r = fit_taps(&y, &constant, 0, 1, 1, 1e3);
+        assert!(
+            matches!(r, Err(ChannelError::IllConditioned { .. })),
+            "{r:?}"
+        );
+        assert!(matches!(
+            fit_channel(&y, &constant, 0, &cfg(1, 1)),
+            Err(ChannelError::IllConditioned { .. })
+        ));
+        let r = fit_taps(&y, &x, 5, 0, 0, 1e3);
+        assert!(
+            matches!(r, Err(ChannelError::TrainingOutOfRange { .. })),
+            "{r:?}"
+        );
+        let mut bad = y.clone();
+        bad[3] = Cf32::new(f32::NAN, 0.0);
+        assert_eq!(
+            fit_taps(&bad, &x, 0, 0, 0, 1e3),
+            Err(ChannelError::NonFinite { index: 3 })
+        );
+        assert!(matches!(
+            fit_taps(&y, &x, 0, 0, 0, 0.5),
+            Err(ChannelError::BadConfig { .. })
+        ));
+        assert!(matches!(
+            fit_taps(&y, &x, 0, 0, 0, f64::NAN),
+            Err(ChannelError::BadConfig { .. })
+        ));
+    }
+
+    #[test]
+    fn taps_only_condition_bound_never_exceeds_the_full_condition_number() {
+        // Source: from memory — for a Hermitian positive-definite G, λ_max ≥ max G_ii
+        // and every Cholesky pivot d_j ≥ λ_min (d_j = 1/[(G_j)⁻¹]_jj for the leading
+        // block G_j, and Cauchy interlacing), so max G_ii / min d_j ≤ cond(G) = cond(X)².
+        // Checked on trainings made worse and worse conditioned (a random training
+        // blended towards a constant): whenever fit_taps rejects, fit_channel rejects,
+        // and whatever fit_channel accepts, fit_taps accepts.
+        let q = qam_points(2);
+        let (x, _) = random_symbols(&mut rng(12), &q, 40);
+        let y = burst(13, &x, &[c(1.0, 0.0)], 0, 0.01);
+        for blend in [0.0f32, 0.5, 0.9, 0.99, 0.999, 0.9999, 0.99999, 1.0] {
+            let xb: Vec<Cf32> = x
+                .iter()
+                .map(|v| *v * (1.0 - blend) + q[0] * blend)
+                .collect();
+            for cap in [2.0, 10.0, 1e3] {
+                let light = fit_taps(&y, &xb, 0, 1, 2, cap);
+                let full = fit_channel(
+                    &y,
+                    &xb,
+                    0,
+                    &ChannelFitConfig {
+                        max_condition: cap,
+                        ..cfg(1, 2)
+                    },
+                );
+                if matches!(light, Err(ChannelError::IllConditioned { .. })) {
+                    assert!(
+                        matches!(full, Err(ChannelError::IllConditioned { .. })),
+                        "blend {blend} cap {cap}: light rejects, full gives {full:?}"
+                    );
+                }
+                if let Ok(e) = full {
+                    assert!(
+                        light.is_ok(),
+                        "blend {blend} cap {cap}: cond {}",
+                        e.condition_number
+                    );
+                }
             }
         }
     }

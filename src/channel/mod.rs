@@ -17,7 +17,7 @@
 mod ls;
 mod noise;
 
-pub use ls::fit_channel;
+pub use ls::{fit_channel, fit_taps};
 pub use noise::{noise_variance_from_rss, significant_tap_count, snr_db};
 
 use crate::Cf64;

@@ -11,12 +11,14 @@
 //! burst that touches a capture edge are computed with part of their pulse missing.
 use std::ops::Range;
 
-use super::timing::{best_instant, interpolate_with, sinc_weights, SINC_HALF};
-use super::{
-    cfo, derotate_run, read_padded, rotation, BurstSync, Detection, SampleSource, SymbolSpan,
-    SyncError, Synchroniser,
+use super::timing::{
+    best_instant, interpolate_with, sinc_weights, sinc_weights_f64, training_correlation, SINC_HALF,
 };
-use crate::channel::{fit_channel, ChannelFitConfig, TapSpan};
+use super::{
+    cfo, derotate_run, read_padded, BurstSync, Detection, SampleSource, SymbolSpan, SyncError,
+    Synchroniser,
+};
+use crate::channel::{fit_taps, ChannelFitConfig};
 use crate::{Cf32, Cf64};
 
 /// Symbols processed per piece in [`Synchroniser::extract_symbols`] (bounds memory).
@@ -25,6 +27,48 @@ const EXTRACT_PIECE_SYMBOLS: i64 = 4096;
 /// Pre- and post-cursor taps fitted (at most) by the channel-aware CFO estimate: 3 each
 /// side covers the usual test channels (Proakis B and C centred on their main tap).
 const CFO_FIT_HALF_SPAN: usize = 3;
+
+/// Complex samples per [`dot_real_taps`] step (the folded filter is zero-padded to a
+/// multiple of this).
+const FOLD_LANES: usize = 4;
+
+/// The folded extraction filter `g = w ∗ p` (interpolator weights `w`, pulse `p`),
+/// computed in f64, rounded to f32 and written twice per tap (`g2[2q] = g2[2q+1] = g_q`,
+/// one copy for the real and one for the imaginary part); the tail of `g2` is zero.
+fn folded_taps(pulse: &[f32], w: &[f64; 2 * SINC_HALF], g2: &mut [f32]) {
+    let mut g = vec![0.0f64; g2.len() / 2];
+    for (i, wi) in w.iter().enumerate() {
+        for (m, pm) in pulse.iter().enumerate() {
+            g[i + m] += wi * f64::from(*pm);
+        }
+    }
+    for (pair, gq) in g2.chunks_exact_mut(2).zip(&g) {
+        pair.fill(*gq as f32);
+    }
+}
+
+/// `Σ_q g_q·x_q` for complex `x` and real taps given as [`folded_taps`] writes them;
+/// `x.len()·2 == g2.len()`, a multiple of `2·FOLD_LANES`. `2·FOLD_LANES` independent
+/// f32 partial sums (`FOLD_LANES` complex lanes), added lane by lane at the end.
+#[inline]
+fn dot_real_taps(x: &[Cf32], g2: &[f32]) -> Cf32 {
+    let xf: &[f32] = bytemuck::cast_slice(x);
+    let mut acc = [0.0f32; 2 * FOLD_LANES];
+    for (xc, gc) in xf
+        .chunks_exact(2 * FOLD_LANES)
+        .zip(g2.chunks_exact(2 * FOLD_LANES))
+    {
+        for l in 0..2 * FOLD_LANES {
+            acc[l] += xc[l] * gc[l];
+        }
+    }
+    let (mut re, mut im) = (0.0f32, 0.0f32);
+    for pair in acc.chunks_exact(2) {
+        re += pair[0];
+        im += pair[1];
+    }
+    Cf32::new(re, im)
+}
 
 impl Synchroniser {
     /// Matched-filter outputs centred on capture samples `first .. first + count`, from
@@ -73,12 +117,14 @@ impl Synchroniser {
         read_padded(src, n0 - self.head as i64, &mut x)?;
         let s = self.cfg.cfo_segments.min(l).max(1);
         let seg = l / s;
+        // conj(ref_m·e^{j2πf_h·m})·x_m = conj(ref_m)·(x_m·e^{−j2πf_h·m}): de-rotate the
+        // samples with the anchored phasor instead of one sin_cos per reference sample.
+        derotate_run(&mut x, -f_h, |m| m as f64);
         let segs: Vec<Cf64> = (0..s)
             .map(|j| {
                 (j * seg..(j + 1) * seg)
                     .map(|m| {
-                        let r = self.reference[m] * rotation(f_h, m as f64);
-                        let p = r.conj() * x[m];
+                        let p = self.reference[m].conj() * x[m];
                         Cf64::new(f64::from(p.re), f64::from(p.im))
                     })
                     .sum()
@@ -110,22 +156,16 @@ impl Synchroniser {
             radius = 1;
             range = 0.5 * lobe;
         }
-        // Final: re-time once with the fine CFO, then phase and gain at t0.
+        // Final: re-time once with the fine CFO, then phase and gain at t0. `y` was
+        // de-rotated about the previous t0 (`t_ref`); about the new one it is
+        // `y·exp(j2πf·(t0 − t_ref))`, a constant phase, so the correlation is rotated
+        // instead of filtering the region again.
         let y = self.mf_region(src, first, count, f, t0)?;
         let pos = best_instant(&y, &self.training, sps, t0 - first as f64, 1);
+        let t_ref = t0;
         t0 = first as f64 + pos;
-        let y = self.mf_region(src, first, count, f, t0)?;
-        let pos = t0 - first as f64;
-        let (pn, w) = (pos.floor(), sinc_weights(pos - pos.floor()));
-        let corr: Cf64 = self
-            .training
-            .iter()
-            .enumerate()
-            .map(|(k, tk)| {
-                let z = interpolate_with(&y, pn as i64 + (k * sps) as i64, &w) * tk.conj();
-                Cf64::new(f64::from(z.re), f64::from(z.im))
-            })
-            .sum();
+        let corr = training_correlation(&y, &self.training, sps, pos)
+            * Cf64::from_polar(1.0, std::f64::consts::TAU * f * (t0 - t_ref));
         let t_energy: f64 = self.training.iter().map(|t| f64::from(t.norm_sqr())).sum();
         let start_sample = (t0 + 0.5).floor() as i64;
         let len = src.len() as f64;
@@ -146,7 +186,7 @@ impl Synchroniser {
 
     /// Residual carrier frequency of the training samples `z` (symbol rate, one per
     /// training symbol), rad/symbol, searched within `±range`: fit the channel taps by
-    /// least squares on `z` ([`fit_channel`], `±s` taps around the main one), rebuild
+    /// least squares on `z` ([`fit_taps`], `±s` taps around the main one), rebuild
     /// the channel-filtered training `ŷ = h ∗ t` over the observations whose whole
     /// regressor lies in the training, and maximise the periodogram of `z·conj(ŷ)`
     /// ([`cfo::periodogram_frequency`]). Called once per timing/CFO iteration, this is
@@ -165,18 +205,13 @@ impl Synchroniser {
         let fitted = if s == 0 {
             None
         } else {
-            let cfg = ChannelFitConfig {
-                span: TapSpan::Fixed { pre: s, post: s },
-                ..ChannelFitConfig::default()
-            };
-            fit_channel(z, t, 0, &cfg).ok()
+            fit_taps(z, t, 0, s, s, ChannelFitConfig::default().max_condition).ok()
         };
         let u: Vec<Cf64> = match fitted {
-            Some(est) => (s..n - s)
+            Some(taps) => (s..n - s)
                 .map(|k| {
                     // ŷ_k = Σ_{i=−s}^{s} h[i]·t[k−i], tap h[i] at index i + s.
-                    let yhat: Cf64 = est
-                        .taps
+                    let yhat: Cf64 = taps
                         .iter()
                         .enumerate()
                         .map(|(c, h)| *h * wide(t[k + s - c]))
@@ -219,22 +254,35 @@ impl Synchroniser {
         let b = symbols.end.min(burst.symbols_in_capture.end).max(a);
         let t0 = burst.instant();
         let f = burst.cfo_hz / self.cfg.sample_rate_hz;
-        let spsf = self.cfg.sps as f64;
-        let h = SINC_HALF as i64;
+        let sps = self.cfg.sps;
+        let spsf = sps as f64;
+        // Matched filter and interpolator folded into one real filter per piece (every
+        // instant of a piece shares one fractional part): value at `n + μ` =
+        // `Σ_i w_i(μ)·Σ_m p_m·x[n − SINC_HALF + 1 + i + m − d] = Σ_q g_q·x[n − SINC_HALF + 1 − d + q]`
+        // with `g = w ∗ p` — only the symbol instants are filtered, not every sample.
+        let d = (self.pulse.len() - 1) / 2;
+        let taps = self.pulse.len() + 2 * SINC_HALF - 1;
+        let padded = taps.div_ceil(FOLD_LANES) * FOLD_LANES;
+        let mut g2 = vec![0.0f32; 2 * padded];
+        let mut x: Vec<Cf32> = Vec::new();
         let mut k = a;
         while k < b {
             let k_end = (k + EXTRACT_PIECE_SYMBOLS).min(b);
-            let t_first = t0 + k as f64 * spsf;
-            let t_last = t0 + (k_end - 1) as f64 * spsf;
-            let first = t_first.floor() as i64 - h;
-            let count = (t_last.floor() as i64 + h + 1 - first) as usize;
-            let y = self.mf_region(src, first, count, f, t0)?;
-            // Every instant of the piece has the same fractional part: one weight table.
-            let t = t0 + k as f64 * spsf - first as f64;
-            let (tn, w) = (t.floor(), sinc_weights(t - t.floor()));
-            for kk in k..k_end {
-                let n = tn as i64 + (kk - k) * self.cfg.sps as i64;
-                out[(kk - symbols.start) as usize] = interpolate_with(&y, n, &w);
+            let t = t0 + k as f64 * spsf;
+            let n = t.floor();
+            folded_taps(&self.pulse, &sinc_weights_f64(t - n), &mut g2);
+            let start = n as i64 - (SINC_HALF - 1) as i64 - d as i64;
+            let len = (k_end - 1 - k) as usize * sps + taps;
+            // Zeros past `len` meet the zero padding of `g2`.
+            x.clear();
+            x.resize(len + padded - taps, Cf32::new(0.0, 0.0));
+            read_padded(src, start, &mut x[..len])?;
+            derotate_run(&mut x[..len], -f, |i| (start + i as i64) as f64 - t0);
+            for (j, o) in out[(k - symbols.start) as usize..(k_end - symbols.start) as usize]
+                .iter_mut()
+                .enumerate()
+            {
+                *o = dot_real_taps(&x[j * sps..j * sps + padded], &g2);
             }
             k = k_end;
         }
