@@ -63,20 +63,7 @@ pub fn fit_channel(
         });
     }
     let n = training.len();
-    if offset.checked_add(n).map_or(true, |end| end > y.len()) {
-        return Err(ChannelError::TrainingOutOfRange {
-            offset,
-            training_len: n,
-            samples: y.len(),
-        });
-    }
-    let yt = &y[offset..offset + n];
-    if let Some(i) = yt
-        .iter()
-        .position(|v| !(v.re.is_finite() && v.im.is_finite()))
-    {
-        return Err(ChannelError::NonFinite { index: offset + i });
-    }
+    let yt = training_window(y, n, offset)?;
     match cfg.span {
         TapSpan::Fixed { pre, post } => {
             fit_fixed(yt, training, pre, post, cfg, SpanChoice::Fixed, None)
@@ -142,6 +129,26 @@ pub fn fit_channel(
     }
 }
 
+/// The received samples under the training, `y[offset .. offset + n]`, checked to
+/// lie inside `y` and to be finite (both fits take their input through this).
+fn training_window(y: &[Cf32], n: usize, offset: usize) -> Result<&[Cf32], ChannelError> {
+    if offset.checked_add(n).map_or(true, |end| end > y.len()) {
+        return Err(ChannelError::TrainingOutOfRange {
+            offset,
+            training_len: n,
+            samples: y.len(),
+        });
+    }
+    let yt = &y[offset..offset + n];
+    if let Some(i) = yt
+        .iter()
+        .position(|v| !(v.re.is_finite() && v.im.is_finite()))
+    {
+        return Err(ChannelError::NonFinite { index: offset + i });
+    }
+    Ok(yt)
+}
+
 /// Taps only: the least-squares taps `h[−pre..=post]` of the plain linear model (no DC,
 /// no conjugate taps) on the same observation window as [`fit_channel`], for callers
 /// that need nothing else (no noise variance, condition number or tap variances).
@@ -179,20 +186,7 @@ pub fn fit_taps(
         });
     }
     let n = training.len();
-    if offset.checked_add(n).map_or(true, |end| end > y.len()) {
-        return Err(ChannelError::TrainingOutOfRange {
-            offset,
-            training_len: n,
-            samples: y.len(),
-        });
-    }
-    let yt = &y[offset..offset + n];
-    if let Some(i) = yt
-        .iter()
-        .position(|v| !(v.re.is_finite() && v.im.is_finite()))
-    {
-        return Err(ChannelError::NonFinite { index: offset + i });
-    }
+    let yt = training_window(y, n, offset)?;
     let k = pre + post + 1;
     let (t0, t1) = (post, n.saturating_sub(pre));
     let m = t1.saturating_sub(t0);

@@ -438,7 +438,6 @@ fn run_cores_with(
         };
         return cores.iter().map(|_| Err(e.clone())).collect();
     }
-    let zero = Cf32::new(0.0, 0.0);
     let RunScratch {
         yr,
         cores: cs,
@@ -469,21 +468,11 @@ fn run_cores_with(
                 continue;
             }
         }
-        out.soft.clear();
-        out.soft.resize(len, zero);
-        out.labels.clear();
-        out.labels.resize(len, 0);
-        out.phase_rad.clear();
-        out.phase_rad.resize(len, 0.0);
+        reset_outputs(&mut out.soft, &mut out.labels, &mut out.phase_rad, len);
         if burst.offset > 0 {
             c.tr.clear();
             c.tr.extend(c.truth.iter().rev());
-            c.soft.clear();
-            c.soft.resize(len, zero);
-            c.labels.clear();
-            c.labels.resize(len, 0);
-            c.phase.clear();
-            c.phase.resize(len, 0.0);
+            reset_outputs(&mut c.soft, &mut c.labels, &mut c.phase, len);
         }
     }
     // Adapting cores: alone.
@@ -581,6 +570,16 @@ struct CoreScratch {
     soft: Vec<Cf32>,
     labels: Vec<usize>,
     phase: Vec<f32>,
+}
+
+/// Clear a pass's outputs to `len` zeros (soft values, labels, phases).
+fn reset_outputs(soft: &mut Vec<Cf32>, labels: &mut Vec<usize>, phase: &mut Vec<f32>, len: usize) {
+    soft.clear();
+    soft.resize(len, Cf32::new(0.0, 0.0));
+    labels.clear();
+    labels.resize(len, 0);
+    phase.clear();
+    phase.resize(len, 0.0);
 }
 
 /// Buffers of [`run_cores`] reused across runs (see there).
