@@ -32,8 +32,9 @@
 //! that span is a lower bound on every `E_w` of the group. A lag is reported only if
 //! `|c|² ≥ γ·E_r·E_w`; hence if `max_group |c|² < γ·E_r·(B_g − δ)` no lag of the group
 //! can be, and the group is skipped. `δ = 10⁻⁹ × block energy` covers the f64
-//! rounding of `B_g` and of the running sums (both below ~10⁻¹³ of the block energy
-//! for blocks of 2¹⁶ samples). On noise and on payload the bound rejects nearly every
+//! rounding of `B_g` and of the running sums (sums of at most `L + 2G` non-negative
+//! terms from a direct sum: error below `(L + 2G)·2⁻⁵³` of the block energy, under
+//! 10⁻¹¹ for any reference up to 2¹⁶ samples). On noise and on payload the bound rejects nearly every
 //! group (for `L = 257`, `B_g` is 224/257 of the window while the threshold is far
 //! above noise-level metrics), so the per-lag cost is the FFTs, `|c|²` and a max.
 //! A NaN anywhere in the block's `|c|²` (non-finite input) disables the skip for
