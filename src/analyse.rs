@@ -142,12 +142,15 @@ impl TraceSelection {
         }
     }
 
-    /// Offer burst `index` with RMS EVM `evm`.
-    fn offer(&mut self, index: usize, evm: f64) {
+    /// Offer burst `index` with RMS EVM `evm`; returns the index of a burst
+    /// (possibly this one) that has just left the traced set for good.
+    fn offer(&mut self, index: usize, evm: f64) -> Option<usize> {
         self.worst.insert(Badness { evm, index });
-        if self.worst.len() > self.k {
-            self.worst.pop_first();
+        if self.worst.len() <= self.k {
+            return None;
         }
+        let out = self.worst.pop_first()?;
+        (out.index >= self.k).then_some(out.index)
     }
 
     /// The RMS EVM a burst offered next must exceed to enter the worst `k`, or
@@ -482,25 +485,27 @@ pub fn analyse_capture(
             // In index order, so `bursts[i].index == i`.
             for mut r in done {
                 cap_error_runs(&mut r.metrics);
-                selection.offer(r.index, r.metrics.evm_rms_percent);
+                let dropped = selection.offer(r.index, r.metrics.evm_rms_percent);
                 bursts.push(r);
+                // Memory stays bounded: a detail is held only while its burst
+                // is in the traced set.
+                if let Some(d) = dropped.and_then(|i| bursts.get_mut(i)) {
+                    d.trace = None;
+                    d.channel.response_db = None;
+                }
             }
         }
-        // The traced set is known once every burst is in. Drop the detail of
-        // the bursts outside it, and analyse again, with the detail on, the
-        // members that were not judged likely when their batch ran. The analysis
+        // The traced set is known once every burst is in (the bursts that left
+        // it have lost their detail above). Analyse again, with the detail on,
+        // any member that was not judged likely when its batch ran (none, by the
+        // test on `may_enter`: this is a safety net). The analysis
         // is deterministic, so the second run gives the very figures of the first;
         // only the trace and the channel response are taken from it.
         let traced = selection.members(bursts.len());
-        let mut missing = Vec::new();
-        for (k, b) in bursts.iter_mut().enumerate() {
-            if traced.binary_search(&k).is_err() {
-                b.trace = None;
-                b.channel.response_db = None;
-            } else if b.trace.is_none() {
-                missing.push(k);
-            }
-        }
+        let missing: Vec<usize> = traced
+            .into_iter()
+            .filter(|&k| bursts.get(k).is_some_and(|b| b.trace.is_none()))
+            .collect();
         let details = missing
             .par_iter()
             .map(|&k| {
@@ -1378,10 +1383,15 @@ mod tests {
     /// Offer every burst in `order`; the traced set at the end.
     fn streamed(evm: &[f64], k: usize, order: &[usize]) -> Vec<usize> {
         let mut sel = TraceSelection::new(k);
+        let mut traced = vec![true; evm.len()];
         for &i in order {
-            sel.offer(i, evm[i]);
+            if let Some(d) = sel.offer(i, evm[i]) {
+                traced[d] = false;
+            }
         }
-        sel.members(evm.len())
+        let kept: Vec<usize> = (0..evm.len()).filter(|&i| traced[i]).collect();
+        assert_eq!(kept, sel.members(evm.len()));
+        kept
     }
 
     #[test]
