@@ -263,31 +263,45 @@ fn a_capture_changed_in_place_is_hashed_once_and_its_report_is_what_analyse_writ
     );
 }
 
-#[test]
-fn a_digest_given_to_analyse_is_recorded_as_given_instead_of_rehashing() {
-    // The option exists so a caller that has just hashed the file (batch resume,
-    // recheck) does not pay for a second pass; a deliberately wrong digest shows
-    // that the file is not hashed again. Source: common practice (a probe value).
+/// Analyse one small capture with `opts` and with the defaults; check that the
+/// default run records the file's own SHA-256 (sha2, FIPS 180-4, via
+/// `batch::sha256_file`) and that the two reports differ in nothing but the
+/// digest. Returns the digest `opts` recorded, the file's digest, and the paths.
+fn digest_against_default(
+    opts: &iqaudit::analyse::AnalyseOptions,
+) -> (
+    String,
+    String,
+    tempfile::TempDir,
+    std::path::PathBuf,
+    std::path::PathBuf,
+) {
     let dir = tempdir();
     let prof = profile(dir.path());
     let capture = dir.path().join("crane-8.ci16");
     synth(&prof, &capture, "22");
     let profile = iqaudit::profile::load_profile(&prof).unwrap();
+    let mut given = iqaudit::analyse::analyse_capture(&capture, &profile, opts).unwrap();
+    let own = iqaudit::analyse::analyse_capture(&capture, &profile, &Default::default()).unwrap();
+    let digest = iqaudit::batch::sha256_file(&capture).unwrap();
+    assert_eq!(own.input.sha256, digest);
+    let recorded = std::mem::replace(&mut given.input.sha256, digest.clone());
+    assert_eq!(given, own, "the digest option changes nothing else");
+    (recorded, digest, dir, prof, capture)
+}
+
+#[test]
+fn a_digest_given_to_analyse_is_recorded_as_given_instead_of_rehashing() {
+    // The option exists so a caller that has just hashed the file (batch resume,
+    // recheck) does not pay for a second pass; a deliberately wrong digest shows
+    // that the file is not hashed again. Source: common practice (a probe value).
     let probe = "ab".repeat(32);
     let opts = iqaudit::analyse::AnalyseOptions {
         input_sha256: Some(probe.clone()),
         ..Default::default()
     };
-    let given = iqaudit::analyse::analyse_capture(&capture, &profile, &opts).unwrap();
-    assert_eq!(given.input.sha256, probe);
-    let own = iqaudit::analyse::analyse_capture(&capture, &profile, &Default::default()).unwrap();
-    assert_eq!(
-        own.input.sha256,
-        iqaudit::batch::sha256_file(&capture).unwrap()
-    );
-    let mut given = given;
-    given.input.sha256.clone_from(&own.input.sha256);
-    assert_eq!(given, own, "the digest changes nothing else");
+    let (recorded, _, _dir, _, _) = digest_against_default(&opts);
+    assert_eq!(recorded, probe);
 }
 
 #[test]
@@ -295,22 +309,12 @@ fn analyse_skips_the_digest_only_when_no_json_is_written() {
     // The terminal summary carries no digest, so `analyse` without --report/--json
     // does not hash the file; the JSON forms always carry it. Reference: sha2's
     // own digest of the file (FIPS 180-4), via `batch::sha256_file`.
-    let dir = tempdir();
-    let prof = profile(dir.path());
-    let capture = dir.path().join("crane-8.ci16");
-    synth(&prof, &capture, "22");
-    let profile = iqaudit::profile::load_profile(&prof).unwrap();
-    let skip = iqaudit::analyse::AnalyseOptions {
+    let opts = iqaudit::analyse::AnalyseOptions {
         skip_input_hash: true,
         ..Default::default()
     };
-    let mut skipped = iqaudit::analyse::analyse_capture(&capture, &profile, &skip).unwrap();
-    assert_eq!(skipped.input.sha256, "");
-    let own = iqaudit::analyse::analyse_capture(&capture, &profile, &Default::default()).unwrap();
-    let digest = iqaudit::batch::sha256_file(&capture).unwrap();
-    assert_eq!(own.input.sha256, digest);
-    skipped.input.sha256.clone_from(&own.input.sha256);
-    assert_eq!(skipped, own, "skipping the digest changes nothing else");
+    let (recorded, digest, _dir, prof, capture) = digest_against_default(&opts);
+    assert_eq!(recorded, "");
     let out = iqaudit()
         .args(["analyse", capture.to_str().unwrap(), "--profile"])
         .arg(&prof)
