@@ -79,6 +79,14 @@ pub struct InfoArgs {
     /// The keys are documented in the library's `InfoReport` type.
     #[arg(long)]
     pub json: bool,
+
+    /// Write the spectrum and power-over-time plots and an index.html here.
+    ///
+    /// `psd.svg` (Welch PSD in dBFS/Hz around the centre frequency, occupied
+    /// bandwidth and spurs marked) and `power.svg` (min/mean/max power over the
+    /// whole capture). The folder is created if needed.
+    #[arg(long, value_name = "DIR")]
+    pub plots: Option<PathBuf>,
 }
 
 fn parse_rate(s: &str) -> Result<f64, String> {
@@ -174,6 +182,15 @@ fn run_info(args: &InfoArgs) -> Result<Outcome, Error> {
         swap_iq: args.swap_iq,
     };
     let capture = Capture::open(&args.capture, &opts)?;
+    if let Some(dir) = &args.plots {
+        let inputs = [
+            Some(args.capture.as_path()),
+            capture.sidecar_path(),
+            Some(capture.path()),
+        ];
+        let inputs: Vec<&std::path::Path> = inputs.into_iter().flatten().collect();
+        iqaudit::report::write::ensure_not_an_input(dir, &inputs)?;
+    }
     let stats_opts = StatsOptions::default();
     let bar =
         (!args.json && std::io::stderr().is_terminal() && capture.len() >= PROGRESS_MIN_SAMPLES)
@@ -196,6 +213,9 @@ fn run_info(args: &InfoArgs) -> Result<Outcome, Error> {
         b.finish_and_clear();
     }
     let report = info_report(&capture, &stats, &stats_opts);
+    if let Some(dir) = &args.plots {
+        iqaudit::report::capture_plots::write_info_plots(&report, &[], &[], dir)?;
+    }
     for w in &report.warnings {
         eprintln!(
             "iqaudit: warning: {}: {}",

@@ -23,6 +23,7 @@ mod mmap;
 mod raw;
 mod sigmf;
 pub mod stats;
+pub mod views;
 mod wav;
 mod write;
 

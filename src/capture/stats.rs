@@ -42,6 +42,7 @@ use rayon::prelude::*;
 use rustfft::{Fft, FftPlanner};
 use serde::Serialize;
 
+use super::views::{EnvelopeBucket, EnvelopeGrid, PowerEnvelope};
 use super::{Capture, CaptureError, ReadStats};
 use crate::Cf32;
 
@@ -56,6 +57,8 @@ pub struct StatsOptions {
     pub welch_max_segments: usize,
     /// Fraction of power inside the occupied bandwidth (0.99 = 99 %).
     pub obw_fraction: f64,
+    /// Most points of the power-over-time envelope (see [`PowerEnvelope`]).
+    pub envelope_points: usize,
 }
 
 impl Default for StatsOptions {
@@ -65,6 +68,7 @@ impl Default for StatsOptions {
             welch_fft_len: 4096,
             welch_max_segments: 2048,
             obw_fraction: 0.99,
+            envelope_points: 1024,
         }
     }
 }
@@ -97,6 +101,8 @@ pub struct CaptureStats {
     pub read: ReadStats,
     /// Welch power spectrum, when the capture has at least 2 samples.
     pub psd: Option<WelchPsd>,
+    /// Power over time: a min/mean/max envelope of short-block powers.
+    pub envelope: PowerEnvelope,
     /// Chunk size used (the bounded-memory unit).
     pub chunk_samples: usize,
 }
@@ -207,14 +213,22 @@ impl Moments {
     /// added to the f64 accumulators, so precision stays at f64 level over the
     /// capture while the inner loop vectorises. Fixed block boundaries keep the
     /// result independent of threads.
-    fn of_clean(samples: &[Cf32], read: ReadStats) -> Moments {
-        const LANE_BLOCK: usize = 256;
+    ///
+    /// The mean power of each run of `lane_block` samples is pushed to
+    /// `block_powers` (the power-over-time envelope is built from them).
+    fn of_clean(
+        samples: &[Cf32],
+        read: ReadStats,
+        lane_block: usize,
+        block_powers: &mut Vec<f64>,
+    ) -> Moments {
         let mut m = Moments {
             n: samples.len() as u64,
             read,
             ..Moments::default()
         };
-        for block in samples.chunks(LANE_BLOCK) {
+        for block in samples.chunks(lane_block.max(1)) {
+            let before = m.sii + m.sqq;
             let mut l = [[0f32; 8]; 5];
             let mut pk = [0f32; 8];
             let mut it = block.chunks_exact(8);
@@ -242,6 +256,7 @@ impl Moments {
             for &s in it.remainder() {
                 m.add(s);
             }
+            block_powers.push((m.sii + m.sqq - before) / block.len() as f64);
         }
         m
     }
@@ -266,53 +281,68 @@ pub fn capture_stats(
     opts: &StatsOptions,
     progress: &(dyn Fn(u64) + Sync),
 ) -> Result<CaptureStats, CaptureError> {
-    let chunk = opts.chunk_samples.max(1);
     let len = capture.len();
+    let grid = EnvelopeGrid::new(len, opts.envelope_points);
+    // Chunks hold whole envelope blocks, so no block straddles two chunks.
+    let chunk = opts
+        .chunk_samples
+        .max(1)
+        .next_multiple_of(grid.block_samples);
     let n_chunks = len.div_ceil(chunk);
     let view = capture.as_cf32_slice();
     let mut total = Moments::default();
+    let mut envelope = PowerEnvelope::empty(&grid);
     let mut first = 0;
     while first < n_chunks {
         let last = (first + BATCH_CHUNKS).min(n_chunks);
-        let parts: Vec<Result<Moments, CaptureError>> = (first..last)
+        type Part = (Moments, Vec<EnvelopeBucket>);
+        let parts: Vec<Result<Part, CaptureError>> = (first..last)
             .into_par_iter()
-            .map_init(Vec::<Cf32>::new, |buf, c| {
-                let start = c * chunk;
-                let end = (start + chunk).min(len);
-                let m = match view {
-                    // Zero-copy when the chunk holds only finite values;
-                    // otherwise clean a copy exactly as read_into does.
-                    Some(v) => {
-                        // The map may have lost this range to a truncation
-                        // since it was opened (SIGBUS if touched).
-                        capture.ensure_present(start, end)?;
-                        let part = &v[start..end];
-                        let mut read = ReadStats::default();
-                        for &s in part {
-                            read += super::raw::check_float(s).1;
+            .map_init(
+                || (Vec::<Cf32>::new(), Vec::<f64>::new()),
+                |(buf, blocks), c| {
+                    let start = c * chunk;
+                    let end = (start + chunk).min(len);
+                    let lb = grid.block_samples;
+                    blocks.clear();
+                    let m = match view {
+                        // Zero-copy when the chunk holds only finite values;
+                        // otherwise clean a copy exactly as read_into does.
+                        Some(v) => {
+                            // The map may have lost this range to a truncation
+                            // since it was opened (SIGBUS if touched).
+                            capture.ensure_present(start, end)?;
+                            let part = &v[start..end];
+                            let mut read = ReadStats::default();
+                            for &s in part {
+                                read += super::raw::check_float(s).1;
+                            }
+                            if read.non_finite == 0 {
+                                Moments::of_clean(part, read, lb, blocks)
+                            } else {
+                                buf.resize(chunk, Cf32::default());
+                                let out = &mut buf[..end - start];
+                                let read = capture.read_into(start, out)?;
+                                Moments::of_clean(out, read, lb, blocks)
+                            }
                         }
-                        if read.non_finite == 0 {
-                            Moments::of_clean(part, read)
-                        } else {
+                        None => {
                             buf.resize(chunk, Cf32::default());
                             let out = &mut buf[..end - start];
                             let read = capture.read_into(start, out)?;
-                            Moments::of_clean(out, read)
+                            Moments::of_clean(out, read, lb, blocks)
                         }
-                    }
-                    None => {
-                        buf.resize(chunk, Cf32::default());
-                        let out = &mut buf[..end - start];
-                        let read = capture.read_into(start, out)?;
-                        Moments::of_clean(out, read)
-                    }
-                };
-                progress((end - start) as u64);
-                Ok(m)
-            })
+                    };
+                    let buckets = grid.buckets_of(start / lb, blocks, len);
+                    progress((end - start) as u64);
+                    Ok((m, buckets))
+                },
+            )
             .collect();
         for p in parts {
-            total.merge(&p?);
+            let (m, b) = p?;
+            total.merge(&m);
+            envelope.merge(&b);
         }
         // The zero-copy path reads the map directly: release what this batch
         // of chunks touched (read_into releases its own large reads).
@@ -333,6 +363,7 @@ pub fn capture_stats(
         cov_iq: total.siq / n - dc_i * dc_q,
         read: total.read,
         psd,
+        envelope,
         chunk_samples: chunk,
     })
 }
@@ -469,6 +500,10 @@ fn db(x: f64) -> Option<f64> {
 ///   `psd_segments_averaged`, `psd_segments_available`.
 /// * `obw_fraction` (0.99), `obw_hz`, `obw_lower_hz`, `obw_upper_hz` (relative to
 ///   the centre frequency), `obw_fraction_of_rate` (width in cycles/sample).
+/// * `views` — the plot data: `psd` (decimated Welch PSD in dBFS/Hz with the
+///   occupied-bandwidth edges), `spurs` (narrow peaks `spur_margin_db` above the
+///   local floor) and `power` (min/mean/max power-over-time envelope); see
+///   [`super::views`].
 /// * `warnings` — list of `{kind, message}`; kinds: `trailing_bytes`,
 ///   `clipping`, `non_finite`.
 #[derive(Debug, Clone, Serialize, PartialEq)]
@@ -539,6 +574,9 @@ pub struct InfoReport {
     pub obw_upper_hz: Option<f64>,
     /// Occupied bandwidth as a fraction of the sample rate.
     pub obw_fraction_of_rate: Option<f64>,
+    /// The decimated PSD (dBFS/Hz), its spurs and the power-over-time
+    /// envelope (documented in [`super::views`]).
+    pub views: super::views::CaptureViews,
     /// Warnings.
     pub warnings: Vec<InfoWarning>,
 }
@@ -642,6 +680,7 @@ pub fn info_report(capture: &Capture, stats: &CaptureStats, opts: &StatsOptions)
         obw_lower_hz: obw.and_then(|o| fs.map(|r| o.lower * r)),
         obw_upper_hz: obw.and_then(|o| fs.map(|r| o.upper * r)),
         obw_fraction_of_rate: obw.map(|o| o.width()),
+        views: super::views::capture_views(stats, fs, capture.center_freq_hz(), opts.obw_fraction),
         warnings,
     }
 }
