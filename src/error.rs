@@ -38,7 +38,7 @@ pub enum Error {
     Equalise(#[from] crate::equalise::EqualiseError),
     /// An output file could not be written.
     #[error(transparent)]
-    Write(#[from] crate::report::write::WriteError),
+    Write(#[from] crate::atomic::WriteError),
     /// A report given to `recheck` cannot be used.
     #[error("{}: {message}", path.display())]
     Report {

@@ -16,6 +16,24 @@
 //!
 //! with `synth` (test captures with known ground truth) and `batch` beside them.
 //!
+//! ## Module map
+//!
+//! | module | job |
+//! |---|---|
+//! | [`capture`] | open raw, WAV and SigMF captures by memory map; decode to [`Cf32`] |
+//! | [`signal`] | constellations, PRBS/Barker/Zadoff-Chu sequences, RRC pulses |
+//! | [`profile`] | the link profile: strict schema, defaults, errors naming the key |
+//! | [`sync`] | overlap-save search, CFO, timing, burst extraction |
+//! | [`channel`] | least-squares channel fit, noise variance, tap counts |
+//! | [`equalise`] | ZF-DFE, MMSE-DFE, linear MMSE, genie, carrier refinement, LMS/RLS, theory |
+//! | [`report`] | figures of merit, the report schema, terminal text, plots, recheck comparison |
+//! | [`analyse`] | the driver: one capture through every stage into a report |
+//! | [`recheck`] | re-run a recorded report and say whether every figure reproduces |
+//! | [`batch`] | folders of captures: walk, shard, resume, summaries |
+//! | [`synth`] | test captures with known ground truth |
+//! | [`atomic`] | atomic output files shared by every writer |
+//! | [`limits`] | documented caps on every size read from input |
+//!
 //! ## Conventions (apply everywhere in the crate)
 //!
 //! * **Samples** are [`Cf32`] (`Complex<f32>`). Integer capture formats are scaled
@@ -61,6 +79,7 @@ pub type Cf32 = Complex<f32>;
 pub type Cf64 = Complex<f64>;
 
 pub mod analyse;
+pub mod atomic;
 pub mod batch;
 pub mod capture;
 pub mod channel;
@@ -68,6 +87,7 @@ pub mod equalise;
 mod error;
 pub mod limits;
 pub mod profile;
+pub mod recheck;
 pub mod report;
 pub mod signal;
 pub mod sync;

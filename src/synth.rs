@@ -829,7 +829,7 @@ pub fn write_outputs(
         message: e.to_string(),
     })?;
     json.push('\n');
-    crate::report::write::write_atomic(&tpath, json.as_bytes()).map_err(|e| SynthError::Write {
+    crate::atomic::write_atomic(&tpath, json.as_bytes()).map_err(|e| SynthError::Write {
         path: tpath.clone(),
         message: e.to_string(),
     })?;

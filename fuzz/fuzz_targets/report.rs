@@ -1,5 +1,5 @@
 //! Fuzz target: the report parser `recheck` uses before it touches any file
-//! (`analyse::parse_recorded_report`).
+//! (`recheck::parse_recorded_report`).
 //!
 //! Asserts, when accepted: the schema is `iqaudit-report/2`; `input.sha256` is
 //! 64 hex digits; the recorded profile passes `validate`; the typed report
@@ -7,7 +7,7 @@
 //! naming the report path.
 #![no_main]
 
-use iqaudit::analyse::parse_recorded_report;
+use iqaudit::recheck::parse_recorded_report;
 use iqaudit::report::schema::{Report, SCHEMA};
 use iqaudit::Error;
 use libfuzzer_sys::fuzz_target;

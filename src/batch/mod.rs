@@ -65,8 +65,8 @@ pub use progress::ProgressMode;
 pub use shard::{shard_of, Shard, ShardParseError};
 pub use summary::{merge_summaries, MergeError, RowVerdict, SummaryRow};
 
+use crate::atomic::{ensure_not_an_input, write_atomic, AtomicFile, WriteError};
 use crate::report::schema::Report;
-use crate::report::write::{ensure_not_an_input, write_atomic, AtomicFile, WriteError};
 use progress::Progress;
 use rayon::prelude::*;
 use std::fs::{self, File};

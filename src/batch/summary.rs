@@ -29,8 +29,8 @@
 //! double quotes with inner quotes doubled), UTF-8, `\n` line ends; numbers are
 //! written in Rust's shortest round-trip form; absent values are empty fields.
 
+use crate::atomic::{write_atomic, WriteError};
 use crate::report::schema::{Report, VerdictResult};
-use crate::report::write::{write_atomic, WriteError};
 use serde::{Deserialize, Serialize};
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};

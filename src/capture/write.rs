@@ -13,10 +13,9 @@
 //! the value as is and count `|x| ≥ 1` the same way. NaN quantises to code 0
 //! (Rust's saturating float-to-int cast).
 
-use std::fs::File;
-use std::io::{BufWriter, Write};
-use std::path::{Path, PathBuf};
-use std::sync::atomic::{AtomicU64, Ordering};
+use crate::atomic::{AtomicFile, WriteError};
+use std::io::Write;
+use std::path::Path;
 
 use super::{sigmf, CaptureError, Container, SampleFormat, WavEncoding};
 use crate::Cf32;
@@ -169,7 +168,7 @@ const CHUNK: usize = 1 << 14;
 
 /// Encode a 2-channel WAV through hound (the independent WAV writer).
 fn write_wav(
-    w: &mut BufWriter<File>,
+    w: &mut AtomicFile,
     samples: &[Cf32],
     enc: WavEncoding,
     rate: u32,
@@ -219,45 +218,27 @@ fn write_wav(
     Ok(clipped)
 }
 
-static TEMP_COUNTER: AtomicU64 = AtomicU64::new(0);
-
-/// Write through `f` into a temporary file beside `path`, flush and sync it,
-/// then rename it to `path`. On any error the temporary file is removed.
+/// Write through `f` into a [`crate::atomic::AtomicFile`] beside `path`: the
+/// target appears whole or not at all, and on any error the temporary file is
+/// removed.
 fn atomic_write<T>(
     path: &Path,
-    f: impl FnOnce(&mut BufWriter<File>) -> std::io::Result<T>,
+    f: impl FnOnce(&mut AtomicFile) -> std::io::Result<T>,
 ) -> Result<T, CaptureError> {
-    let err = |source| CaptureError::Write {
+    let err = |e: WriteError| CaptureError::Write {
+        path: path.to_path_buf(),
+        source: match e {
+            WriteError::Io { source, .. } => source,
+            other => std::io::Error::other(other.to_string()),
+        },
+    };
+    let mut file = AtomicFile::with_capacity(path, 1 << 16).map_err(err)?;
+    let value = f(&mut file).map_err(|source| CaptureError::Write {
         path: path.to_path_buf(),
         source,
-    };
-    let dir = match path.parent() {
-        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
-        _ => PathBuf::from("."),
-    };
-    let name = path
-        .file_name()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_else(|| "capture".into());
-    let tmp = dir.join(format!(
-        ".{name}.{}-{}.tmp",
-        std::process::id(),
-        TEMP_COUNTER.fetch_add(1, Ordering::Relaxed)
-    ));
-    let result = (|| {
-        let file = File::options().write(true).create_new(true).open(&tmp)?;
-        let mut w = BufWriter::with_capacity(1 << 16, file);
-        let value = f(&mut w)?;
-        let file = w.into_inner().map_err(|e| e.into_error())?;
-        file.sync_all()?;
-        drop(file);
-        std::fs::rename(&tmp, path)?;
-        Ok(value)
-    })();
-    if result.is_err() {
-        let _ = std::fs::remove_file(&tmp);
-    }
-    result.map_err(err)
+    })?;
+    file.finish().map_err(err)?;
+    Ok(value)
 }
 
 #[cfg(test)]

@@ -5,11 +5,12 @@ use std::io::{IsTerminal, Write};
 use std::path::{Path, PathBuf};
 
 use clap::Args;
-use iqaudit::analyse::{analyse_capture, recheck, AnalyseOptions};
+use iqaudit::analyse::{analyse_capture, AnalyseOptions};
+use iqaudit::atomic::{ensure_not_an_input, write_atomic};
 use iqaudit::profile::load_profile;
+use iqaudit::recheck::recheck;
 use iqaudit::report::plots::write_plots;
 use iqaudit::report::schema::{Report, VerdictResult};
-use iqaudit::report::write::{ensure_not_an_input, write_atomic};
 use iqaudit::{Constellation, Error};
 
 use super::Outcome;

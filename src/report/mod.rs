@@ -1,4 +1,4 @@
-//! Reporting: figures of merit, the JSON audit trail and its atomic writer.
+//! Reporting: figures of merit, the JSON audit trail, the terminal summary and the plots.
 //!
 //! Takes the per-burst results of the analysis and gives the report document
 //! (schema `iqaudit-report/2`), the terminal summary and the plots.
@@ -11,4 +11,3 @@ pub mod provenance;
 pub mod schema;
 pub mod svg;
 pub mod text;
-pub mod write;

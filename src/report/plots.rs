@@ -12,7 +12,7 @@
 
 use super::schema::{BurstReport, Report, Trace, VerdictResult};
 use super::svg::{palette, Chart, Range};
-use super::write::{write_atomic, WriteError};
+use crate::atomic::{write_atomic, WriteError};
 use crate::Cf32;
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};

@@ -6,9 +6,9 @@
 
 use std::path::{Path, PathBuf};
 
-use iqaudit::analyse::parse_recorded_report;
 use iqaudit::capture::parse_sigmf_meta;
 use iqaudit::profile::parse_profile;
+use iqaudit::recheck::parse_recorded_report;
 use iqaudit::{Capture, Cf32, Container, SampleFormat, WavEncoding};
 
 fn seeds(target: &str) -> Vec<(PathBuf, Vec<u8>)> {

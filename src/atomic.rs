@@ -1,4 +1,5 @@
-//! Atomic output files.
+//! Atomic output files, shared by every stage that writes (reports, plots,
+//! summaries, synth ground truth).
 //!
 //! Every report, plot and summary is written to a temporary file in the target's
 //! directory and renamed over the target only when complete, so a run killed at
@@ -7,8 +8,12 @@
 //! removes the temporary file and leaves the target untouched.
 
 use std::fs::{self, File};
-use std::io::{self, BufWriter, Write};
+use std::io::{self, BufWriter, Seek, SeekFrom, Write};
 use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicU64, Ordering};
+
+/// Makes the temporary names of one process distinct.
+static TEMP_COUNTER: AtomicU64 = AtomicU64::new(0);
 
 /// Why an output file could not be written.
 #[derive(Debug, thiserror::Error)]
@@ -41,6 +46,13 @@ pub struct AtomicFile {
 impl AtomicFile {
     /// Start writing `target` (its directory must exist).
     pub fn create(target: &Path) -> Result<AtomicFile, WriteError> {
+        AtomicFile::with_capacity(target, 8 * 1024)
+    }
+
+    /// [`create`](Self::create) with a write buffer of `capacity` bytes. The
+    /// temporary file is created exclusively (`create_new`), so an existing file
+    /// of that name is never written through.
+    pub fn with_capacity(target: &Path, capacity: usize) -> Result<AtomicFile, WriteError> {
         let dir = match target.parent() {
             Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
             _ => PathBuf::from("."),
@@ -49,15 +61,23 @@ impl AtomicFile {
             .file_name()
             .map(|n| n.to_string_lossy().into_owned())
             .unwrap_or_else(|| "output".to_string());
-        let temp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
-        let file = File::create(&temp).map_err(|source| WriteError::Io {
-            path: target.to_path_buf(),
-            source,
-        })?;
+        let temp = dir.join(format!(
+            ".{name}.{}-{}.tmp",
+            std::process::id(),
+            TEMP_COUNTER.fetch_add(1, Ordering::Relaxed)
+        ));
+        let file = File::options()
+            .write(true)
+            .create_new(true)
+            .open(&temp)
+            .map_err(|source| WriteError::Io {
+                path: target.to_path_buf(),
+                source,
+            })?;
         Ok(AtomicFile {
             target: target.to_path_buf(),
             temp,
-            writer: Some(BufWriter::new(file)),
+            writer: Some(BufWriter::with_capacity(capacity, file)),
         })
     }
 
@@ -91,6 +111,16 @@ impl Write for AtomicFile {
         match self.writer.as_mut() {
             Some(w) => w.flush(),
             None => Ok(()),
+        }
+    }
+}
+
+/// Seeking is for writers that patch a header after the data (WAV).
+impl Seek for AtomicFile {
+    fn seek(&mut self, pos: SeekFrom) -> io::Result<u64> {
+        match self.writer.as_mut() {
+            Some(w) => w.seek(pos),
+            None => Err(io::Error::other("file already finished")),
         }
     }
 }

@@ -1,0 +1,424 @@
+//! One burst through the stages: extraction, channel fit and equalisers, figures.
+//!
+//! Takes a synchronised burst ([`BurstSync`]), the capture's [`Plan`] and the
+//! sample source; gives the burst's [`BurstReport`]. The symbol-rate samples are
+//! cut out around the frame, every equaliser runs on them
+//! ([`process_burst`]), the profile's choice (or the MMSE-DFE when it refused) is
+//! reported, and the payload figures come from
+//! [`crate::report::metrics::payload_figures`]. The trace and the channel
+//! response are computed only when `want_detail` says the burst may be traced.
+
+use super::detail::{channel_report, trace};
+use super::plan::{chosen_name, tracking_name, usage, Plan};
+use super::CONFIDENCE;
+use crate::capture::Capture;
+use crate::equalise::{process_burst, BurstOutput, BurstView, DfeFilters, EqualisedSymbols};
+use crate::profile::ResolvedProfile;
+use crate::report::metrics::{
+    payload_figures, run_length_histogram, PayloadDecisions, PayloadFigures,
+};
+use crate::report::schema::{BurstMetrics, BurstReport, EqualiserReport, Warning, WarningCode};
+use crate::sync::{BurstSync, SampleSource, Synchroniser};
+use crate::{Cf32, Cf64, Error};
+
+/// A burst's symbol-rate samples cut out around its frame, and what is in them.
+struct Frame {
+    /// Matched-filtered, timing- and CFO-corrected samples at the symbol rate:
+    /// the frame with `plan.margin` symbols of padding either side.
+    y: Vec<Cf32>,
+    /// Index in `y` of the first training symbol.
+    offset: usize,
+    /// Indices in `y` that lie inside the capture.
+    avail: std::ops::Range<usize>,
+    /// `(payload symbol number, index in y)` of every payload symbol present.
+    present: Vec<(usize, usize)>,
+    /// The capture cuts the payload.
+    truncated: bool,
+    /// The known frame laid out like `y` (zeros in the margins), if known.
+    known: Option<Vec<Cf32>>,
+}
+
+/// Indices (into the extracted vector) of the payload symbols, in payload order.
+fn payload_indices(plan: &Plan, offset: usize) -> impl Iterator<Item = usize> + '_ {
+    let before = offset - plan.before..offset;
+    let t_end = offset + plan.training.len();
+    before.chain(t_end..t_end + plan.after)
+}
+
+/// Cut the frame out of the capture and lay the known symbols beside it.
+fn extract_frame<S: SampleSource + ?Sized>(
+    bs: &BurstSync,
+    plan: &Plan,
+    sync: &Synchroniser,
+    src: &S,
+) -> Result<Frame, Error> {
+    let l = plan.training.len();
+    let offset = plan.margin + plan.before;
+    let first = -((plan.before + plan.margin) as i64);
+    let last = (l + plan.after + plan.margin) as i64;
+    let mut y = vec![Cf32::new(0.0, 0.0); (last - first) as usize];
+    let span = sync.extract_symbols(src, bs, first..last, &mut y)?;
+    let avail = (span.available.start - first) as usize..(span.available.end - first) as usize;
+    let all_payload: Vec<usize> = payload_indices(plan, offset).collect();
+    let present: Vec<(usize, usize)> = all_payload
+        .iter()
+        .enumerate()
+        .filter(|(_, i)| avail.contains(i))
+        .map(|(p, &i)| (p, i))
+        .collect();
+    let truncated = present.len() < all_payload.len();
+    let known = match (&plan.known_before, &plan.known_after) {
+        (Some(b), Some(a)) => {
+            let mut k = vec![Cf32::new(0.0, 0.0); y.len()];
+            k[offset - b.len()..offset].copy_from_slice(b);
+            k[offset..offset + l].copy_from_slice(&plan.training);
+            k[offset + l..offset + l + a.len()].copy_from_slice(a);
+            Some(k)
+        }
+        _ => None,
+    };
+    Ok(Frame {
+        y,
+        offset,
+        avail,
+        present,
+        truncated,
+        known,
+    })
+}
+
+/// Run every equaliser on the frame; the carrier-frequency fit uses only the
+/// frame's symbols present in the capture, not the padding around it.
+fn equalise_frame(
+    frame: &Frame,
+    plan: &Plan,
+    profile: &ResolvedProfile,
+) -> Result<BurstOutput, Error> {
+    let view = BurstView {
+        y: &frame.y,
+        training: &plan.training,
+        offset: frame.offset,
+        slicer: &plan.constellation,
+        known: frame.known.as_deref(),
+    };
+    let mut cfg = plan.burst_cfg;
+    let l = plan.training.len();
+    let span = frame.offset - plan.before..frame.offset + l + plan.after;
+    let start = span.start.max(frame.avail.start);
+    cfg.carrier.fit_range = Some((start, span.end.min(frame.avail.end).max(start)));
+    // The ZF-DFE's pass is needed only when it is the choice.
+    cfg.run_zf_dfe = chosen_name(profile) == "zf-dfe";
+    Ok(process_burst(&view, &cfg)?)
+}
+
+/// The reported equaliser: the profile's choice, or the MMSE-DFE if it refused
+/// (with a warning saying why).
+fn chosen_result<'a>(
+    out: &'a BurstOutput,
+    profile: &ResolvedProfile,
+    index: usize,
+    warnings: &mut Vec<Warning>,
+) -> Result<(&'static str, &'a DfeFilters, &'a EqualisedSymbols), Error> {
+    let wanted = chosen_name(profile);
+    if let Some((f, s)) = pick(out, wanted) {
+        return Ok((wanted, f, s));
+    }
+    let why = match out.get(wanted).map(|r| &r.outcome) {
+        Some(Err(e)) => e.to_string(),
+        _ => "it did not run".to_string(),
+    };
+    warnings.push(Warning::new(
+        WarningCode::MainTapWeak,
+        format!("{wanted} refused ({why}); figures are from the mmse-dfe"),
+    ));
+    let (f, s) = pick(out, "mmse-dfe").ok_or_else(|| {
+        usage(format!(
+            "burst {index}: no equaliser could run on this burst ({why})"
+        ))
+    })?;
+    Ok(("mmse-dfe", f, s))
+}
+
+/// Labels of the equaliser called `name` at the payload symbols present.
+fn labels_at(out: &BurstOutput, name: &str, present: &[(usize, usize)]) -> Option<Vec<usize>> {
+    pick(out, name).map(|(_, s)| present.iter().map(|&(_, i)| s.labels[i]).collect())
+}
+
+/// RMS EVM of the linear MMSE equaliser, with the same kind of reference.
+fn linear_evm(
+    out: &BurstOutput,
+    frame: &Frame,
+    known_payload: Option<&[Cf32]>,
+    plan: &Plan,
+) -> Option<f64> {
+    let (_, s) = pick(out, "linear-mmse")?;
+    let z: Vec<Cf32> = frame.present.iter().map(|&(_, i)| s.soft[i]).collect();
+    let reference: Vec<Cf32> = match known_payload {
+        Some(k) => k.to_vec(),
+        None => frame
+            .present
+            .iter()
+            .map(|&(_, i)| plan.constellation.points()[s.labels[i]])
+            .collect(),
+    };
+    crate::report::metrics::evm(&z, &reference).map(|f| f.evm_rms_percent)
+}
+
+/// Analyse one synchronised burst (see the module documentation).
+#[allow(clippy::too_many_arguments)]
+pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
+    index: usize,
+    bs: &BurstSync,
+    plan: &Plan,
+    profile: &ResolvedProfile,
+    sync: &Synchroniser,
+    src: &S,
+    capture: &Capture,
+    want_detail: &(dyn Fn(f64) -> bool + Sync),
+) -> Result<BurstReport, Error> {
+    let mut warnings = Vec::new();
+    let frame = extract_frame(bs, plan, sync, src)?;
+    if frame.truncated {
+        warnings.push(Warning::new(
+            WarningCode::BurstTruncated,
+            format!(
+                "the capture cuts this burst: {} of {} payload symbols present",
+                frame.present.len(),
+                plan.before + plan.after
+            ),
+        ));
+    }
+    let out = equalise_frame(&frame, plan, profile)?;
+    let (name, filters, eq) = chosen_result(&out, profile, index, &mut warnings)?;
+
+    // Figures of merit over the payload present.
+    let present = &frame.present;
+    let known_payload: Option<Vec<Cf32>> = frame
+        .known
+        .as_ref()
+        .map(|k| present.iter().map(|&(_, i)| k[i]).collect());
+    let z: Vec<Cf32> = present.iter().map(|&(_, i)| eq.soft[i]).collect();
+    let labels: Vec<usize> = present.iter().map(|&(_, i)| eq.labels[i]).collect();
+    let numbers: Vec<usize> = present.iter().map(|&(p, _)| p).collect();
+    let (dfe, genie) = match known_payload {
+        Some(_) => (
+            labels_at(&out, "mmse-dfe", present),
+            labels_at(&out, "genie-mmse-dfe", present),
+        ),
+        None => (None, None),
+    };
+    let fig = payload_figures(
+        &PayloadDecisions {
+            soft: &z,
+            labels: &labels,
+            numbers: &numbers,
+            known: known_payload.as_deref(),
+            dfe_and_genie: dfe.as_deref().zip(genie.as_deref()),
+        },
+        &plan.constellation,
+        CONFIDENCE,
+    );
+    let evm = fig.evm;
+    // The trace and the channel response only where the caller may keep them
+    // (the value judged is `metrics.evm_rms_percent` below).
+    let detail = want_detail(evm.map(|f| f.evm_rms_percent).unwrap_or(0.0));
+    propagation_warning(&fig, &mut warnings);
+    let linear_evm = linear_evm(&out, &frame, known_payload.as_deref(), plan);
+    let channel = channel_report(&out.channel, detail);
+    channel_warnings(&out, bs, sync, &mut warnings);
+    region_warnings(bs, plan, capture, &mut warnings)?;
+
+    let refined_hz = out.carrier.refined_cfo_cycles_per_symbol * plan.symbol_rate_hz;
+    let cfo_hz = bs.cfo_hz + refined_hz;
+    let metrics = burst_metrics(&fig, &numbers, known_payload.is_some());
+    let trace = if detail {
+        Some(trace(
+            bs,
+            sync,
+            src,
+            plan,
+            &z,
+            &numbers,
+            &fig.reference,
+            fig.wrong,
+        )?)
+    } else {
+        None
+    };
+    Ok(BurstReport {
+        index,
+        start_sample: bs.start_sample.max(0) as u64,
+        timing_frac_samples: bs.timing_frac,
+        sync_metric: bs.metric,
+        cfo_hz,
+        cfo_training_hz: bs.cfo_hz,
+        cfo_ppm: plan
+            .center_freq_hz
+            .filter(|f| *f > 0.0)
+            .map(|f| cfo_hz / f * 1e6),
+        phase_rad: bs.phase_rad,
+        truncated: frame.truncated,
+        payload_symbols: present.len(),
+        channel,
+        equaliser: EqualiserReport {
+            kind: name.to_string(),
+            feedforward_taps: filters.ff.len(),
+            feedback_taps: filters.fb.len(),
+            decision_delay: filters.delay,
+            predicted_snr_db: finite(filters.predicted_snr_unbiased_db),
+            achieved_snr_db: metrics.mer_db,
+            linear_mmse_evm_percent: linear_evm,
+            tracking: tracking_name(profile.equaliser.tracking).to_string(),
+        },
+        metrics,
+        trace,
+        warnings,
+    })
+}
+
+/// The report's figures of the payload.
+fn burst_metrics(fig: &PayloadFigures, numbers: &[usize], known: bool) -> BurstMetrics {
+    let evm = fig.evm;
+    BurstMetrics {
+        reference: if known {
+            "known-payload".into()
+        } else {
+            "decisions".into()
+        },
+        symbols: numbers.len(),
+        evm_rms_percent: evm.map(|f| f.evm_rms_percent).unwrap_or(0.0),
+        evm_rms_db: evm.and_then(|f| f.evm_rms_db),
+        evm_peak_percent: evm.map(|f| f.evm_peak_percent).unwrap_or(0.0),
+        evm_peak_symbol: evm
+            .map(|f| numbers.get(f.evm_peak_index).copied().unwrap_or(0))
+            .unwrap_or(0),
+        mer_db: evm.and_then(|f| f.mer_db),
+        ser: fig.ser,
+        ber: fig.ber,
+        run_length_histogram: run_length_histogram(&fig.runs),
+        error_runs: fig.runs.clone(),
+        error_propagation: fig.propagation,
+    }
+}
+
+/// Decision feedback that multiplied the errors more than twofold (at least
+/// ten DFE errors, so chance alone does not trip it).
+fn propagation_warning(fig: &PayloadFigures, warnings: &mut Vec<Warning>) {
+    let Some(p) = &fig.propagation else {
+        return;
+    };
+    if let Some(m) = p.multiplication {
+        if m > 2.0 && p.dfe_errors >= 10 {
+            warnings.push(Warning::new(
+                WarningCode::ErrorPropagation,
+                format!(
+                    "decision feedback multiplied the errors {:.1}× ({} against {} with true symbols fed back)",
+                    m, p.dfe_errors, p.genie_errors
+                ),
+            ));
+        }
+    }
+}
+
+/// A weak main tap and a correlation peak close to the threshold.
+fn channel_warnings(
+    out: &BurstOutput,
+    bs: &BurstSync,
+    sync: &Synchroniser,
+    warnings: &mut Vec<Warning>,
+) {
+    let ch = &out.channel;
+    let main_power = ch.taps[ch.pre].norm_sqr();
+    let strongest = ch.taps.iter().map(|t| t.norm_sqr()).fold(0.0, f64::max);
+    if main_power < 0.5 * strongest {
+        warnings.push(Warning::new(
+            WarningCode::MainTapWeak,
+            format!(
+                "the main tap is {:.1} dB below the strongest tap; consider more pre-cursor taps",
+                10.0 * (strongest / main_power.max(1e-300)).log10()
+            ),
+        ));
+    }
+    if bs.metric < 1.25 * sync.threshold() {
+        warnings.push(Warning::new(
+            WarningCode::WeakCorrelation,
+            format!(
+                "correlation peak {:.3} is close to the threshold {:.3}",
+                bs.metric,
+                sync.threshold()
+            ),
+        ));
+    }
+}
+
+fn finite(x: f64) -> Option<f64> {
+    x.is_finite().then_some(x)
+}
+
+/// The filters and symbols of the equaliser called `name`, if it ran.
+fn pick<'a>(out: &'a BurstOutput, name: &str) -> Option<(&'a DfeFilters, &'a EqualisedSymbols)> {
+    match out.get(name).map(|r| &r.outcome) {
+        Some(Ok((f, s))) => Some((f, s)),
+        _ => None,
+    }
+}
+
+/// Clipping, non-finite samples and DC over the burst's own samples.
+fn region_warnings(
+    bs: &BurstSync,
+    plan: &Plan,
+    capture: &Capture,
+    warnings: &mut Vec<Warning>,
+) -> Result<(), Error> {
+    let sps = plan.sps as i64;
+    let lo = (bs.start_sample - plan.before as i64 * sps).max(0) as usize;
+    let hi = ((bs.start_sample + (plan.training.len() + plan.after) as i64 * sps).max(0) as usize)
+        .min(capture.len());
+    if hi <= lo {
+        return Ok(());
+    }
+    let mut buf = vec![Cf32::new(0.0, 0.0); hi - lo];
+    let stats = capture.read_into(lo, &mut buf)?;
+    if stats.clipped > 0 {
+        warnings.push(Warning::new(
+            WarningCode::Clipping,
+            format!(
+                "{} of the burst's {} samples sit at full scale; reduce the receiver gain",
+                stats.clipped,
+                buf.len()
+            ),
+        ));
+    }
+    if stats.non_finite > 0 {
+        warnings.push(Warning::new(
+            WarningCode::NonFiniteSamples,
+            format!(
+                "{} NaN or infinite samples in the burst were replaced by 0",
+                stats.non_finite
+            ),
+        ));
+    }
+    let n = buf.len() as f64;
+    let (mut sum, mut power) = (Cf64::new(0.0, 0.0), 0.0f64);
+    for s in &buf {
+        sum += Cf64::new(f64::from(s.re), f64::from(s.im));
+        power += f64::from(s.norm_sqr());
+    }
+    let dc = sum / n;
+    let mean_power = power / n;
+    if mean_power > 0.0 && dc.norm_sqr() / mean_power > 0.01 {
+        let advice = if plan.burst_cfg.channel.dc_offset {
+            "the channel fit removes it (channel_fit.dc_offset is on)"
+        } else {
+            "enable channel_fit.dc_offset"
+        };
+        warnings.push(Warning::new(
+            WarningCode::StrongDc,
+            format!(
+                "DC offset {:.1} dB relative to the burst power; {advice}",
+                10.0 * (dc.norm_sqr() / mean_power).log10()
+            ),
+        ));
+    }
+    Ok(())
+}

@@ -1,0 +1,192 @@
+//! Re-running a recorded report and saying whether every figure reproduces.
+//!
+//! Takes a report file written by `analyse`/`batch`; parses and checks it
+//! ([`parse_recorded_report`]) before any file it names is touched, finds the
+//! capture ([`locate_input`]), verifies its SHA-256, re-runs the analysis with
+//! the recorded profile and options and gives the figures that differ
+//! ([`RecheckResult`]).
+
+use crate::analyse::{analyse_capture, AnalyseOptions, MAX_TRACED_BURSTS};
+use crate::capture::SampleFormat;
+use crate::profile::ResolvedProfile;
+use crate::report::provenance::sha256_file;
+use crate::report::schema::{Report, SCHEMA};
+use crate::Error;
+use std::path::{Path, PathBuf};
+
+/// Where `recheck` finds the capture a report names: the recorded path as given
+/// (relative to the working directory), else relative to the report's folder.
+pub fn locate_input(report_path: &Path, recorded: &str) -> PathBuf {
+    let p = PathBuf::from(recorded);
+    if p.exists() || p.is_absolute() {
+        return p;
+    }
+    match report_path.parent() {
+        Some(dir) if dir.join(&p).exists() => dir.join(p),
+        _ => p,
+    }
+}
+
+/// What `recheck` found.
+#[derive(Debug, Clone)]
+pub struct RecheckResult {
+    /// The capture that was re-analysed.
+    pub input: PathBuf,
+    /// Figures that did not reproduce (empty when every figure did).
+    pub differences: Vec<crate::report::compare::Difference>,
+    /// Number of numeric figures compared.
+    pub figures: usize,
+}
+
+fn count_numbers(v: &serde_json::Value) -> usize {
+    match v {
+        serde_json::Value::Number(_) => 1,
+        serde_json::Value::Array(a) => a.iter().map(count_numbers).sum(),
+        serde_json::Value::Object(o) => o.values().map(count_numbers).sum(),
+        _ => 0,
+    }
+}
+
+/// A report read back for `recheck`, checked before any file it names is touched.
+#[derive(Debug, Clone)]
+pub struct RecordedReport {
+    /// The report as JSON (the figures are compared value by value).
+    pub value: serde_json::Value,
+    /// The report as typed data.
+    pub report: Report,
+    /// The resolved profile it recorded, re-validated
+    /// ([`ResolvedProfile::validate`]).
+    pub profile: ResolvedProfile,
+    /// The `--format` override it recorded.
+    pub format: Option<SampleFormat>,
+}
+
+/// Parse and check report text for `recheck` without touching any other file:
+/// valid JSON, schema `iqaudit-report/2`, every key known, `input.sha256` a
+/// 64-digit hex string, the recorded profile usable and within the caps of
+/// `crate::limits`, the format override a known format. `report_path` only
+/// names the report in errors.
+///
+/// # Errors
+/// [`Error::Report`] naming what is wrong.
+pub fn parse_recorded_report(text: &str, report_path: &Path) -> Result<RecordedReport, Error> {
+    let bad = |message: String| Error::Report {
+        path: report_path.to_path_buf(),
+        message,
+    };
+    let recorded: serde_json::Value =
+        serde_json::from_str(text).map_err(|e| bad(format!("not valid JSON ({e})")))?;
+    let schema = recorded
+        .get("schema")
+        .and_then(|s| s.as_str())
+        .unwrap_or("");
+    if schema != SCHEMA {
+        let why = if schema.starts_with("iqaudit-report/") {
+            "written by another iqaudit version; analyse the capture again"
+        } else {
+            "not an iqaudit report?"
+        };
+        return Err(bad(format!(
+            "schema is '{schema}', expected '{SCHEMA}' ({why})"
+        )));
+    }
+    // From a borrow: cloning the tree first would hold it twice.
+    let report = <Report as serde::Deserialize>::deserialize(&recorded)
+        .map_err(|e| bad(format!("does not match the {SCHEMA} schema: {e}")))?;
+    if !crate::report::provenance::is_sha256_hex(&report.input.sha256) {
+        return Err(bad(format!(
+            "input.sha256 '{}' is not a 64-digit hex SHA-256",
+            report.input.sha256
+        )));
+    }
+    let profile: ResolvedProfile = serde_json::from_value(report.profile.clone())
+        .map_err(|e| bad(format!("the recorded profile is not usable: {e}")))?;
+    profile
+        .validate()
+        .map_err(|e| bad(format!("the recorded profile is not usable: profile.{e}")))?;
+    let format = match &report.provenance.format_override {
+        Some(name) => Some(name.parse::<SampleFormat>().map_err(|_| {
+            bad(format!(
+                "provenance.format_override '{name}' is not a format"
+            ))
+        })?),
+        None => None,
+    };
+    if report.provenance.traced_bursts > MAX_TRACED_BURSTS {
+        return Err(bad(format!(
+            "provenance.traced_bursts {} is above the cap {MAX_TRACED_BURSTS}",
+            report.provenance.traced_bursts
+        )));
+    }
+    if let Some(r) = report.provenance.sample_rate_override_hz {
+        if !(r.is_finite() && r > 0.0) {
+            return Err(bad(format!(
+                "provenance.sample_rate_override_hz {r} is not a positive rate"
+            )));
+        }
+    }
+    Ok(RecordedReport {
+        value: recorded,
+        report,
+        profile,
+        format,
+    })
+}
+
+/// Re-run the analysis recorded in a report and compare every figure exactly.
+///
+/// # Errors
+/// [`Error::Report`] when the report cannot be read or is not an
+/// `iqaudit-report/2` document (see [`parse_recorded_report`]); [`Error::Io`]
+/// when the capture is missing; [`Error::InputChanged`] when its SHA-256 differs
+/// from the recorded one; and any error of [`analyse_capture`].
+pub fn recheck(report_path: &Path) -> Result<RecheckResult, Error> {
+    let bad = |message: String| Error::Report {
+        path: report_path.to_path_buf(),
+        message,
+    };
+    let text = crate::limits::read_small_text(report_path, crate::limits::MAX_REPORT_BYTES)
+        .map_err(|source| Error::Io {
+            path: report_path.to_path_buf(),
+            source,
+        })?;
+    let RecordedReport {
+        value: recorded,
+        report,
+        profile,
+        format,
+    } = parse_recorded_report(&text, report_path)?;
+    drop(text);
+    let input = locate_input(report_path, &report.input.path);
+    let found = sha256_file(&input).map_err(|source| Error::Io {
+        path: input.clone(),
+        source,
+    })?;
+    if !found.eq_ignore_ascii_case(&report.input.sha256) {
+        return Err(Error::InputChanged {
+            path: input,
+            expected: report.input.sha256.clone(),
+            found,
+        });
+    }
+    let opts = AnalyseOptions {
+        format,
+        sample_rate_hz: report.provenance.sample_rate_override_hz,
+        command: report.command.clone(),
+        input_sha256: Some(found),
+        traced_bursts: Some(report.provenance.traced_bursts),
+        skip_input_hash: false,
+    };
+    let recorded_path = report.input.path.clone();
+    drop(report);
+    let mut again = analyse_capture(&input, &profile, &opts)?;
+    again.input.path = recorded_path;
+    // Burst by burst: one JSON tree (the recorded one) in memory, not two.
+    let differences = crate::report::compare::report_differences(&recorded, again, &["command"])
+        .map_err(|e| bad(e.to_string()))?;
+    Ok(RecheckResult {
+        input,
+        differences,
+        figures: count_numbers(&recorded),
+    })
+}
