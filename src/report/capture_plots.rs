@@ -497,8 +497,8 @@ pub fn write_info_plots(
     bursts: &[BurstMark],
     mask: &[MaskLine],
     dir: &std::path::Path,
-) -> Result<Vec<std::path::PathBuf>, super::write::WriteError> {
-    std::fs::create_dir_all(dir).map_err(|source| super::write::WriteError::Io {
+) -> Result<Vec<std::path::PathBuf>, crate::atomic::WriteError> {
+    std::fs::create_dir_all(dir).map_err(|source| crate::atomic::WriteError::Io {
         path: dir.to_path_buf(),
         source,
     })?;
@@ -509,7 +509,7 @@ pub fn write_info_plots(
         ("index.html", info_index_html(r)),
     ] {
         let p = dir.join(name);
-        super::write::write_atomic(&p, body.as_bytes())?;
+        crate::atomic::write_atomic(&p, body.as_bytes())?;
         out.push(p);
     }
     Ok(out)
