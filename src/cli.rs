@@ -189,7 +189,7 @@ fn run_info(args: &InfoArgs) -> Result<Outcome, Error> {
             Some(capture.path()),
         ];
         let inputs: Vec<&std::path::Path> = inputs.into_iter().flatten().collect();
-        iqaudit::report::write::ensure_not_an_input(dir, &inputs)?;
+        iqaudit::atomic::ensure_not_an_input(dir, &inputs)?;
     }
     let stats_opts = StatsOptions::default();
     let bar =
