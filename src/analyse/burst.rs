@@ -230,6 +230,22 @@ pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
 
     let refined_hz = out.carrier.refined_cfo_cycles_per_symbol * plan.symbol_rate_hz;
     let cfo_hz = bs.cfo_hz + refined_hz;
+    lock_warnings(
+        &LockInputs {
+            out: &out,
+            filters,
+            fig: &fig,
+            bs,
+            cfo_hz,
+            max_cfo_hz: profile
+                .search
+                .max_cfo_hz_at(plan.sample_rate_hz, plan.sps)
+                .min(0.25 * plan.symbol_rate_hz),
+            plan,
+            known: known_payload.is_some(),
+        },
+        &mut warnings,
+    );
     let metrics = burst_metrics(&fig, &numbers, known_payload.is_some());
     let trace = if detail {
         Some(trace(
@@ -346,6 +362,97 @@ fn channel_warnings(
                 "correlation peak {:.3} is close to the threshold {:.3}",
                 bs.metric,
                 sync.threshold()
+            ),
+        ));
+    }
+}
+
+/// What [`lock_warnings`] judges.
+struct LockInputs<'a> {
+    out: &'a BurstOutput,
+    filters: &'a DfeFilters,
+    fig: &'a PayloadFigures,
+    bs: &'a BurstSync,
+    cfo_hz: f64,
+    max_cfo_hz: f64,
+    plan: &'a Plan,
+    known: bool,
+}
+
+/// Gaussian tail `Q(x) = ½·erfc(x/√2)`, from Abramowitz & Stegun 7.1.26
+/// (|error| ≤ 1.5·10⁻⁷ on erfc), enough to tell a predicted error rate of
+/// 10⁻³ from one of 10⁻¹.
+fn q_tail(x: f64) -> f64 {
+    if x < 0.0 {
+        return 1.0 - q_tail(-x);
+    }
+    let z = x / std::f64::consts::SQRT_2;
+    let t = 1.0 / (1.0 + 0.327_591_1 * z);
+    let poly = t
+        * (0.254_829_592
+            + t * (-0.284_496_736
+                + t * (1.421_413_741 + t * (-1.453_152_027 + t * 1.061_405_429))));
+    0.5 * poly * (-z * z).exp()
+}
+
+/// The RMS EVM (percent of the constellation's RMS amplitude) at which the
+/// RMS error reaches half the minimum distance: beyond it most decisions sit
+/// outside their decision region.
+fn decision_region_evm_percent(plan: &Plan) -> f64 {
+    let pts = plan.constellation.points();
+    let es = pts.iter().map(|p| f64::from(p.norm_sqr())).sum::<f64>() / pts.len().max(1) as f64;
+    100.0 * f64::from(plan.constellation.min_distance()) / 2.0 / es.sqrt()
+}
+
+/// Loss of lock and a rejected carrier refinement, each with the cause it
+/// most likely has.
+fn lock_warnings(i: &LockInputs<'_>, warnings: &mut Vec<Warning>) {
+    let rs = i.plan.symbol_rate_hz;
+    let c = &i.out.carrier;
+    if let Some(r) = c.rejected_cfo_cycles_per_symbol {
+        warnings.push(Warning::new(
+            WarningCode::CarrierRefinementRejected,
+            format!(
+                "the decision-directed carrier refinement gave {:+.1} Hz, more than {:.0} Cramér–Rao σ (±{:.1} Hz) from the training estimate {:+.1} Hz; kept the training estimate. The payload decisions were likely wrong (a channel null, a timing error or a wrong payload modulation)",
+                i.bs.cfo_hz + r * rs,
+                i.plan.burst_cfg.carrier.max_sigmas,
+                i.plan.burst_cfg.carrier.max_sigmas * c.training_sigma_cycles_per_symbol * rs,
+                i.bs.cfo_hz + c.training_cfo_cycles_per_symbol * rs,
+            ),
+        ));
+    }
+    if i.cfo_hz.abs() > i.max_cfo_hz {
+        warnings.push(Warning::new(
+            WarningCode::LossOfLock,
+            format!(
+                "the CFO {:+.1} Hz lies outside the search range ±{:.1} Hz (search.max_cfo_hz): the carrier estimate ran away or the range is too narrow for this transmitter",
+                i.cfo_hz, i.max_cfo_hz
+            ),
+        ));
+    }
+    let evm = i.fig.evm.map(|f| f.evm_rms_percent);
+    let bound = decision_region_evm_percent(i.plan);
+    let dmin = f64::from(i.plan.constellation.min_distance());
+    let snr = 10f64.powf(i.filters.predicted_snr_unbiased_db / 10.0);
+    // Nearest-neighbour approximation of the symbol error rate at the predicted
+    // output SNR (Es = 1): at most 4 neighbours at dmin, noise σ²/2 per axis.
+    let predicted_ser = (4.0 * q_tail((dmin * dmin * snr / 2.0).sqrt())).min(1.0);
+    if let (Some(ser), true) = (i.fig.ser, i.known) {
+        if ser.rate > 0.1 && predicted_ser < 1e-2 {
+            warnings.push(Warning::new(
+                WarningCode::LossOfLock,
+                format!(
+                    "SER {:.2e} while the training predicts {:.1} dB output SNR (SER ≈ {:.1e}): the equaliser lost lock after the training (carrier slip, timing, or a payload that does not follow the profile)",
+                    ser.rate, i.filters.predicted_snr_unbiased_db, predicted_ser
+                ),
+            ));
+        }
+    }
+    if let Some(e) = evm.filter(|e| *e > bound) {
+        warnings.push(Warning::new(
+            WarningCode::LossOfLock,
+            format!(
+                "EVM {e:.1} % exceeds {bound:.1} %, where the RMS error reaches half the minimum distance of the constellation: most decisions are outside their region (lost carrier or timing, or the wrong modulation)"
             ),
         ));
     }

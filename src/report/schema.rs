@@ -371,6 +371,12 @@ pub enum WarningCode {
     WeakCorrelation,
     /// Error propagation multiplied the decision errors.
     ErrorPropagation,
+    /// The carrier refinement moved the frequency farther from the training
+    /// estimate than its Cramér–Rao bound allows; the training estimate was kept.
+    CarrierRefinementRejected,
+    /// The burst's figures show loss of lock (errors or EVM far beyond what the
+    /// fitted SNR predicts, or a CFO outside the search range).
+    LossOfLock,
 }
 
 impl fmt::Display for WarningCode {

@@ -11,6 +11,7 @@ mod batch_cli;
 mod batch_kill;
 mod bounded_memory;
 mod capture_formats;
+mod carrier;
 mod fuzz_seeds;
 mod info_cli;
 mod large_capture;
