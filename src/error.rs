@@ -57,6 +57,16 @@ pub enum Error {
         /// SHA-256 of the file now.
         found: String,
     },
+    /// A capture analysed with its SigMF sidecar was found without it (moved
+    /// or copied without its `.sigmf-meta`): an input problem, not a figure
+    /// that differs.
+    #[error("{}: the report was made with the SigMF sidecar beside this capture, but {} is not there now; move or copy the .sigmf-meta together with the data file", path.display(), sidecar.display())]
+    SidecarMissing {
+        /// The capture.
+        path: PathBuf,
+        /// The sidecar name looked for.
+        sidecar: PathBuf,
+    },
     /// A batch could not run (bad folder, output not writable, no captures).
     #[error(transparent)]
     Batch(#[from] crate::batch::BatchError),

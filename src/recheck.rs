@@ -27,13 +27,40 @@ pub fn locate_input(report_path: &Path, recorded: &str) -> PathBuf {
     }
 }
 
+/// Whether the recorded report says its format came from a SigMF sidecar.
+fn format_from_sidecar(report: &Report) -> bool {
+    report.input.format.contains("from SigMF sidecar")
+}
+
+/// A capture analysed with its SigMF sidecar must still have it beside it:
+/// without it the format, rate and centre frequency would come from elsewhere
+/// and every figure would differ for a reason that is not the analysis.
+fn check_sidecar(report: &Report, input: &Path) -> Result<(), Error> {
+    if !format_from_sidecar(report) {
+        return Ok(());
+    }
+    let mut appended = input.as_os_str().to_owned();
+    appended.push(".sigmf-meta");
+    let candidates = [input.with_extension("sigmf-meta"), PathBuf::from(appended)];
+    if candidates.iter().any(|c| c.is_file()) || !input.exists() {
+        // A missing capture is reported by the hash check, naming the capture.
+        return Ok(());
+    }
+    Err(Error::SidecarMissing {
+        path: input.to_path_buf(),
+        sidecar: candidates[0].clone(),
+    })
+}
+
 /// What `recheck` found.
 #[derive(Debug, Clone)]
 pub struct RecheckResult {
     /// The capture that was re-analysed.
     pub input: PathBuf,
-    /// Figures that did not reproduce (empty when every figure did).
-    pub differences: Vec<crate::report::compare::Difference>,
+    /// Figures that did not reproduce: the first
+    /// [`MAX_KEPT_DIFFERENCES`](crate::report::compare::MAX_KEPT_DIFFERENCES)
+    /// and the total count (zero when every figure did).
+    pub differences: crate::report::compare::Differences,
     /// Number of numeric figures compared.
     pub figures: usize,
 }
@@ -158,6 +185,7 @@ pub fn recheck(report_path: &Path) -> Result<RecheckResult, Error> {
     } = parse_recorded_report(&text, report_path)?;
     drop(text);
     let input = locate_input(report_path, &report.input.path);
+    check_sidecar(&report, &input)?;
     let found = sha256_file(&input).map_err(|source| Error::Io {
         path: input.clone(),
         source,

@@ -11,6 +11,16 @@
 set -euo pipefail
 cd "$(dirname "$0")/.."
 
+# jq, python3 and node re-serialise a report in the recheck round-trip test (#19);
+# under CI (IQAUDIT_CI=1, set by .ci/run) that test fails instead of skipping.
+missing=()
+command -v jq >/dev/null 2>&1 || missing+=(jq)
+command -v python3 >/dev/null 2>&1 || missing+=(python3)
+command -v node >/dev/null 2>&1 || missing+=(nodejs)
+if [ "${#missing[@]}" -gt 0 ]; then
+  apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq "${missing[@]}"
+fi
+
 cargo test --release
 
 # ---- Slurm: docs/scaling.md's array job on a single-node cluster (#22) --------

@@ -67,6 +67,47 @@ pub struct AnalyseArgs {
 pub struct RecheckArgs {
     /// A report written by `iqaudit analyse --report`.
     pub report: PathBuf,
+
+    /// List at most N differing figures in text mode (the total is always given).
+    #[arg(long, value_name = "N", default_value_t = 20)]
+    pub max_listed: usize,
+
+    /// Print the result as one JSON object (schema `iqaudit.recheck/1`) on stdout.
+    ///
+    /// Keys: `schema`, `tool` {name, version}, `report`, `input`, `reproduces`,
+    /// `figures_compared`, `differences_total`, `differences` (the first 1000 in
+    /// document order, each {path, recorded, recomputed} as compact JSON text).
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// Schema id of `recheck --json`.
+pub const RECHECK_SCHEMA: &str = "iqaudit.recheck/1";
+
+/// `recheck --json`'s document.
+fn recheck_json(args: &RecheckArgs, r: &iqaudit::recheck::RecheckResult) -> serde_json::Value {
+    let listed: Vec<serde_json::Value> = r
+        .differences
+        .kept
+        .iter()
+        .map(|d| {
+            serde_json::json!({
+                "path": d.path,
+                "recorded": d.recorded,
+                "recomputed": d.recomputed,
+            })
+        })
+        .collect();
+    serde_json::json!({
+        "schema": RECHECK_SCHEMA,
+        "tool": {"name": "iqaudit", "version": env!("CARGO_PKG_VERSION")},
+        "report": args.report.display().to_string(),
+        "input": r.input.display().to_string(),
+        "reproduces": r.differences.is_empty(),
+        "figures_compared": r.figures,
+        "differences_total": r.differences.total,
+        "differences": listed,
+    })
 }
 
 /// `CAPTURE.profile.json` beside the capture.
@@ -203,7 +244,12 @@ pub fn run_analyse(args: &AnalyseArgs, argv: &[String]) -> Result<Outcome, Error
 pub fn run_recheck(args: &RecheckArgs) -> Result<Outcome, Error> {
     let r = recheck(&args.report)?;
     let mut out = std::io::stdout().lock();
-    let text = if r.differences.is_empty() {
+    let text = if args.json {
+        let mut t = serde_json::to_string_pretty(&recheck_json(args, &r))
+            .map_err(|e| stdout_err(e.into()))?;
+        t.push('\n');
+        t
+    } else if r.differences.is_empty() {
         format!(
             "every figure reproduces: {} numbers in {} match a fresh analysis of {}\n",
             r.figures,
@@ -211,13 +257,22 @@ pub fn run_recheck(args: &RecheckArgs) -> Result<Outcome, Error> {
             r.input.display()
         )
     } else {
+        let total = r.differences.total;
         let mut s = format!(
-            "{} figure(s) in {} do not reproduce:\n",
-            r.differences.len(),
-            args.report.display()
+            "{total} figure(s) in {} do not reproduce:\n",
+            args.report.display(),
         );
-        for d in &r.differences {
+        let shown = r.differences.kept.iter().take(args.max_listed);
+        let listed = shown.len();
+        for d in shown {
             s.push_str(&format!("  {d}\n"));
+        }
+        if listed < total {
+            s.push_str(&format!(
+                "  … and {} more (--max-listed N lists more; --json gives the first {})\n",
+                total - listed,
+                iqaudit::report::compare::MAX_KEPT_DIFFERENCES
+            ));
         }
         s
     };

@@ -16,6 +16,7 @@ mod fuzz_seeds;
 mod info_cli;
 mod large_capture;
 mod profile;
+mod recheck_outputs;
 mod sample_captures;
 mod signal;
 mod sync;
