@@ -224,9 +224,10 @@ pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
     let detail = want_detail(evm.map(|f| f.evm_rms_percent).unwrap_or(0.0));
     propagation_warning(&fig, &mut warnings);
     let linear_evm = linear_evm(&out, &frame, known_payload.as_deref(), plan);
-    let channel = channel_report(&out.channel, detail);
+    let mut channel = channel_report(&out.channel, detail);
+    channel.training_symbols = plan.training.len();
     channel_warnings(&out, bs, sync, &mut warnings);
-    region_warnings(bs, plan, capture, &mut warnings)?;
+    let received_power = region_warnings(bs, plan, capture, &mut warnings)?;
 
     let refined_hz = out.carrier.refined_cfo_cycles_per_symbol * plan.symbol_rate_hz;
     let cfo_hz = bs.cfo_hz + refined_hz;
@@ -257,6 +258,7 @@ pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
             &numbers,
             &fig.reference,
             fig.wrong,
+            out.channel.taps[out.channel.pre],
         )?)
     } else {
         None
@@ -273,6 +275,7 @@ pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
             .filter(|f| *f > 0.0)
             .map(|f| cfo_hz / f * 1e6),
         phase_rad: bs.phase_rad,
+        received_power_dbfs: received_power,
         truncated: frame.truncated,
         payload_symbols: present.len(),
         channel,
@@ -285,6 +288,16 @@ pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
             achieved_snr_db: metrics.mer_db,
             linear_mmse_evm_percent: linear_evm,
             tracking: tracking_name(profile.equaliser.tracking).to_string(),
+            feedforward: filters
+                .ff
+                .iter()
+                .map(|c| [f64::from(c.re), f64::from(c.im)])
+                .collect(),
+            feedback: filters
+                .fb
+                .iter()
+                .map(|c| [f64::from(c.re), f64::from(c.im)])
+                .collect(),
         },
         metrics,
         trace,
@@ -470,19 +483,20 @@ fn pick<'a>(out: &'a BurstOutput, name: &str) -> Option<(&'a DfeFilters, &'a Equ
     }
 }
 
-/// Clipping, non-finite samples and DC over the burst's own samples.
+/// Clipping, non-finite samples and DC over the burst's own samples; returns
+/// their mean power in dBFS (`None` for zero power or no samples).
 fn region_warnings(
     bs: &BurstSync,
     plan: &Plan,
     capture: &Capture,
     warnings: &mut Vec<Warning>,
-) -> Result<(), Error> {
+) -> Result<Option<f64>, Error> {
     let sps = plan.sps as i64;
     let lo = (bs.start_sample - plan.before as i64 * sps).max(0) as usize;
     let hi = ((bs.start_sample + (plan.training.len() + plan.after) as i64 * sps).max(0) as usize)
         .min(capture.len());
     if hi <= lo {
-        return Ok(());
+        return Ok(None);
     }
     let mut buf = vec![Cf32::new(0.0, 0.0); hi - lo];
     let stats = capture.read_into(lo, &mut buf)?;
@@ -527,5 +541,5 @@ fn region_warnings(
             ),
         ));
     }
-    Ok(())
+    Ok((mean_power > 0.0).then(|| 10.0 * mean_power.log10()))
 }

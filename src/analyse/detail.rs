@@ -8,7 +8,7 @@
 use super::plan::Plan;
 use super::{SYNC_TRACE_SYMBOLS, TRACE_POINTS};
 use crate::channel::{ChannelEstimate, SpanChoice};
-use crate::report::schema::{ChannelReport, Trace};
+use crate::report::schema::{ChannelReport, EyeTrace, Trace};
 use crate::sync::{BurstSync, SampleSource, Synchroniser};
 use crate::{Cf32, Cf64, Error};
 
@@ -68,6 +68,7 @@ pub(super) fn channel_report(ch: &ChannelEstimate, detail: bool) -> ChannelRepor
             let gp: f64 = g.iter().map(|v| v.norm_sqr()).sum();
             10.0 * (gp.max(1e-300) / total).log10()
         }),
+        training_symbols: 0,
         span_choice: match ch.span_choice {
             SpanChoice::Fixed => "fixed".into(),
             SpanChoice::Mdl { .. } => "mdl".into(),
@@ -86,6 +87,7 @@ pub(super) fn trace<S: SampleSource + ?Sized>(
     numbers: &[usize],
     reference: &[Cf32],
     wrong: Vec<usize>,
+    main_tap: Cf64,
 ) -> Result<Trace, Error> {
     let n = z.len();
     let stride = n.div_ceil(TRACE_POINTS).max(1);
@@ -115,10 +117,82 @@ pub(super) fn trace<S: SampleSource + ?Sized>(
         .enumerate()
         .map(|(i, v)| [(from + i) as f64 - centre as f64, *v])
         .collect();
+    let eye_matched = Some(eye_trace(bs, sync, src, plan, main_tap)?);
+    // The first payload symbols after the training, in time order (payload
+    // numbers count the symbols before the training first).
+    let eye_equalised = numbers
+        .iter()
+        .zip(z)
+        .filter(|(&p, _)| p >= plan.before)
+        .take(EYE_SYMBOLS)
+        .map(|(_, s)| [f64::from(s.re), f64::from(s.im)])
+        .collect();
     Ok(Trace {
         constellation,
         wrong,
         evm_blocks,
         sync_metric,
+        eye_matched,
+        eye_equalised,
+    })
+}
+
+/// Symbols (traces) in each eye diagram.
+const EYE_SYMBOLS: usize = 128;
+/// Points per symbol period of the matched-filter eye.
+const EYE_POINTS_PER_SYMBOL: usize = 12;
+
+/// The matched-filter output around the first [`EYE_SYMBOLS`] payload symbols
+/// after the training (or before it, for a postamble frame), at
+/// [`EYE_POINTS_PER_SYMBOL`] instants per symbol over ±1 symbol, divided by
+/// the main tap. Each instant is the burst's symbol instant moved by a
+/// fraction of a symbol; the carrier derotation is referred back to the
+/// burst's own instant.
+fn eye_trace<S: SampleSource + ?Sized>(
+    bs: &BurstSync,
+    sync: &Synchroniser,
+    src: &S,
+    plan: &Plan,
+    main_tap: Cf64,
+) -> Result<EyeTrace, Error> {
+    let l = plan.training.len() as i64;
+    let (first, n) = if plan.after > 0 {
+        (l, plan.after.min(EYE_SYMBOLS))
+    } else {
+        let n = plan.before.min(EYE_SYMBOLS);
+        (-(n as i64), n)
+    };
+    let p = EYE_POINTS_PER_SYMBOL;
+    let h0 = if main_tap.norm() > 0.0 {
+        main_tap
+    } else {
+        Cf64::new(1.0, 0.0)
+    };
+    let f = bs.cfo_hz / plan.sample_rate_hz;
+    let mut columns = Vec::with_capacity(2 * p + 1);
+    let mut out = vec![Cf32::new(0.0, 0.0); n];
+    for j in 0..=2 * p {
+        let shift = (j as f64 / p as f64 - 1.0) * plan.sps as f64;
+        let mut moved = bs.clone();
+        let instant = bs.instant() + shift;
+        moved.start_sample = instant.round() as i64;
+        moved.timing_frac = instant - moved.start_sample as f64;
+        sync.extract_symbols(src, &moved, first..first + n as i64, &mut out)?;
+        let undo = Cf64::from_polar(1.0, -2.0 * std::f64::consts::PI * f * shift) / h0;
+        columns.push(
+            out.iter()
+                .map(|v| {
+                    let c = Cf64::new(f64::from(v.re), f64::from(v.im)) * undo;
+                    [c.re, c.im]
+                })
+                .collect::<Vec<_>>(),
+        );
+    }
+    let traces = (0..n)
+        .map(|k| columns.iter().map(|c| c[k]).collect())
+        .collect();
+    Ok(EyeTrace {
+        points_per_symbol: p,
+        traces,
     })
 }

@@ -175,6 +175,16 @@ pub fn analyse_capture(
             ),
         ));
     }
+    // The capture views (PSD, spurs, power envelope): one more bounded-memory
+    // pass over the capture, as `iqaudit info` makes it, while the hash runs.
+    let stats_opts = crate::capture::stats::StatsOptions::default();
+    let stats = crate::capture::stats::capture_stats(&capture, &stats_opts, &|_| {})?;
+    let views = crate::capture::views::capture_views(
+        &stats,
+        Some(plan.sample_rate_hz),
+        plan.center_freq_hz,
+        stats_opts.obw_fraction,
+    );
     let hashed = hasher
         .join()
         .unwrap_or_else(|_| Err(std::io::Error::other("the hashing thread panicked")));
@@ -183,7 +193,7 @@ pub fn analyse_capture(
         source,
     })?;
     let summary = summarise(&bursts);
-    let verdict = judge(profile, &bursts, &summary);
+    let verdict = judge(profile, &bursts, &summary, &views);
     let profile_value =
         serde_json::to_value(profile).map_err(|e| usage(format!("profile: {e}")))?;
     Ok(Report {
@@ -203,6 +213,7 @@ pub fn analyse_capture(
             samples: capture.len() as u64,
         },
         profile: profile_value,
+        capture: Some(views),
         bursts,
         summary,
         verdict,

@@ -73,6 +73,7 @@ pub(super) fn judge(
     profile: &ResolvedProfile,
     bursts: &[BurstReport],
     summary: &Summary,
+    views: &crate::capture::views::CaptureViews,
 ) -> Verdict {
     if bursts.is_empty() {
         return Verdict {
@@ -89,6 +90,7 @@ pub(super) fn judge(
                 threshold: t,
                 measured: m,
                 pass: if upper { m <= t } else { m >= t },
+                margin: if upper { t - m } else { m - t },
             });
         }
     };
@@ -115,6 +117,24 @@ pub(super) fn judge(
         summary.cfo_abs_max_hz,
         true,
     );
+    // The spectral mask, judged on the report's own PSD points (largest bin per
+    // point, relative to the PSD's peak), so the plot shows what was judged.
+    if let Some(psd) = &views.psd {
+        let segs: Vec<(f64, f64)> = lim
+            .spectral_mask
+            .iter()
+            .map(|m| (m.from_offset_hz, m.to_offset_hz))
+            .collect();
+        let worst = crate::capture::views::mask_excess(psd, &segs);
+        for (i, (m, w)) in lim.spectral_mask.iter().zip(worst).enumerate() {
+            check(
+                &format!("limits.spectral_mask[{i}].max_db_rel_peak"),
+                Some(m.max_db_rel_peak),
+                w,
+                true,
+            );
+        }
+    }
     let result = if checks.iter().all(|c| c.pass) {
         VerdictResult::Pass
     } else {

@@ -68,7 +68,7 @@ impl Default for StatsOptions {
             welch_fft_len: 4096,
             welch_max_segments: 2048,
             obw_fraction: 0.99,
-            envelope_points: 1024,
+            envelope_points: 640,
         }
     }
 }

@@ -42,7 +42,7 @@ pub const SPUR_MARGIN_DB: f64 = 10.0;
 /// Most spurs listed.
 pub const MAX_SPURS: usize = 32;
 /// Most points of the decimated PSD.
-pub const PSD_POINTS: usize = 1024;
+pub const PSD_POINTS: usize = 512;
 /// The level written for zero power (JSON has no −∞), dB.
 pub const ZERO_POWER_DB: f64 = -300.0;
 

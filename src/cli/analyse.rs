@@ -197,9 +197,9 @@ pub fn run_analyse(args: &AnalyseArgs, argv: &[String]) -> Result<Outcome, Error
         command: argv.to_vec(),
         input_sha256: None,
         traced_bursts: args.traced_bursts,
-        // The digest appears only in the JSON (file or stdout); the terminal
-        // summary and the plots do not show it.
-        skip_input_hash: args.report.is_none() && !args.json,
+        // The digest appears in the JSON (file or stdout) and on the plots'
+        // index page; the terminal summary does not show it.
+        skip_input_hash: args.report.is_none() && !args.json && args.plots.is_none(),
     };
     let run = || analyse_capture(&args.capture, &profile, &opts);
     let report = match args.jobs {
@@ -214,7 +214,7 @@ pub fn run_analyse(args: &AnalyseArgs, argv: &[String]) -> Result<Outcome, Error
     };
     // Serialise only when a JSON form is asked for (a file or stdout): on a
     // capture with thousands of bursts it is a noticeable share of the run.
-    let json = if args.report.is_some() || args.json {
+    let json = if args.report.is_some() || args.json || args.plots.is_some() {
         iqaudit::report::provenance::report_json(&report).map_err(|e| stdout_err(e.into()))?
     } else {
         Vec::new()
@@ -224,7 +224,13 @@ pub fn run_analyse(args: &AnalyseArgs, argv: &[String]) -> Result<Outcome, Error
     }
     if let Some(d) = &args.plots {
         let ideal = Constellation::new(profile.payload.modulation);
-        write_plots(&report, ideal.points(), report.provenance.threshold, d)?;
+        write_plots(
+            &report,
+            ideal.points(),
+            report.provenance.threshold,
+            d,
+            &json,
+        )?;
     }
     let mut out = std::io::stdout().lock();
     if args.json {

@@ -113,6 +113,7 @@ pub fn example_profile(opts: &ExampleOptions) -> Profile {
             mer_db_min: Some(mer_db_min),
             ser_max: Some(1e-3),
             cfo_hz_abs_max: Some(0.01 * opts.symbol_rate_hz),
+            spectral_mask: Vec::new(),
         },
     }
 }

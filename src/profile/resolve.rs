@@ -238,6 +238,9 @@ pub struct ResolvedLimits {
     pub ser_max: Option<f64>,
     /// Largest |CFO|, Hz.
     pub cfo_hz_abs_max: Option<f64>,
+    /// Spectral mask segments (absent when empty).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub spectral_mask: Vec<super::schema::MaskSegment>,
 }
 
 impl ResolvedSearch {
@@ -628,11 +631,30 @@ impl Profile {
         if let Some(v) = l.cfo_hz_abs_max {
             non_negative("limits.cfo_hz_abs_max", v)?;
         }
+        for (i, m) in l.spectral_mask.iter().enumerate() {
+            let key = |k: &str| format!("limits.spectral_mask[{i}].{k}");
+            non_negative(&key("from_offset_hz"), m.from_offset_hz)?;
+            if !(m.to_offset_hz.is_finite() && m.to_offset_hz > m.from_offset_hz) {
+                return Err(invalid(
+                    &key("to_offset_hz"),
+                    "a finite number of Hz above from_offset_hz",
+                    m.to_offset_hz,
+                ));
+            }
+            if !(m.max_db_rel_peak.is_finite() && m.max_db_rel_peak <= 0.0) {
+                return Err(invalid(
+                    &key("max_db_rel_peak"),
+                    "a finite number of dB <= 0 (relative to the PSD peak)",
+                    m.max_db_rel_peak,
+                ));
+            }
+        }
         let limits = ResolvedLimits {
             evm_rms_percent_max: l.evm_rms_percent_max,
             mer_db_min: l.mer_db_min,
             ser_max: l.ser_max,
             cfo_hz_abs_max: l.cfo_hz_abs_max,
+            spectral_mask: l.spectral_mask.clone(),
         };
 
         Ok(ResolvedProfile {

@@ -394,6 +394,25 @@ pub struct LimitsSection {
     /// Largest allowed |CFO| in Hz.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub cfo_hz_abs_max: Option<f64>,
+    /// Spectral mask: segments of frequency offset from the centre (both
+    /// sides) where the capture's PSD must stay a given number of dB below its
+    /// own peak.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub spectral_mask: Vec<MaskSegment>,
+}
+
+/// One segment of `limits.spectral_mask`: for offsets
+/// `from_offset_hz ≤ |f − fc| ≤ to_offset_hz` the Welch PSD (the same one
+/// `iqaudit info` computes) must not exceed its peak plus `max_db_rel_peak`.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct MaskSegment {
+    /// Lower end of the offset range, Hz (≥ 0).
+    pub from_offset_hz: f64,
+    /// Upper end of the offset range, Hz (> `from_offset_hz`).
+    pub to_offset_hz: f64,
+    /// Highest level allowed, dB relative to the PSD's peak (≤ 0).
+    pub max_db_rel_peak: f64,
 }
 
 impl Profile {

@@ -1,4 +1,4 @@
-//! The report document, schema `iqaudit-report/2`.
+//! The report document, schema `iqaudit-report/3`.
 //!
 //! One JSON object per analysed capture. Every key is listed here with its unit
 //! and when it is `null`; docs/report.md repeats this reference for users.
@@ -8,11 +8,12 @@
 //!
 //! | key | meaning |
 //! |---|---|
-//! | `schema` | always `"iqaudit-report/2"` |
+//! | `schema` | always `"iqaudit-report/3"` |
 //! | `tool` | `{name, version}` of the program that wrote the report |
 //! | `command` | the command line, one argument per element |
 //! | `input` | path, `size_bytes`, `sha256` (hex), format, `sample_rate_hz`, `center_freq_hz` (null when unknown), `samples` |
 //! | `profile` | the resolved link profile with every default filled in |
+//! | `capture` | [`CaptureViews`]: decimated PSD (dBFS/Hz), spurs and power-over-time envelope of the whole capture; `null` in reports that predate it |
 //! | `bursts` | one [`BurstReport`] per burst found, in capture order; only a bounded set of them carries a [`Trace`] |
 //! | `summary` | [`Summary`] over all bursts |
 //! | `verdict` | [`Verdict`]: `pass`, `fail` or `no-training`, with each limit checked |
@@ -26,16 +27,21 @@
 //! `provenance.traced_bursts` bursts with the largest RMS EVM (ties: the lower
 //! index), so the traced count is at most twice that figure whatever the capture.
 //!
-//! Schema history: `/2` made `trace` and `channel.response_db` nullable (null
+//! Schema history: `/3` added `capture` (the capture views),
+//! `bursts[].received_power_dbfs`, `channel.training_symbols`,
+//! `equaliser.feedforward`/`feedback` (the coefficients), `trace.eye_matched`
+//! and `trace.eye_equalised`, and `verdict.checks[].margin` (issue #20); every
+//! new key reads as `null`/empty/0 from a `/2` document. `/2` made `trace` and `channel.response_db` nullable (null
 //! outside the traced set), capped `metrics.error_runs` and added
 //! `provenance.traced_bursts`.
 
 use super::metrics::{ErrorPropagation, ErrorRate, ErrorRun};
+pub use crate::capture::views::CaptureViews;
 use serde::{Deserialize, Serialize};
 use std::fmt;
 
 /// The schema identifier written into every report.
-pub const SCHEMA: &str = "iqaudit-report/2";
+pub const SCHEMA: &str = "iqaudit-report/3";
 
 /// Most decision-error runs listed per burst in `metrics.error_runs` (the first
 /// ones in payload order); `metrics.run_length_histogram` covers them all.
@@ -58,6 +64,10 @@ pub struct Report {
     pub input: InputInfo,
     /// The resolved link profile (every default filled in).
     pub profile: serde_json::Value,
+    /// What the capture plots are drawn from: the whole capture's Welch PSD
+    /// (decimated, dBFS/Hz), its spurs and its power-over-time envelope.
+    #[serde(default)]
+    pub capture: Option<CaptureViews>,
     /// One entry per burst, in capture order.
     pub bursts: Vec<BurstReport>,
     /// Figures over all bursts.
@@ -120,6 +130,10 @@ pub struct BurstReport {
     pub cfo_ppm: Option<f64>,
     /// Carrier phase at the first training symbol, radians.
     pub phase_rad: f64,
+    /// Mean received power over the burst's samples (payload and training), dBFS;
+    /// `null` for zero power.
+    #[serde(default)]
+    pub received_power_dbfs: Option<f64>,
     /// True when the capture ends before the burst does.
     pub truncated: bool,
     /// Payload symbols present in the capture (fewer than the profile says when truncated).
@@ -166,6 +180,11 @@ pub struct ChannelReport {
     pub image_level_db: Option<f64>,
     /// How the tap counts were chosen: `fixed` or `mdl`.
     pub span_choice: String,
+    /// Training symbols N the taps were fitted over. Each tap's estimation
+    /// error has a variance of about `noise_variance / N` (white training of
+    /// unit power), the floor below which a tap cannot be told from zero.
+    #[serde(default)]
+    pub training_symbols: usize,
     /// Channel frequency response: `[f, |H(f)| dB]` with f in cycles/symbol from
     /// −0.5 to 0.5 (129 points); `null` for bursts without a trace (it follows
     /// from `taps`: `H(f) = Σ_k h[k]·exp(−j2πfk)`, k counted from the main tap).
@@ -192,6 +211,14 @@ pub struct EqualiserReport {
     pub linear_mmse_evm_percent: Option<f64>,
     /// Tracking mode (`off`, `lms`, `rls`).
     pub tracking: String,
+    /// Feedforward coefficients `ff[0..Nf]` as designed (before tracking), in
+    /// apply form: `z_n = Σ_r ff[r]·y[n + Δ − P − r] − Σ_j fb[j−1]·d[n−j]`
+    /// (P = `channel.pre_cursor`, Δ = `decision_delay`).
+    #[serde(default)]
+    pub feedforward: Vec<Complex2>,
+    /// Feedback coefficients `fb[0..Nb]` (`fb[j−1]` multiplies decision `d[n−j]`).
+    #[serde(default)]
+    pub feedback: Vec<Complex2>,
 }
 
 /// Figures of merit of one burst's payload.
@@ -255,6 +282,26 @@ pub struct Trace {
     pub evm_blocks: Vec<[f64; 2]>,
     /// Normalised sync metric around the burst: `[sample offset from start_sample, metric]`.
     pub sync_metric: Vec<[f64; 2]>,
+    /// Eye of the matched-filter output before equalisation; `null` when not computed.
+    #[serde(default)]
+    pub eye_matched: Option<EyeTrace>,
+    /// Consecutive equalised payload symbols `[re, im]` from the first payload
+    /// symbol on (at most a few hundred), for the symbol-spaced eye.
+    #[serde(default)]
+    pub eye_equalised: Vec<Complex2>,
+}
+
+/// Eye-diagram data: matched-filter output around consecutive symbol
+/// instants, divided by the main tap `h[0]` (so the ideal values at the
+/// instant are the constellation points), CFO corrected.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct EyeTrace {
+    /// Points per symbol period in each trace.
+    pub points_per_symbol: usize,
+    /// One trace per symbol: `2·points_per_symbol + 1` values `[re, im]` from one
+    /// symbol before the instant to one after (the instant is the middle point).
+    pub traces: Vec<Vec<Complex2>>,
 }
 
 /// Figures over all bursts of a capture.
@@ -313,6 +360,10 @@ pub struct LimitCheck {
     pub measured: f64,
     /// Whether the measured value is within the limit.
     pub pass: bool,
+    /// Distance from the limit in the limit's unit, positive when within it
+    /// (`threshold − measured` for a maximum, `measured − threshold` for a minimum).
+    #[serde(default)]
+    pub margin: f64,
 }
 
 /// Reproduction data.

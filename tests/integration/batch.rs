@@ -49,6 +49,7 @@ fn minimal_report(path: &Path, result: VerdictResult, profile_sha: &str) -> Repo
             samples: bytes.len() as u64 / 8,
         },
         profile: serde_json::json!({"fake": true}),
+        capture: None,
         bursts: Vec::new(),
         summary: Summary {
             bursts,
