@@ -34,6 +34,7 @@ out.tofile(os.path.join(HERE, "bench-noise-floor.cf32"))
 meta = {
     "global": {
         "core:datatype": "cf32_le",
+        "core:dataset": "bench-noise-floor.cf32",
         "core:sample_rate": FS,
         "core:version": "1.2.0",
         "core:description": "quayside crane telemetry link: bench receiver noise floor, transmitter off",

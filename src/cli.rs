@@ -54,12 +54,22 @@ pub struct InfoArgs {
     /// The capture file (raw, WAV, or SigMF .sigmf-data/.sigmf-meta).
     pub capture: PathBuf,
 
-    /// Raw sample format (cf32_le, cf32_be, cf64_le, ci16_le, ci16_be, ci8, cu8).
+    /// Raw sample format: any complex SigMF datatype (cf32_le, ci16_le, cu8, …).
     ///
-    /// Overrides a SigMF sidecar, the WAV header and the file extension. Names are
-    /// the SigMF datatype names.
+    /// Overrides a SigMF sidecar and the file extension (a WAV file is always
+    /// read by its header). Names are the SigMF datatype names: cf32_le, cf32_be,
+    /// cf64_le, cf64_be, ci32_le, ci32_be, ci16_le, ci16_be, ci8, cu32_le,
+    /// cu32_be, cu16_le, cu16_be, cu8.
     #[arg(long, value_name = "F")]
     pub format: Option<String>,
+
+    /// Zero point of unsigned samples (cu8/cu16/cu32): symmetric or power_of_two.
+    ///
+    /// `symmetric` (the default) puts zero at the mid-code (2^bits − 1)/2, 127.5
+    /// for cu8, so codes 0 and 255 are −1.0 and +1.0; `power_of_two` puts it at
+    /// 2^(bits−1), 128 for cu8, as the SigMF reference library does.
+    #[arg(long, value_name = "Z", value_parser = parse_unsigned_zero)]
+    pub unsigned_zero: Option<iqaudit::UnsignedZero>,
 
     /// Sample rate in Hz (needed for durations and bandwidths in Hz).
     ///
@@ -87,6 +97,11 @@ pub struct InfoArgs {
     /// whole capture). The folder is created if needed.
     #[arg(long, value_name = "DIR")]
     pub plots: Option<PathBuf>,
+}
+
+/// Parse `--unsigned-zero`.
+pub(crate) fn parse_unsigned_zero(s: &str) -> Result<iqaudit::UnsignedZero, String> {
+    s.parse()
 }
 
 fn parse_rate(s: &str) -> Result<f64, String> {
@@ -180,8 +195,12 @@ fn run_info(args: &InfoArgs) -> Result<Outcome, Error> {
         format,
         sample_rate_hz: args.sample_rate,
         swap_iq: args.swap_iq,
+        unsigned_zero: args.unsigned_zero.unwrap_or_default(),
     };
     let capture = Capture::open(&args.capture, &opts)?;
+    for note in capture.notes() {
+        eprintln!("iqaudit: warning: {}: {note}", args.capture.display());
+    }
     if let Some(dir) = &args.plots {
         let inputs = [
             Some(args.capture.as_path()),
@@ -270,6 +289,17 @@ fn render_info(r: &InfoReport, capture: &Capture) -> String {
     line("samples", r.samples.to_string());
     line("sample rate", hz(r.sample_rate_hz));
     line("centre frequency", hz(r.center_freq_hz));
+    if capture.segments().len() > 1 {
+        let list: Vec<String> = capture
+            .segments()
+            .iter()
+            .map(|g| format!("{} from sample {}", hz(g.center_freq_hz), g.sample_start))
+            .collect();
+        line("capture segments", list.join("; "));
+    }
+    if let Some(m) = capture.archive_member() {
+        line("archive member", m.to_string());
+    }
     line("duration", opt(r.duration_s, 6, "s"));
     line("mean power", opt(r.mean_power_dbfs, 2, "dBFS"));
     line("peak power", opt(r.peak_power_dbfs, 2, "dBFS"));

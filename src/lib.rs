@@ -94,8 +94,8 @@ pub mod sync;
 pub mod synth;
 
 pub use capture::{
-    write_capture, Capture, CaptureError, Container, OpenOptions, ReadStats, SampleFormat,
-    WavEncoding, WriteSpec, WriteStats,
+    write_capture, AnnotationTarget, Capture, CaptureError, CaptureNote, Container, OpenOptions,
+    ReadStats, SampleFormat, SigmfAnnotation, UnsignedZero, WavEncoding, WriteSpec, WriteStats,
 };
 pub use error::Error;
 pub use profile::{load_profile, Profile, ProfileError, ResolvedProfile};

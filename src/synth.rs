@@ -71,6 +71,7 @@ use rand_chacha::ChaCha8Rng;
 use rand_distr::StandardNormal;
 use serde::{Deserialize, Serialize};
 
+use crate::capture::SigmfAnnotation;
 use crate::capture::{write_capture, Container, SampleFormat, WavEncoding, WriteSpec};
 use crate::profile::{Modulation, ProfileError, ResolvedProfile};
 use crate::signal::{rrc_impulse, Constellation};
@@ -797,17 +798,20 @@ pub fn write_outputs(
     command: Option<String>,
 ) -> Result<GroundTruth, SynthError> {
     let Synthesised { samples, mut truth } = run(spec)?;
+    let center_freq_hz = output
+        .center_freq_hz
+        .or(spec.profile.capture.center_freq_hz);
     let write_spec = WriteSpec {
         container: output.container,
         sample_rate_hz: truth.sample_rate_hz,
-        center_freq_hz: output
-            .center_freq_hz
-            .or(spec.profile.capture.center_freq_hz),
+        center_freq_hz,
         sigmf_sidecar: output.sigmf_sidecar,
         description: Some(format!(
             "iqaudit synth test stimulus, seed {}, {} bursts",
             spec.seed, spec.bursts
         )),
+        annotations: truth_annotations(&truth, center_freq_hz),
+        unsigned_zero: crate::capture::UnsignedZero::default(),
     };
     let stats = write_capture(out, &samples, &write_spec).map_err(|e| SynthError::Write {
         path: out.to_path_buf(),
@@ -834,6 +838,43 @@ pub fn write_outputs(
         message: e.to_string(),
     })?;
     Ok(truth)
+}
+
+/// The ground truth as SigMF annotations, one per burst: `core:sample_start` /
+/// `core:sample_count` span every sample the burst touches
+/// (`first_sample..end_sample`), the frequency edges are the carrier (centre
+/// frequency, 0 when unknown, plus the CFO) ± half the occupied bandwidth
+/// `(1 + β)·fs/sps` of the RRC pulse, and the `iqaudit:` keys give the truth
+/// (docs/sigmf.md).
+pub fn truth_annotations(truth: &GroundTruth, center_freq_hz: Option<f64>) -> Vec<SigmfAnnotation> {
+    let prof = &truth.profile;
+    let half_bw = 0.5 * (1.0 + prof.pulse.rolloff) * truth.sample_rate_hz
+        / prof.samples_per_symbol.max(1) as f64;
+    truth
+        .bursts
+        .iter()
+        .map(|b| {
+            let carrier = center_freq_hz.unwrap_or(0.0) + b.cfo_hz;
+            let mut ext = std::collections::BTreeMap::new();
+            ext.insert("kind".to_string(), serde_json::json!("truth"));
+            ext.insert("burst_index".to_string(), serde_json::json!(b.index));
+            ext.insert(
+                "start_sample".to_string(),
+                serde_json::json!(b.start_sample),
+            );
+            ext.insert("cfo_hz".to_string(), serde_json::json!(b.cfo_hz));
+            ext.insert("esn0_db".to_string(), serde_json::json!(b.esn0_db));
+            SigmfAnnotation {
+                sample_start: b.first_sample,
+                sample_count: b.end_sample.saturating_sub(b.first_sample),
+                label: format!("burst {} (truth)", b.index),
+                freq_lower_edge_hz: Some(carrier - half_bw),
+                freq_upper_edge_hz: Some(carrier + half_bw),
+                comment: Some("iqaudit synth ground truth".into()),
+                extension: ext,
+            }
+        })
+        .collect()
 }
 
 /// The truth file path for a capture: `FILE.truth.json` beside it.

@@ -73,6 +73,7 @@ fn open_options(profile: &ResolvedProfile, opts: &AnalyseOptions) -> Result<Open
         },
         sample_rate_hz: opts.sample_rate_hz.or(profile.capture.sample_rate_hz),
         swap_iq: profile.capture.swap_iq,
+        ..OpenOptions::default()
     })
 }
 
@@ -95,6 +96,7 @@ pub fn open_capture(
         format: opts.format,
         sample_rate_hz: opts.sample_rate_hz,
         swap_iq: profile.capture.swap_iq,
+        ..OpenOptions::default()
     };
     if let Ok(c) = Capture::open(path, &explicit) {
         let file_says = opts.format.is_some()

@@ -19,6 +19,7 @@
 //! The writer side ([`write_capture`]) and capture statistics ([`stats`]) live in
 //! submodules.
 
+mod archive;
 mod mmap;
 mod raw;
 mod sigmf;
@@ -29,19 +30,30 @@ mod write;
 
 use std::fmt;
 use std::fs::File;
-use std::io::Read;
 use std::path::{Path, PathBuf};
 use std::str::FromStr;
 
 use serde::{Deserialize, Serialize};
+use serde_json::Value;
 
 use crate::Cf32;
 use mmap::{Access, Source};
 
-pub use sigmf::{parse_sidecar as parse_sigmf_meta, SigmfMeta};
-pub use write::{encode_raw, write_capture, WriteSpec, WriteStats};
+pub use sigmf::{
+    parse_sidecar as parse_sigmf_meta, SigmfAnnotation, SigmfMeta, SigmfSegment,
+    EXTENSION_NAMESPACE, EXTENSION_VERSION, SIGMF_VERSION,
+};
+pub use write::{encode_raw, encode_raw_with, write_capture, WriteSpec, WriteStats};
 
-/// Raw interleaved complex sample layouts, named as SigMF `core:datatype` names.
+/// Raw interleaved complex sample layouts: every complex SigMF `core:datatype`
+/// (SigMF v1.2.5 §"Dataset format", shared/REFERENCE-VALUES.md §10), I then Q,
+/// each component in the byte order the `_le`/`_be` suffix names.
+///
+/// Scaling to full scale 1.0 (crate convention, `src/lib.rs`): signed integers
+/// divide by 2^(bits−1); unsigned integers subtract their zero point and divide
+/// by the same value, where the zero point is chosen by [`UnsignedZero`]
+/// (default: the symmetric mid-code (2^bits − 1)/2, e.g. 127.5 for `cu8`; the
+/// SigMF reference library uses 2^(bits−1), e.g. 128).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize)]
 pub enum SampleFormat {
     /// 32-bit IEEE float, little-endian, I then Q (8 bytes per sample).
@@ -53,6 +65,15 @@ pub enum SampleFormat {
     /// 64-bit IEEE float, little-endian (16 bytes per sample).
     #[serde(rename = "cf64_le")]
     Cf64Le,
+    /// 64-bit IEEE float, big-endian (16 bytes per sample).
+    #[serde(rename = "cf64_be")]
+    Cf64Be,
+    /// 32-bit signed integer, little-endian; full scale 2³¹.
+    #[serde(rename = "ci32_le")]
+    Ci32Le,
+    /// 32-bit signed integer, big-endian; full scale 2³¹.
+    #[serde(rename = "ci32_be")]
+    Ci32Be,
     /// 16-bit signed integer, little-endian; full scale 32768.
     #[serde(rename = "ci16_le")]
     Ci16Le,
@@ -62,20 +83,39 @@ pub enum SampleFormat {
     /// 8-bit signed integer; full scale 128.
     #[serde(rename = "ci8")]
     Ci8,
-    /// 8-bit unsigned integer, mid-scale 127.5; full scale 127.5.
+    /// 32-bit unsigned integer, little-endian; zero point per [`UnsignedZero`].
+    #[serde(rename = "cu32_le")]
+    Cu32Le,
+    /// 32-bit unsigned integer, big-endian; zero point per [`UnsignedZero`].
+    #[serde(rename = "cu32_be")]
+    Cu32Be,
+    /// 16-bit unsigned integer, little-endian; zero point per [`UnsignedZero`].
+    #[serde(rename = "cu16_le")]
+    Cu16Le,
+    /// 16-bit unsigned integer, big-endian; zero point per [`UnsignedZero`].
+    #[serde(rename = "cu16_be")]
+    Cu16Be,
+    /// 8-bit unsigned integer; zero point per [`UnsignedZero`] (127.5 by default).
     #[serde(rename = "cu8")]
     Cu8,
 }
 
 impl SampleFormat {
     /// Every supported raw format, in documentation order.
-    pub const ALL: [SampleFormat; 7] = [
+    pub const ALL: [SampleFormat; 14] = [
         SampleFormat::Cf32Le,
         SampleFormat::Cf32Be,
         SampleFormat::Cf64Le,
+        SampleFormat::Cf64Be,
+        SampleFormat::Ci32Le,
+        SampleFormat::Ci32Be,
         SampleFormat::Ci16Le,
         SampleFormat::Ci16Be,
         SampleFormat::Ci8,
+        SampleFormat::Cu32Le,
+        SampleFormat::Cu32Be,
+        SampleFormat::Cu16Le,
+        SampleFormat::Cu16Be,
         SampleFormat::Cu8,
     ];
 
@@ -85,30 +125,70 @@ impl SampleFormat {
             SampleFormat::Cf32Le => "cf32_le",
             SampleFormat::Cf32Be => "cf32_be",
             SampleFormat::Cf64Le => "cf64_le",
+            SampleFormat::Cf64Be => "cf64_be",
+            SampleFormat::Ci32Le => "ci32_le",
+            SampleFormat::Ci32Be => "ci32_be",
             SampleFormat::Ci16Le => "ci16_le",
             SampleFormat::Ci16Be => "ci16_be",
             SampleFormat::Ci8 => "ci8",
+            SampleFormat::Cu32Le => "cu32_le",
+            SampleFormat::Cu32Be => "cu32_be",
+            SampleFormat::Cu16Le => "cu16_le",
+            SampleFormat::Cu16Be => "cu16_be",
             SampleFormat::Cu8 => "cu8",
         }
     }
 
+    /// The datatype without its byte order, e.g. `"ci16"` for `ci16_be`.
+    pub fn family(self) -> &'static str {
+        let n = self.name();
+        n.split('_').next().unwrap_or(n)
+    }
+
     /// Bytes per complex sample (I and Q together).
     pub fn bytes_per_sample(self) -> usize {
+        2 * self.component_bytes()
+    }
+
+    /// Bytes per component (I or Q).
+    pub fn component_bytes(self) -> usize {
         match self {
-            SampleFormat::Cf32Le | SampleFormat::Cf32Be => 8,
-            SampleFormat::Cf64Le => 16,
-            SampleFormat::Ci16Le | SampleFormat::Ci16Be => 4,
-            SampleFormat::Ci8 | SampleFormat::Cu8 => 2,
+            SampleFormat::Cf64Le | SampleFormat::Cf64Be => 8,
+            SampleFormat::Cf32Le
+            | SampleFormat::Cf32Be
+            | SampleFormat::Ci32Le
+            | SampleFormat::Ci32Be
+            | SampleFormat::Cu32Le
+            | SampleFormat::Cu32Be => 4,
+            SampleFormat::Ci16Le
+            | SampleFormat::Ci16Be
+            | SampleFormat::Cu16Le
+            | SampleFormat::Cu16Be => 2,
+            SampleFormat::Ci8 | SampleFormat::Cu8 => 1,
         }
     }
 
-    /// The format implied by a file extension (without the dot), if any.
+    /// True for the unsigned integer datatypes (`cu8`, `cu16_*`, `cu32_*`).
+    pub fn is_unsigned(self) -> bool {
+        self.family().starts_with("cu")
+    }
+
+    /// True for the float datatypes (`cf32_*`, `cf64_*`).
+    pub fn is_float(self) -> bool {
+        self.family().starts_with("cf")
+    }
+
+    /// The format implied by a file extension (without the dot), if any. An
+    /// extension names a datatype family; the little-endian member is implied.
     pub fn from_extension(ext: &str) -> Option<SampleFormat> {
         match ext.to_ascii_lowercase().as_str() {
             "cf32" | "cfile" => Some(SampleFormat::Cf32Le),
             "cf64" => Some(SampleFormat::Cf64Le),
+            "ci32" | "cs32" => Some(SampleFormat::Ci32Le),
             "ci16" | "cs16" => Some(SampleFormat::Ci16Le),
             "ci8" | "cs8" => Some(SampleFormat::Ci8),
+            "cu32" => Some(SampleFormat::Cu32Le),
+            "cu16" => Some(SampleFormat::Cu16Le),
             "cu8" => Some(SampleFormat::Cu8),
             _ => None,
         }
@@ -117,6 +197,55 @@ impl SampleFormat {
     /// The accepted names, comma-separated (for messages).
     pub fn accepted_names() -> String {
         SampleFormat::ALL.map(SampleFormat::name).join(", ")
+    }
+}
+
+/// Where the zero of an unsigned integer datatype (`cu8`, `cu16_*`, `cu32_*`)
+/// sits. SigMF names the datatypes but not their zero point, and two
+/// conventions are in use.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Hash, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum UnsignedZero {
+    /// Zero at the mid-code (2^bits − 1)/2 (127.5 for `cu8`), full scale the
+    /// same value: codes 0 and 2^bits − 1 map to −1.0 and +1.0 exactly. This
+    /// crate's default.
+    #[default]
+    Symmetric,
+    /// Zero at 2^(bits−1) (128 for `cu8`), full scale 2^(bits−1): code 0 maps to
+    /// −1.0 and 2^bits − 1 to 1 − 2^−(bits−1). The SigMF reference library's
+    /// convention (Python `sigmf` 1.14, `autoscale=True`).
+    PowerOfTwo,
+}
+
+impl UnsignedZero {
+    /// The zero point (and full-scale divisor) for `bits`-bit codes.
+    pub fn zero_point(self, bits: u32) -> f64 {
+        let half = (bits as f64 - 1.0).exp2();
+        match self {
+            UnsignedZero::Symmetric => half - 0.5,
+            UnsignedZero::PowerOfTwo => half,
+        }
+    }
+
+    /// The option value, `"symmetric"` or `"power_of_two"`.
+    pub fn name(self) -> &'static str {
+        match self {
+            UnsignedZero::Symmetric => "symmetric",
+            UnsignedZero::PowerOfTwo => "power_of_two",
+        }
+    }
+}
+
+impl FromStr for UnsignedZero {
+    type Err = String;
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        match s.trim().to_ascii_lowercase().replace('-', "_").as_str() {
+            "symmetric" => Ok(UnsignedZero::Symmetric),
+            "power_of_two" => Ok(UnsignedZero::PowerOfTwo),
+            _ => Err(format!(
+                "unknown unsigned zero point '{s}' (accepted: symmetric, power_of_two)"
+            )),
+        }
     }
 }
 
@@ -164,16 +293,19 @@ pub enum WavEncoding {
     Pcm32,
     /// 32-bit IEEE float (format tag 3).
     Float32,
+    /// 64-bit IEEE float (format tag 3).
+    Float64,
 }
 
 impl WavEncoding {
     /// Every supported WAV encoding.
-    pub const ALL: [WavEncoding; 5] = [
+    pub const ALL: [WavEncoding; 6] = [
         WavEncoding::Pcm8,
         WavEncoding::Pcm16,
         WavEncoding::Pcm24,
         WavEncoding::Pcm32,
         WavEncoding::Float32,
+        WavEncoding::Float64,
     ];
 
     /// Name used in messages and reports, e.g. `"pcm16"`.
@@ -184,6 +316,7 @@ impl WavEncoding {
             WavEncoding::Pcm24 => "pcm24",
             WavEncoding::Pcm32 => "pcm32",
             WavEncoding::Float32 => "float32",
+            WavEncoding::Float64 => "float64",
         }
     }
 
@@ -194,6 +327,7 @@ impl WavEncoding {
             WavEncoding::Pcm16 => 16,
             WavEncoding::Pcm24 => 24,
             WavEncoding::Pcm32 | WavEncoding::Float32 => 32,
+            WavEncoding::Float64 => 64,
         }
     }
 }
@@ -243,6 +377,8 @@ pub struct OpenOptions {
     pub sample_rate_hz: Option<f64>,
     /// Swap I and Q after decoding (mirrors the spectrum).
     pub swap_iq: bool,
+    /// Zero point of the unsigned datatypes (`cu8`, `cu16_*`, `cu32_*`).
+    pub unsigned_zero: UnsignedZero,
 }
 
 /// Where the sample format of an opened capture came from.
@@ -274,6 +410,126 @@ impl std::ops::AddAssign for ReadStats {
     fn add_assign(&mut self, rhs: ReadStats) {
         self.clipped += rhs.clipped;
         self.non_finite += rhs.non_finite;
+    }
+}
+
+/// Something about an opened capture that the user should know: it was opened,
+/// but two sources disagree or a sidecar was passed over. Shown as a warning.
+#[derive(Debug, Clone, PartialEq)]
+#[non_exhaustive]
+pub enum CaptureNote {
+    /// The sidecar's datatype is of another family than the file extension says.
+    ExtensionContradictsDatatype {
+        /// The data file.
+        data: PathBuf,
+        /// The sidecar.
+        sidecar: PathBuf,
+        /// The sidecar's datatype (used).
+        datatype: SampleFormat,
+        /// The datatype family the extension names.
+        extension_means: SampleFormat,
+    },
+    /// A sidecar beside the file describes another data file and was not used.
+    SidecarForAnotherFile {
+        /// The sidecar.
+        sidecar: PathBuf,
+        /// The file it describes.
+        describes: String,
+    },
+    /// A format option was given for a WAV file, whose header rules.
+    FormatOptionIgnoredForWav {
+        /// The option's format.
+        format: SampleFormat,
+    },
+    /// The format option overrides a sidecar's datatype.
+    FormatOptionOverridesSidecar {
+        /// The option's format (used).
+        format: SampleFormat,
+        /// The sidecar.
+        sidecar: PathBuf,
+        /// Its datatype (not used).
+        datatype: SampleFormat,
+    },
+    /// A sidecar and a WAV header say different things.
+    SidecarDisagreesWithWav {
+        /// The sidecar.
+        sidecar: PathBuf,
+        /// What differs, e.g. `"datatype"`.
+        what: &'static str,
+        /// The sidecar's value.
+        sidecar_says: String,
+        /// The WAV header's value (used).
+        wav_says: String,
+    },
+    /// Two sources of the sample rate disagree; the first one is used.
+    RateDisagrees {
+        /// The source used, e.g. the sidecar's path.
+        used_from: String,
+        /// Its rate, Hz.
+        used_hz: f64,
+        /// The other source.
+        other_from: String,
+        /// Its rate, Hz.
+        other_hz: f64,
+    },
+}
+
+impl fmt::Display for CaptureNote {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            CaptureNote::ExtensionContradictsDatatype {
+                data,
+                sidecar,
+                datatype,
+                extension_means,
+            } => write!(
+                f,
+                "{}: the extension means {} but the sidecar {} says core:datatype {}; read as {} \
+                 (rename the file or fix the sidecar)",
+                data.display(),
+                extension_means.family(),
+                sidecar.display(),
+                datatype,
+                datatype
+            ),
+            CaptureNote::SidecarForAnotherFile { sidecar, describes } => write!(
+                f,
+                "{} describes {describes}, not this file; not used",
+                sidecar.display()
+            ),
+            CaptureNote::FormatOptionIgnoredForWav { format } => write!(
+                f,
+                "format {format} (option or profile) ignored: the file is a WAV and its header gives the layout"
+            ),
+            CaptureNote::FormatOptionOverridesSidecar {
+                format,
+                sidecar,
+                datatype,
+            } => write!(
+                f,
+                "format {format} (option) overrides core:datatype {datatype} of {}",
+                sidecar.display()
+            ),
+            CaptureNote::SidecarDisagreesWithWav {
+                sidecar,
+                what,
+                sidecar_says,
+                wav_says,
+            } => write!(
+                f,
+                "{} says {what} {sidecar_says} but the WAV header says {wav_says}; the header is used",
+                sidecar.display()
+            ),
+            CaptureNote::RateDisagrees {
+                used_from,
+                used_hz,
+                other_from,
+                other_hz,
+            } => write!(
+                f,
+                "sample rate {used_hz} Hz from {used_from} differs from {other_hz} Hz from {other_from}; {used_hz} Hz is used"
+            ),
+        }
     }
 }
 
@@ -345,7 +601,7 @@ pub enum CaptureError {
         found: u16,
     },
     /// The WAV encoding is not one of the supported ones.
-    #[error("{}: unsupported WAV encoding: {found} (supported: 8/16/24/32-bit PCM, 32-bit float)", path.display())]
+    #[error("{}: unsupported WAV encoding: {found} (supported: 8/16/24/32-bit PCM, 32/64-bit float)", path.display())]
     WavEncoding {
         /// The file.
         path: PathBuf,
@@ -355,7 +611,7 @@ pub enum CaptureError {
     /// The WAV data chunk claims more bytes than the file holds.
     #[error(
         "{}: WAV data chunk declares {declared_bytes} bytes but only {available_bytes} follow the header \
-         (truncated file?); WAV sizes are 32-bit, so store long recordings as raw files",
+         (truncated file?); RIFF sizes are 32-bit, so store recordings past 4 GiB as RF64/BW64 or raw files",
         path.display()
     )]
     WavDataSize {
@@ -393,6 +649,56 @@ pub enum CaptureError {
         found: String,
         /// The supported names.
         supported: String,
+    },
+    /// The SigMF datatype is a real-valued one.
+    #[error(
+        "{}: SigMF core:datatype '{found}' is real-valued; IQ analysis needs complex samples \
+         (a 'c' datatype such as cf32_le or ci16_le)",
+        path.display()
+    )]
+    SigmfRealDatatype {
+        /// The sidecar file.
+        path: PathBuf,
+        /// The datatype string found.
+        found: String,
+    },
+    /// A sidecar was given (or found) but its data file is not there.
+    #[error("{}: no data file for this SigMF metadata: {tried} (a .sigmf archive is given as NAME.sigmf)", path.display())]
+    SigmfNoData {
+        /// The sidecar file.
+        path: PathBuf,
+        /// What was looked for, and why it failed.
+        tried: String,
+    },
+    /// The header and trailing bytes a sidecar declares do not fit the file.
+    #[error("{}: SigMF says {header_bytes} header + {trailing_bytes} trailing bytes but the data file {} has {file_bytes} bytes", sidecar.display(), path.display())]
+    SigmfBytes {
+        /// The data file.
+        path: PathBuf,
+        /// The sidecar.
+        sidecar: PathBuf,
+        /// `core:header_bytes` of the first segment.
+        header_bytes: u64,
+        /// `core:trailing_bytes`.
+        trailing_bytes: u64,
+        /// Length of the data file.
+        file_bytes: u64,
+    },
+    /// A SigMF archive that cannot be read.
+    #[error("{}: SigMF archive {problem}", path.display())]
+    Archive {
+        /// The archive file.
+        path: PathBuf,
+        /// What is wrong.
+        problem: String,
+    },
+    /// Every name a sidecar could be written under describes another file.
+    #[error("{}: will not replace another capture's SigMF sidecar: {taken}; rename the output or remove the old sidecar", path.display())]
+    SidecarTaken {
+        /// The data file the sidecar was for.
+        path: PathBuf,
+        /// The names tried and what they describe.
+        taken: String,
     },
     /// Reading sample bytes failed.
     #[error("{}: read error at byte {offset_bytes}: {source}", path.display())]
@@ -448,7 +754,12 @@ pub struct Capture {
     sample_rate_hz: Option<f64>,
     center_freq_hz: Option<f64>,
     swap_iq: bool,
+    unsigned_zero: UnsignedZero,
     sidecar: Option<PathBuf>,
+    sigmf: Option<Box<SigmfMeta>>,
+    segments: Vec<SigmfSegment>,
+    notes: Vec<CaptureNote>,
+    archive_member: Option<String>,
 }
 
 /// Reads at least this long release their mapped pages at once (see
@@ -471,11 +782,37 @@ impl Capture {
     }
 
     fn open_with(path: &Path, opts: &OpenOptions, access: Access) -> Result<Capture, CaptureError> {
-        // A `.sigmf-meta` path stands for its recording.
-        let data_path = if has_extension(path, "sigmf-meta") {
-            path.with_extension("sigmf-data")
+        if sigmf::has_extension(path, "sigmf") {
+            return Capture::open_archive(path, opts, access);
+        }
+        let mut notes = Vec::new();
+        // A `.sigmf-meta` path stands for its recording: the `core:dataset` it
+        // names, else `NAME.sigmf-data`.
+        let (data_path, sidecar) = if sigmf::has_extension(path, "sigmf-meta") {
+            let meta = sigmf::read_sidecar(path)?;
+            let data = match &meta.dataset {
+                Some(d) => path.with_file_name(d),
+                None => path.with_extension("sigmf-data"),
+            };
+            if !data.is_file() {
+                let why = match &meta.dataset {
+                    Some(_) => "named by core:dataset",
+                    None => "the conforming data file (no core:dataset)",
+                };
+                let archive = path.with_extension("sigmf");
+                let hint = if archive.is_file() {
+                    format!("; {} exists: give that archive instead", archive.display())
+                } else {
+                    String::new()
+                };
+                return Err(CaptureError::SigmfNoData {
+                    path: path.to_path_buf(),
+                    tried: format!("{} ({why}) is not a file{hint}", data.display()),
+                });
+            }
+            (data, Some((path.to_path_buf(), meta)))
         } else {
-            path.to_path_buf()
+            (path.to_path_buf(), None)
         };
         let open_err = |source| CaptureError::Open {
             path: data_path.clone(),
@@ -487,72 +824,135 @@ impl Capture {
         }
         let mut file = File::open(&data_path).map_err(open_err)?;
         let file_len = file.metadata().map_err(open_err)?.len();
-
-        let sidecar = sigmf::find_sidecar(&data_path);
-        let sigmf_meta = match &sidecar {
-            Some(p) => Some(sigmf::read_sidecar(p)?),
-            None => None,
+        let sidecar = match sidecar {
+            Some(s) => Some(s),
+            None => sigmf::find_sidecar(&data_path, &mut notes)?,
         };
+        let is_wav = sigmf::has_extension(&data_path, "wav") || wav::has_magic(&mut file);
+        let resolved = resolve_layout(
+            &data_path,
+            &mut file,
+            file_len,
+            0,
+            is_wav,
+            sidecar.as_ref().map(|(p, m)| (p.as_path(), m)),
+            opts,
+            &mut notes,
+        )?;
+        let (sidecar_path, meta) = match sidecar {
+            Some((p, m)) => (Some(p), Some(Box::new(m))),
+            None => (None, None),
+        };
+        Capture::assemble(
+            data_path,
+            Source::from_file(file, file_len, access),
+            resolved,
+            opts,
+            sidecar_path,
+            meta,
+            notes,
+            None,
+        )
+    }
 
-        let mut wav_rate = None;
-        let (container, data_offset, data_bytes, format_source) = if let Some(f) = opts.format {
-            (Container::Raw(f), 0, file_len, FormatSource::Option)
-        } else if let Some(m) = &sigmf_meta {
-            (Container::Raw(m.datatype), 0, file_len, FormatSource::Sigmf)
-        } else if has_extension(&data_path, "wav") || starts_with_riff(&mut file) {
-            let layout = wav::read_header(&mut file, &data_path, file_len)?;
-            wav_rate = Some(f64::from(layout.sample_rate_hz));
-            (
-                Container::Wav(layout.encoding),
-                layout.data_offset,
-                layout.data_bytes,
-                FormatSource::WavHeader,
-            )
-        } else if let Some(f) = data_path
-            .extension()
-            .and_then(|e| e.to_str())
-            .and_then(SampleFormat::from_extension)
-        {
-            (Container::Raw(f), 0, file_len, FormatSource::Extension)
-        } else {
-            return Err(CaptureError::UnknownFormat {
-                path: data_path,
-                accepted: SampleFormat::accepted_names(),
+    /// Open the single recording inside a `.sigmf` archive, reading its data in
+    /// place (the archive is memory-mapped like any capture).
+    fn open_archive(
+        path: &Path,
+        opts: &OpenOptions,
+        access: Access,
+    ) -> Result<Capture, CaptureError> {
+        let open_err = |source| CaptureError::Open {
+            path: path.to_path_buf(),
+            source,
+        };
+        let md = std::fs::metadata(path).map_err(open_err)?;
+        if !md.is_file() {
+            return Err(CaptureError::NotAFile {
+                path: path.to_path_buf(),
             });
-        };
+        }
+        let mut file = File::open(path).map_err(open_err)?;
+        let file_len = file.metadata().map_err(open_err)?.len();
+        let member = archive::locate(&mut file, path)?;
+        let meta_label = PathBuf::from(format!("{}:{}", path.display(), member.meta_name));
+        let mut notes = Vec::new();
+        // The member's bytes stand for the data file: header and trailing bytes
+        // are counted inside it.
+        let member_end = member.data_offset + member.data_len;
+        let resolved = resolve_layout(
+            Path::new(&member.data_name),
+            &mut file,
+            member_end,
+            member.data_offset,
+            false,
+            Some((meta_label.as_path(), &member.meta)),
+            opts,
+            &mut notes,
+        )?;
+        Capture::assemble(
+            path.to_path_buf(),
+            Source::from_file(file, file_len, access),
+            resolved,
+            opts,
+            Some(meta_label),
+            Some(Box::new(member.meta)),
+            notes,
+            Some(member.data_name),
+        )
+    }
 
-        let bps = container.bytes_per_sample() as u64;
-        let len = data_bytes / bps;
-        let trailing_bytes = (data_bytes % bps) as usize;
+    #[allow(clippy::too_many_arguments)]
+    fn assemble(
+        path: PathBuf,
+        source: Source,
+        r: Resolved,
+        opts: &OpenOptions,
+        sidecar: Option<PathBuf>,
+        meta: Option<Box<SigmfMeta>>,
+        notes: Vec<CaptureNote>,
+        archive_member: Option<String>,
+    ) -> Result<Capture, CaptureError> {
+        let bps = r.container.bytes_per_sample() as u64;
+        let len = r.data_bytes / bps;
+        let trailing_bytes = (r.data_bytes % bps) as usize;
         if len == 0 {
             return Err(CaptureError::Empty {
-                path: data_path,
-                found_bytes: data_bytes,
+                path,
+                found_bytes: r.data_bytes,
             });
         }
         let len = usize::try_from(len).map_err(|_| CaptureError::OutOfRange {
-            path: data_path.clone(),
+            path: path.clone(),
             start: 0,
             end: usize::MAX,
             available: usize::MAX,
         })?;
-        let sample_rate_hz = opts
-            .sample_rate_hz
-            .or(sigmf_meta.as_ref().and_then(|m| m.sample_rate_hz))
-            .or(wav_rate);
-        let center_freq_hz = sigmf_meta.as_ref().and_then(|m| m.center_freq_hz);
+        let segments = match &meta {
+            Some(m) => m.segments.clone(),
+            None => vec![SigmfSegment {
+                sample_start: 0,
+                center_freq_hz: None,
+                header_bytes: 0,
+            }],
+        };
         Ok(Capture {
-            source: Source::from_file(file, file_len, access),
-            path: data_path,
-            data_offset,
+            path,
+            source,
+            data_offset: r.data_offset,
             len,
-            container,
-            format_source,
+            container: r.container,
+            format_source: r.format_source,
             trailing_bytes,
-            sample_rate_hz,
-            center_freq_hz,
+            sample_rate_hz: r.sample_rate_hz,
+            center_freq_hz: segments.first().and_then(|s| s.center_freq_hz),
             swap_iq: opts.swap_iq,
+            unsigned_zero: opts.unsigned_zero,
             sidecar,
+            sigmf: meta,
+            segments,
+            notes,
+            archive_member,
         })
     }
 
@@ -572,7 +972,16 @@ impl Capture {
             sample_rate_hz: None,
             center_freq_hz: None,
             swap_iq: false,
+            unsigned_zero: UnsignedZero::default(),
             sidecar: None,
+            sigmf: None,
+            segments: vec![SigmfSegment {
+                sample_start: 0,
+                center_freq_hz: None,
+                header_bytes: 0,
+            }],
+            notes: Vec::new(),
+            archive_member: None,
         }
     }
 
@@ -600,7 +1009,16 @@ impl Capture {
             sample_rate_hz: Some(f64::from(layout.sample_rate_hz)),
             center_freq_hz: None,
             swap_iq: false,
+            unsigned_zero: UnsignedZero::default(),
             sidecar: None,
+            sigmf: None,
+            segments: vec![SigmfSegment {
+                sample_start: 0,
+                center_freq_hz: None,
+                header_bytes: 0,
+            }],
+            notes: Vec::new(),
+            archive_member: None,
         })
     }
 
@@ -622,6 +1040,45 @@ impl Capture {
     /// Centre frequency in Hz from the SigMF sidecar's first capture segment.
     pub fn center_freq_hz(&self) -> Option<f64> {
         self.center_freq_hz
+    }
+
+    /// The capture segments (SigMF `captures`), in order, the first at sample 0;
+    /// a capture without a sidecar has one segment with no frequency.
+    pub fn segments(&self) -> &[SigmfSegment] {
+        &self.segments
+    }
+
+    /// Index into [`segments`](Self::segments) of the segment holding `sample`.
+    pub fn segment_index_at(&self, sample: u64) -> usize {
+        self.segments
+            .partition_point(|s| s.sample_start <= sample)
+            .saturating_sub(1)
+    }
+
+    /// What the SigMF metadata said, when there was a sidecar (or an archive).
+    pub fn sigmf(&self) -> Option<&SigmfMeta> {
+        self.sigmf.as_deref()
+    }
+
+    /// Notes made while opening: disagreeing sources, sidecars passed over.
+    pub fn notes(&self) -> &[CaptureNote] {
+        &self.notes
+    }
+
+    /// For a `.sigmf` archive: the name of the data member read in place.
+    pub fn archive_member(&self) -> Option<&str> {
+        self.archive_member.as_deref()
+    }
+
+    /// The zero point used for unsigned datatypes.
+    pub fn unsigned_zero(&self) -> UnsignedZero {
+        self.unsigned_zero
+    }
+
+    /// Byte offset one past the last sample byte (trailing bytes that do not
+    /// make a whole sample excluded).
+    pub fn data_end_bytes(&self) -> u64 {
+        self.data_offset + self.len as u64 * self.container.bytes_per_sample() as u64
     }
 
     /// The path the samples come from (`<memory>` for in-memory captures).
@@ -710,7 +1167,7 @@ impl Capture {
             None => self
                 .source
                 .with_bytes(offset, out.len() * bps, |b| {
-                    raw::decode(self.container, b, out)
+                    raw::decode_with(self.container, self.unsigned_zero, b, out)
                 })
                 .map_err(|source| CaptureError::Read {
                     path: self.path.clone(),
@@ -793,18 +1250,296 @@ impl Capture {
     }
 }
 
-fn has_extension(path: &Path, ext: &str) -> bool {
-    path.extension()
-        .and_then(|e| e.to_str())
-        .is_some_and(|e| e.eq_ignore_ascii_case(ext))
+/// Where [`Capture::write_annotations`] puts the annotations.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum AnnotationTarget {
+    /// A new sidecar beside the data file
+    /// ([`Capture::annotations_sidecar_path`]); the input is left alone.
+    #[default]
+    NewSidecar,
+    /// The sidecar the capture was opened with, replaced atomically (only on
+    /// the user's explicit request).
+    InputSidecar,
 }
 
-fn starts_with_riff(file: &mut File) -> bool {
-    use std::io::{Seek, SeekFrom};
-    let mut magic = [0u8; 12];
-    let ok = file.read_exact(&mut magic).is_ok();
-    let _ = file.seek(SeekFrom::Start(0));
-    ok && &magic[0..4] == b"RIFF" && &magic[8..12] == b"WAVE"
+impl Capture {
+    /// The new sidecar [`write_annotations`](Self::write_annotations) writes by
+    /// default: `DATA.annotations.sigmf-meta` beside the data file (the archive
+    /// for a `.sigmf` archive), naming the data in `core:dataset`.
+    pub fn annotations_sidecar_path(&self) -> PathBuf {
+        let mut s = self.path.as_os_str().to_owned();
+        s.push(".annotations.sigmf-meta");
+        PathBuf::from(s)
+    }
+
+    /// Write `annotations` (sample indices from the first sample in the file)
+    /// as SigMF annotations, atomically, and return the sidecar written.
+    ///
+    /// The document is the input sidecar's (every key kept; earlier annotations
+    /// of this crate's namespace replaced, others kept), or, without one, a new
+    /// one from what was resolved: the datatype (a WAV's equivalent), the
+    /// sample rate and `center_freq_hz` (the caller's resolved values, used
+    /// only when there is no sidecar). A new sidecar names the data file in
+    /// `core:dataset` and gives `core:header_bytes` and `core:trailing_bytes`,
+    /// so it describes the same samples whatever the input was (conforming
+    /// recording, raw file, WAV or archive member).
+    ///
+    /// # Errors
+    /// A 24-bit WAV (no SigMF datatype); [`AnnotationTarget::InputSidecar`]
+    /// without a sidecar file or inside an archive; a file at the new name that
+    /// this crate did not write ([`CaptureError::SidecarTaken`]); write errors.
+    pub fn write_annotations(
+        &self,
+        annotations: &[SigmfAnnotation],
+        target: AnnotationTarget,
+        sample_rate_hz: Option<f64>,
+        center_freq_hz: Option<f64>,
+    ) -> Result<PathBuf, CaptureError> {
+        let bad = |problem: String| CaptureError::BadWriteSpec {
+            path: self.path.clone(),
+            problem,
+        };
+        let offset = self.sigmf.as_ref().map_or(0, |m| m.offset);
+        let (out, mut doc) = match target {
+            AnnotationTarget::InputSidecar => {
+                let (Some(sc), Some(meta)) = (&self.sidecar, &self.sigmf) else {
+                    return Err(bad(
+                        "no SigMF sidecar was read for this capture, so there is none to update; \
+                         write a new one instead"
+                            .into(),
+                    ));
+                };
+                if self.archive_member.is_some() {
+                    return Err(bad(
+                        "the metadata is inside a .sigmf archive, which is never modified; \
+                         write a new sidecar instead"
+                            .into(),
+                    ));
+                }
+                (sc.clone(), meta.document.clone())
+            }
+            AnnotationTarget::NewSidecar => {
+                let out = self.annotations_sidecar_path();
+                if out.exists() {
+                    let ours = sigmf::read_sidecar(&out)
+                        .map(|m| m.declares_own_extension())
+                        .unwrap_or(false);
+                    if !ours {
+                        return Err(CaptureError::SidecarTaken {
+                            path: self.path.clone(),
+                            taken: format!(
+                                "{} exists and was not written by iqaudit",
+                                out.display()
+                            ),
+                        });
+                    }
+                }
+                let datatype = match self.container {
+                    Container::Raw(f) => f,
+                    Container::Wav(enc) => wav_equivalent(enc).ok_or_else(|| {
+                        bad(format!(
+                            "no SigMF datatype stores WAV {enc} samples; no annotations written"
+                        ))
+                    })?,
+                };
+                let mut doc = match &self.sigmf {
+                    Some(m) => m.document.clone(),
+                    None => sigmf::sidecar_document(&sigmf::SidecarSpec {
+                        datatype,
+                        sample_rate_hz: self.sample_rate_hz.or(sample_rate_hz).unwrap_or(0.0),
+                        center_freq_hz,
+                        description: None,
+                        dataset: None,
+                        header_bytes: 0,
+                        trailing_bytes: 0,
+                        annotations: &[],
+                    }),
+                };
+                if self.sigmf.is_none() && self.sample_rate_hz.or(sample_rate_hz).is_none() {
+                    if let Some(Value::Object(g)) = doc.get_mut("global") {
+                        g.remove("core:sample_rate");
+                    }
+                }
+                let name = self
+                    .path
+                    .file_name()
+                    .map(|n| n.to_string_lossy().into_owned())
+                    .unwrap_or_default();
+                let trailing = self.file_len_bytes().saturating_sub(self.data_end_bytes());
+                if let Some(Value::Object(g)) = doc.get_mut("global") {
+                    g.insert("core:dataset".into(), Value::from(name));
+                    g.insert("core:datatype".into(), Value::from(datatype.name()));
+                    if trailing > 0 {
+                        g.insert("core:trailing_bytes".into(), Value::from(trailing));
+                    } else {
+                        g.remove("core:trailing_bytes");
+                    }
+                }
+                if let Some(Value::Array(caps)) = doc.get_mut("captures") {
+                    if caps.is_empty() {
+                        caps.push(serde_json::json!({ "core:sample_start": offset }));
+                    }
+                    if let Some(Value::Object(c0)) = caps.first_mut() {
+                        if self.data_offset > 0 {
+                            c0.insert("core:header_bytes".into(), Value::from(self.data_offset));
+                        } else {
+                            c0.remove("core:header_bytes");
+                        }
+                    }
+                }
+                (out, doc)
+            }
+        };
+        sigmf::set_annotations(&mut doc, annotations, offset);
+        let text = sigmf::document_text(&doc);
+        write::atomic_write(&out, |w| {
+            use std::io::Write as _;
+            w.write_all(text.as_bytes())
+        })?;
+        Ok(out)
+    }
+}
+
+/// The layout of an opened capture, before the byte source is attached.
+struct Resolved {
+    container: Container,
+    data_offset: u64,
+    data_bytes: u64,
+    format_source: FormatSource,
+    sample_rate_hz: Option<f64>,
+}
+
+/// The SigMF datatype whose bytes a WAV encoding stores (24-bit PCM has none;
+/// 8-bit PCM is `cu8` with the zero at 128).
+pub(crate) fn wav_equivalent(enc: WavEncoding) -> Option<SampleFormat> {
+    match enc {
+        WavEncoding::Pcm8 => Some(SampleFormat::Cu8),
+        WavEncoding::Pcm16 => Some(SampleFormat::Ci16Le),
+        WavEncoding::Pcm24 => None,
+        WavEncoding::Pcm32 => Some(SampleFormat::Ci32Le),
+        WavEncoding::Float32 => Some(SampleFormat::Cf32Le),
+        WavEncoding::Float64 => Some(SampleFormat::Cf64Le),
+    }
+}
+
+/// Decide the layout of the data in `file` from `[base, end)` (the whole file,
+/// or an archive member): a WAV by its header (never as raw samples); raw data
+/// by the option, else the sidecar, else the extension of `data_path`; header
+/// and trailing bytes from the sidecar. Appends notes on disagreements.
+#[allow(clippy::too_many_arguments)]
+fn resolve_layout(
+    data_path: &Path,
+    file: &mut File,
+    end: u64,
+    base: u64,
+    is_wav: bool,
+    sidecar: Option<(&Path, &SigmfMeta)>,
+    opts: &OpenOptions,
+    notes: &mut Vec<CaptureNote>,
+) -> Result<Resolved, CaptureError> {
+    let sidecar_rate = sidecar.and_then(|(_, m)| m.sample_rate_hz);
+    if is_wav {
+        let layout = wav::read_header(file, data_path, end)?;
+        if let Some(f) = opts.format {
+            notes.push(CaptureNote::FormatOptionIgnoredForWav { format: f });
+        }
+        let wav_rate = f64::from(layout.sample_rate_hz);
+        if let Some((sp, m)) = sidecar {
+            let eq = wav_equivalent(layout.encoding);
+            if eq != Some(m.datatype) {
+                notes.push(CaptureNote::SidecarDisagreesWithWav {
+                    sidecar: sp.to_path_buf(),
+                    what: "core:datatype",
+                    sidecar_says: m.datatype.to_string(),
+                    wav_says: layout.encoding.to_string(),
+                });
+            }
+            if m.header_bytes() != layout.data_offset {
+                notes.push(CaptureNote::SidecarDisagreesWithWav {
+                    sidecar: sp.to_path_buf(),
+                    what: "core:header_bytes",
+                    sidecar_says: m.header_bytes().to_string(),
+                    wav_says: format!("data at byte {}", layout.data_offset),
+                });
+            }
+            if let Some(r) = m.sample_rate_hz {
+                if r != wav_rate && opts.sample_rate_hz.is_none() {
+                    notes.push(CaptureNote::RateDisagrees {
+                        used_from: sp.display().to_string(),
+                        used_hz: r,
+                        other_from: "the WAV header".into(),
+                        other_hz: wav_rate,
+                    });
+                }
+            }
+        }
+        return Ok(Resolved {
+            container: Container::Wav(layout.encoding),
+            data_offset: layout.data_offset,
+            data_bytes: layout.data_bytes,
+            format_source: FormatSource::WavHeader,
+            sample_rate_hz: opts.sample_rate_hz.or(sidecar_rate).or(Some(wav_rate)),
+        });
+    }
+    let (header, trailing) = sidecar.map_or((0, 0), |(_, m)| (m.header_bytes(), m.trailing_bytes));
+    let avail = end - base;
+    let data_bytes = header
+        .checked_add(trailing)
+        .and_then(|skip| avail.checked_sub(skip))
+        .ok_or_else(|| CaptureError::SigmfBytes {
+            path: data_path.to_path_buf(),
+            sidecar: sidecar.map(|(p, _)| p.to_path_buf()).unwrap_or_default(),
+            header_bytes: header,
+            trailing_bytes: trailing,
+            file_bytes: avail,
+        })?;
+    let by_ext = data_path
+        .extension()
+        .and_then(|e| e.to_str())
+        .and_then(SampleFormat::from_extension);
+    let (format, format_source) = match (opts.format, sidecar) {
+        (Some(f), side) => {
+            if let Some((sp, m)) = side {
+                if m.datatype != f {
+                    notes.push(CaptureNote::FormatOptionOverridesSidecar {
+                        format: f,
+                        sidecar: sp.to_path_buf(),
+                        datatype: m.datatype,
+                    });
+                }
+            }
+            (f, FormatSource::Option)
+        }
+        (None, Some((sp, m))) => {
+            if let Some(e) = by_ext {
+                if e.family() != m.datatype.family() {
+                    notes.push(CaptureNote::ExtensionContradictsDatatype {
+                        data: data_path.to_path_buf(),
+                        sidecar: sp.to_path_buf(),
+                        datatype: m.datatype,
+                        extension_means: e,
+                    });
+                }
+            }
+            (m.datatype, FormatSource::Sigmf)
+        }
+        (None, None) => match by_ext {
+            Some(e) => (e, FormatSource::Extension),
+            None => {
+                return Err(CaptureError::UnknownFormat {
+                    path: data_path.to_path_buf(),
+                    accepted: SampleFormat::accepted_names(),
+                })
+            }
+        },
+    };
+    Ok(Resolved {
+        container: Container::Raw(format),
+        data_offset: base + header,
+        data_bytes,
+        format_source,
+        sample_rate_hz: opts.sample_rate_hz.or(sidecar_rate),
+    })
 }
 
 #[cfg(test)]

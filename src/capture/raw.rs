@@ -5,25 +5,45 @@
 //! Gives out: full-scale-1.0 samples plus [`ReadStats`] (clipped and non-finite
 //! counts) for that range. No allocation, no per-sample branching on the format.
 //!
-//! Scaling (crate convention, see `src/lib.rs`): `ci16` and 16-bit PCM divide by
-//! 32768, `ci8` by 128, `cu8` maps code `x` to `(x − 127.5)/127.5`, 8-bit WAV PCM
-//! (unsigned, mid-scale 128 per the RIFF/WAVE format) maps `x` to `(x − 128)/128`,
-//! 24-bit PCM divides by 2²³ and 32-bit PCM by 2³¹. A complex sample is *clipped*
-//! when its I or Q sits at the most negative or most positive integer code; for
-//! float layouts, when `|I| ≥ 1` or `|Q| ≥ 1` (at or beyond full scale).
-//! A float sample with a non-finite I or Q is written as 0 and counted as
-//! non-finite (and not as clipped).
+//! Scaling (crate convention, see `src/lib.rs`): signed integers divide by
+//! 2^(bits−1) (`ci8` by 128, `ci16` and 16-bit PCM by 32768, `ci32` and 32-bit
+//! PCM by 2³¹, 24-bit PCM by 2²³); unsigned SigMF integers (`cu8`, `cu16_*`,
+//! `cu32_*`) map code `x` to `(x − z)/z` with the zero point `z` of
+//! [`UnsignedZero`] (default (2^bits − 1)/2, e.g. 127.5; or 2^(bits−1));
+//! 8-bit WAV PCM (unsigned, mid-scale 128 per the RIFF/WAVE format) maps `x` to
+//! `(x − 128)/128`. 32-bit unsigned codes are scaled in `f64` and rounded to
+//! `f32` once. A complex sample is *clipped* when its I or Q sits at the most
+//! negative or most positive integer code; for float layouts, when `|I| ≥ 1` or
+//! `|Q| ≥ 1` (at or beyond full scale). A float sample with a non-finite I or Q
+//! is written as 0 and counted as non-finite (and not as clipped); `f64`
+//! components are rounded to `f32` (values beyond the `f32` range become ±∞ and
+//! so count as non-finite).
 
-use super::{Container, ReadStats, SampleFormat, WavEncoding};
+use super::{Container, ReadStats, SampleFormat, UnsignedZero, WavEncoding};
 use crate::Cf32;
 
+/// [`decode_with`] with the default unsigned zero point.
+///
+/// # Panics
+/// As [`decode_with`].
+#[cfg(test)]
+pub(crate) fn decode(container: Container, bytes: &[u8], out: &mut [Cf32]) -> ReadStats {
+    decode_with(container, UnsignedZero::default(), bytes, out)
+}
+
 /// Decode `out.len()` complex samples from `bytes` (exactly
-/// `out.len() * container.bytes_per_sample()` bytes).
+/// `out.len() * container.bytes_per_sample()` bytes); `zero` applies to the
+/// unsigned SigMF datatypes only.
 ///
 /// # Panics
 /// If `bytes.len() != out.len() * container.bytes_per_sample()` (a programming
 /// error in the caller, never an input error).
-pub(crate) fn decode(container: Container, bytes: &[u8], out: &mut [Cf32]) -> ReadStats {
+pub(crate) fn decode_with(
+    container: Container,
+    zero: UnsignedZero,
+    bytes: &[u8],
+    out: &mut [Cf32],
+) -> ReadStats {
     let bps = container.bytes_per_sample();
     let need = out.len() * bps;
     if bytes.len() != need {
@@ -35,7 +55,7 @@ pub(crate) fn decode(container: Container, bytes: &[u8], out: &mut [Cf32]) -> Re
     let mut stats = ReadStats::default();
     for (b, o) in bytes.chunks(BLOCK * bps).zip(out.chunks_mut(BLOCK)) {
         touch_bytes(b);
-        let st = decode_block(container, b, o);
+        let st = decode_block(container, zero, b, o);
         stats.clipped += st.clipped;
         stats.non_finite += st.non_finite;
     }
@@ -56,7 +76,30 @@ fn touch_bytes(b: &[u8]) {
     std::hint::black_box(acc);
 }
 
-fn decode_block(container: Container, bytes: &[u8], out: &mut [Cf32]) -> ReadStats {
+/// The scale of an unsigned `bits`-bit SigMF datatype under `zero`.
+fn unsigned_scale(bits: u32, zero: UnsignedZero) -> IntScale {
+    let z = zero.zero_point(bits) as f32;
+    IntScale {
+        lo: 0,
+        hi: ((1u64 << bits) - 1) as i32,
+        mid: z,
+        div: z,
+    }
+}
+
+const I32: IntScale = IntScale {
+    lo: i32::MIN,
+    hi: i32::MAX,
+    mid: 0.0,
+    div: 2_147_483_648.0,
+};
+
+fn decode_block(
+    container: Container,
+    zero: UnsignedZero,
+    bytes: &[u8],
+    out: &mut [Cf32],
+) -> ReadStats {
     match container {
         Container::Raw(SampleFormat::Cf32Le) | Container::Wav(WavEncoding::Float32) => {
             match bytemuck::try_cast_slice::<u8, [u32; 2]>(bytes) {
@@ -70,9 +113,16 @@ fn decode_block(container: Container, bytes: &[u8], out: &mut [Cf32]) -> ReadSta
                 _ => floats::<4>(bytes, out, f32::from_be_bytes),
             }
         }
-        Container::Raw(SampleFormat::Cf64Le) => {
+        Container::Raw(SampleFormat::Cf64Le) | Container::Wav(WavEncoding::Float64) => {
             floats::<8>(bytes, out, |b| f64::from_le_bytes(b) as f32)
         }
+        Container::Raw(SampleFormat::Cf64Be) => {
+            floats::<8>(bytes, out, |b| f64::from_be_bytes(b) as f32)
+        }
+        Container::Raw(SampleFormat::Ci32Le) | Container::Wav(WavEncoding::Pcm32) => {
+            ints::<4>(bytes, out, i32::from_le_bytes, I32)
+        }
+        Container::Raw(SampleFormat::Ci32Be) => ints::<4>(bytes, out, i32::from_be_bytes, I32),
         Container::Raw(SampleFormat::Ci16Le) | Container::Wav(WavEncoding::Pcm16) => {
             int_pairs::<2>(bytes, out, |b| i16::from_le_bytes(b) as i32, I16)
         }
@@ -90,17 +140,27 @@ fn decode_block(container: Container, bytes: &[u8], out: &mut [Cf32]) -> ReadSta
                 div: 128.0,
             },
         ),
-        Container::Raw(SampleFormat::Cu8) => int_pairs::<1>(
+        Container::Raw(SampleFormat::Cu8) => {
+            int_pairs::<1>(bytes, out, |b| b[0] as i32, unsigned_scale(8, zero))
+        }
+        Container::Raw(SampleFormat::Cu16Le) => int_pairs::<2>(
             bytes,
             out,
-            |b| b[0] as i32,
-            IntScale {
-                lo: 0,
-                hi: 255,
-                mid: 127.5,
-                div: 127.5,
-            },
+            |b| u16::from_le_bytes(b) as i32,
+            unsigned_scale(16, zero),
         ),
+        Container::Raw(SampleFormat::Cu16Be) => int_pairs::<2>(
+            bytes,
+            out,
+            |b| u16::from_be_bytes(b) as i32,
+            unsigned_scale(16, zero),
+        ),
+        Container::Raw(SampleFormat::Cu32Le) => {
+            u32s(bytes, out, u32::from_le_bytes, zero.zero_point(32))
+        }
+        Container::Raw(SampleFormat::Cu32Be) => {
+            u32s(bytes, out, u32::from_be_bytes, zero.zero_point(32))
+        }
         Container::Wav(WavEncoding::Pcm8) => int_pairs::<1>(
             bytes,
             out,
@@ -124,17 +184,26 @@ fn decode_block(container: Container, bytes: &[u8], out: &mut [Cf32]) -> ReadSta
                 div: 8_388_608.0,
             },
         ),
-        Container::Wav(WavEncoding::Pcm32) => ints::<4>(
-            bytes,
-            out,
-            i32::from_le_bytes,
-            IntScale {
-                lo: i32::MIN,
-                hi: i32::MAX,
-                mid: 0.0,
-                div: 2_147_483_648.0,
-            },
-        ),
+    }
+}
+
+/// 32-bit unsigned codes: `(x − zero)/zero` computed in `f64` (exact
+/// subtraction, one rounding) and rounded to `f32`; clipped at 0 and 2³² − 1.
+#[inline(always)]
+fn u32s(bytes: &[u8], out: &mut [Cf32], read: impl Fn([u8; 4]) -> u32, zero: f64) -> ReadStats {
+    let mut clipped = 0u64;
+    for (o, c) in out.iter_mut().zip(bytes.chunks_exact(8)) {
+        let i = read([c[0], c[1], c[2], c[3]]);
+        let q = read([c[4], c[5], c[6], c[7]]);
+        clipped += u64::from((i == 0) | (i == u32::MAX) | (q == 0) | (q == u32::MAX));
+        *o = Cf32::new(
+            ((f64::from(i) - zero) / zero) as f32,
+            ((f64::from(q) - zero) / zero) as f32,
+        );
+    }
+    ReadStats {
+        clipped,
+        non_finite: 0,
     }
 }
 
@@ -424,62 +493,83 @@ mod tests {
     /// none of the fast paths: read one component at a time, scale, apply the
     /// clip and non-finite rules of the module doc.
     fn slow_decode(container: Container, bytes: &[u8]) -> (Vec<Cf32>, ReadStats) {
+        slow_decode_with(container, UnsignedZero::Symmetric, bytes)
+    }
+
+    fn slow_decode_with(
+        container: Container,
+        zero: UnsignedZero,
+        bytes: &[u8],
+    ) -> (Vec<Cf32>, ReadStats) {
         let w = container.bytes_per_sample() / 2;
         let mut out = Vec::new();
         let mut st = ReadStats::default();
+        // One component's bytes in big-endian order (most significant first).
+        let be = |c: &[u8], big: bool| -> Vec<u8> {
+            let mut v = c.to_vec();
+            if !big {
+                v.reverse();
+            }
+            v
+        };
         for s in bytes.chunks_exact(2 * w) {
             let comp = |c: &[u8]| -> (f32, bool, bool) {
                 // (value, clipped, finite)
-                match container {
-                    Container::Raw(SampleFormat::Cf32Le) | Container::Wav(WavEncoding::Float32) => {
-                        let v = f32::from_le_bytes([c[0], c[1], c[2], c[3]]);
+                let (kind, big) = match container {
+                    Container::Raw(f) => {
+                        let kind = match f.family() {
+                            "cf32" | "cf64" => 'f',
+                            "ci32" | "ci16" | "ci8" => 'i',
+                            _ => 'u',
+                        };
+                        (kind, f.name().ends_with("_be"))
+                    }
+                    Container::Wav(WavEncoding::Float32 | WavEncoding::Float64) => ('f', false),
+                    Container::Wav(WavEncoding::Pcm8) => ('w', false),
+                    Container::Wav(_) => ('i', false),
+                };
+                let b = be(c, big);
+                match kind {
+                    'f' => {
+                        let v = if w == 4 {
+                            f32::from_be_bytes([b[0], b[1], b[2], b[3]])
+                        } else {
+                            let mut a = [0u8; 8];
+                            a.copy_from_slice(&b);
+                            f64::from_be_bytes(a) as f32
+                        };
                         (v, v.abs() >= 1.0, v.is_finite())
                     }
-                    Container::Raw(SampleFormat::Cf32Be) => {
-                        let v = f32::from_be_bytes([c[0], c[1], c[2], c[3]]);
-                        (v, v.abs() >= 1.0, v.is_finite())
+                    'i' => {
+                        // Two's complement from the big-endian bytes.
+                        let mut v: i64 = if b[0] & 0x80 != 0 { -1 } else { 0 };
+                        for &x in &b {
+                            v = (v << 8) | i64::from(x);
+                        }
+                        let bits = 8 * w as u32;
+                        let half = 1i64 << (bits - 1);
+                        (
+                            (v as f64 / half as f64) as f32,
+                            v == -half || v == half - 1,
+                            true,
+                        )
                     }
-                    Container::Raw(SampleFormat::Cf64Le) => {
-                        let mut a = [0u8; 8];
-                        a.copy_from_slice(c);
-                        let v = f64::from_le_bytes(a) as f32;
-                        (v, v.abs() >= 1.0, v.is_finite())
+                    'u' => {
+                        let mut v: u64 = 0;
+                        for &x in &b {
+                            v = (v << 8) | u64::from(x);
+                        }
+                        let bits = 8 * w as u32;
+                        let z = zero.zero_point(bits);
+                        (
+                            ((v as f64 - z) / z) as f32,
+                            v == 0 || v == (1u64 << bits) - 1,
+                            true,
+                        )
                     }
-                    Container::Raw(SampleFormat::Ci16Le) | Container::Wav(WavEncoding::Pcm16) => {
-                        let v = i16::from_le_bytes([c[0], c[1]]);
-                        (v as f32 / 32768.0, v == i16::MIN || v == i16::MAX, true)
-                    }
-                    Container::Raw(SampleFormat::Ci16Be) => {
-                        let v = i16::from_be_bytes([c[0], c[1]]);
-                        (v as f32 / 32768.0, v == i16::MIN || v == i16::MAX, true)
-                    }
-                    Container::Raw(SampleFormat::Ci8) => {
-                        let v = c[0] as i8;
-                        (v as f32 / 128.0, v == i8::MIN || v == i8::MAX, true)
-                    }
-                    Container::Raw(SampleFormat::Cu8) => {
-                        let v = c[0];
-                        ((v as f32 - 127.5) / 127.5, v == 0 || v == 255, true)
-                    }
-                    Container::Wav(WavEncoding::Pcm8) => {
+                    _ => {
                         let v = c[0];
                         ((v as f32 - 128.0) / 128.0, v == 0 || v == 255, true)
-                    }
-                    Container::Wav(WavEncoding::Pcm24) => {
-                        let v = i32::from_le_bytes([0, c[0], c[1], c[2]]) >> 8;
-                        (
-                            v as f32 / 8_388_608.0,
-                            v == -(1 << 23) || v == (1 << 23) - 1,
-                            true,
-                        )
-                    }
-                    Container::Wav(WavEncoding::Pcm32) => {
-                        let v = i32::from_le_bytes([c[0], c[1], c[2], c[3]]);
-                        (
-                            v as f32 / 2_147_483_648.0,
-                            v == i32::MIN || v == i32::MAX,
-                            true,
-                        )
                     }
                 }
             };
@@ -502,20 +592,11 @@ mod tests {
         // edge codes (most negative/positive integers, ±1.0, ±∞, NaN, values
         // too large for f32), over sizes 0, 1, 2, 13, a block boundary ± 1 and
         // a misaligned start (the general, unaligned form).
-        let containers = [
-            Container::Raw(SampleFormat::Cf32Le),
-            Container::Raw(SampleFormat::Cf32Be),
-            Container::Raw(SampleFormat::Cf64Le),
-            Container::Raw(SampleFormat::Ci16Le),
-            Container::Raw(SampleFormat::Ci16Be),
-            Container::Raw(SampleFormat::Ci8),
-            Container::Raw(SampleFormat::Cu8),
-            Container::Wav(WavEncoding::Pcm8),
-            Container::Wav(WavEncoding::Pcm16),
-            Container::Wav(WavEncoding::Pcm24),
-            Container::Wav(WavEncoding::Pcm32),
-            Container::Wav(WavEncoding::Float32),
-        ];
+        let containers: Vec<Container> = SampleFormat::ALL
+            .into_iter()
+            .map(Container::Raw)
+            .chain(WavEncoding::ALL.into_iter().map(Container::Wav))
+            .collect();
         let mut state = 0x2545_F491_4F6C_DD1Du64;
         let mut next = move || {
             state ^= state << 13;
@@ -567,16 +648,20 @@ mod tests {
                         _ => {}
                     }
                 }
-                for start in [0usize, 1] {
+                for (start, zero) in [
+                    (0usize, UnsignedZero::Symmetric),
+                    (1, UnsignedZero::Symmetric),
+                    (0, UnsignedZero::PowerOfTwo),
+                ] {
                     let bytes = &buf[start..start + n * bps];
-                    let (want, want_st) = slow_decode(container, bytes);
+                    let (want, want_st) = slow_decode_with(container, zero, bytes);
                     let mut got = vec![Cf32::new(7.0, 7.0); n];
-                    let got_st = decode(container, bytes, &mut got);
+                    let got_st = decode_with(container, zero, bytes, &mut got);
                     assert_eq!(got_st, want_st, "{container:?} n={n} start={start}");
                     for (k, (g, w)) in got.iter().zip(&want).enumerate() {
                         assert!(
                             g.re.to_bits() == w.re.to_bits() && g.im.to_bits() == w.im.to_bits(),
-                            "{container:?} n={n} start={start} sample {k}: {g} vs {w}"
+                            "{container:?} {zero:?} n={n} start={start} sample {k}: {g} vs {w}"
                         );
                     }
                 }

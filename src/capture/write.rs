@@ -4,20 +4,32 @@
 //! file (and optionally a SigMF sidecar, raw layouts only), written atomically —
 //! to a temporary file in the same directory, then renamed over the target.
 //!
-//! Quantisation is the inverse of the reader's scaling (`src/lib.rs`): `ci16`
-//! writes `round(x·32768)`, `ci8` `round(x·128)`, `cu8` `round(x·127.5 + 127.5)`,
-//! WAV PCM `round(x·2^(bits−1))` (8-bit stored unsigned with offset 128). Values
-//! beyond the code range are clamped. [`WriteStats::clipped`] counts samples whose
-//! I or Q lands on the most negative or most positive code — exactly what the
-//! reader counts, so a round trip reports the same figure. Float layouts store
-//! the value as is and count `|x| ≥ 1` the same way. NaN quantises to code 0
-//! (Rust's saturating float-to-int cast).
+//! Quantisation is the inverse of the reader's scaling (`src/lib.rs`): signed
+//! integers write `round(x·2^(bits−1))` (`ci8` ×128, `ci16` ×32768, `ci32` ×2³¹),
+//! unsigned ones `round(x·z + z)` with the zero point `z` of [`UnsignedZero`]
+//! (127.5 for `cu8` by default), WAV PCM `round(x·2^(bits−1))` (8-bit stored
+//! unsigned with offset 128). Values beyond the code range are clamped.
+//! [`WriteStats::clipped`] counts samples whose I or Q lands on the most negative
+//! or most positive code — exactly what the reader counts, so a round trip
+//! reports the same figure. Float layouts store the value as is and count
+//! `|x| ≥ 1` the same way. NaN quantises to code 0 (Rust's saturating
+//! float-to-int cast).
+//!
+//! Sidecars (see `sigmf.rs` for the names): every sidecar of a data file other
+//! than `NAME.sigmf-data` names it in `core:dataset`; a WAV file's sidecar also
+//! gives `core:header_bytes` (where the samples start) and
+//! `core:trailing_bytes`. The sidecar name is chosen before anything is written,
+//! so a refusal (another capture's sidecar in the way) leaves no file behind.
 
 use crate::atomic::{AtomicFile, WriteError};
 use std::io::Write;
-use std::path::Path;
+use std::fs::File;
+use std::path::{Path, PathBuf};
 
-use super::{sigmf, CaptureError, Container, SampleFormat, WavEncoding};
+use super::{
+    sigmf, wav, wav_equivalent, CaptureError, Container, SampleFormat, SigmfAnnotation,
+    UnsignedZero, WavEncoding,
+};
 use crate::Cf32;
 
 /// What to write.
@@ -29,108 +41,151 @@ pub struct WriteSpec {
     pub sample_rate_hz: f64,
     /// Centre frequency in Hz, recorded in the SigMF sidecar.
     pub center_freq_hz: Option<f64>,
-    /// Also write `NAME.sigmf-meta` beside the file (raw containers only).
+    /// Also write a SigMF sidecar beside the file (any raw layout; WAV except
+    /// 24-bit PCM, which has no SigMF datatype).
     pub sigmf_sidecar: bool,
     /// Free text for the sidecar's `core:description`.
     pub description: Option<String>,
+    /// Annotations for the sidecar.
+    pub annotations: Vec<SigmfAnnotation>,
+    /// Zero point of the unsigned datatypes.
+    pub unsigned_zero: UnsignedZero,
+}
+
+impl WriteSpec {
+    /// A spec with no sidecar, description or annotations.
+    pub fn new(container: Container, sample_rate_hz: f64) -> WriteSpec {
+        WriteSpec {
+            container,
+            sample_rate_hz,
+            center_freq_hz: None,
+            sigmf_sidecar: false,
+            description: None,
+            annotations: Vec::new(),
+            unsigned_zero: UnsignedZero::default(),
+        }
+    }
 }
 
 /// What was written.
-#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
 pub struct WriteStats {
     /// Complex samples written.
     pub samples: u64,
     /// Samples with I or Q at full scale (clamped codes; floats `|x| ≥ 1`).
     pub clipped: u64,
+    /// The sidecar written, if any.
+    pub sidecar: Option<PathBuf>,
 }
 
 /// Quantise one component to an integer code range.
 #[inline(always)]
-fn quant(x: f32, scale: f32, mid: f32, lo: i32, hi: i32) -> (i32, bool) {
+fn quant(x: f32, scale: f64, mid: f64, lo: i64, hi: i64) -> (i64, bool) {
     // Saturating cast; NaN → 0. Computed in f64 so 32-bit codes round exactly.
-    let v = (f64::from(x) * f64::from(scale) + f64::from(mid)).round();
-    let c = (v as i64).clamp(i64::from(lo), i64::from(hi)) as i32;
+    let v = (f64::from(x) * scale + mid).round();
+    let c = (v as i64).clamp(lo, hi);
     (c, c == lo || c == hi)
 }
 
-/// Append the raw byte encoding of `samples` in `format` to `out`; returns the
-/// number of clipped samples (see the module doc).
+/// Append the raw byte encoding of `samples` in `format` to `out` (unsigned
+/// zero point: the default); returns the number of clipped samples (see the
+/// module doc).
 pub fn encode_raw(samples: &[Cf32], format: SampleFormat, out: &mut Vec<u8>) -> u64 {
+    encode_raw_with(samples, format, UnsignedZero::default(), out)
+}
+
+/// [`encode_raw`] with the given unsigned zero point.
+pub fn encode_raw_with(
+    samples: &[Cf32],
+    format: SampleFormat,
+    zero: UnsignedZero,
+    out: &mut Vec<u8>,
+) -> u64 {
     out.reserve(samples.len() * format.bytes_per_sample());
+    let big = format.name().ends_with("_be");
+    let w = format.component_bytes();
+    let bits = 8 * w as u32;
+    // Integer code range, scale and offset of this layout.
+    let (scale, mid, lo, hi) = if format.is_unsigned() {
+        let z = zero.zero_point(bits);
+        (z, z, 0i64, ((1u64 << bits) - 1) as i64)
+    } else {
+        let half = (1i64 << (bits - 1)) as f64;
+        (half, 0.0, -(1i64 << (bits - 1)), (1i64 << (bits - 1)) - 1)
+    };
+    let put_int = |code: i64, out: &mut Vec<u8>| {
+        let le = (code as u64).to_le_bytes();
+        if big {
+            out.extend(le[..w].iter().rev());
+        } else {
+            out.extend_from_slice(&le[..w]);
+        }
+    };
     let mut clipped = 0u64;
     for s in samples {
-        let c = match format {
-            SampleFormat::Cf32Le | SampleFormat::Cf32Be => {
-                let be = format == SampleFormat::Cf32Be;
-                for v in [s.re, s.im] {
-                    out.extend_from_slice(&if be { v.to_be_bytes() } else { v.to_le_bytes() });
+        let c = if format.is_float() {
+            for v in [s.re, s.im] {
+                match (w, big) {
+                    (4, false) => out.extend_from_slice(&v.to_le_bytes()),
+                    (4, true) => out.extend_from_slice(&v.to_be_bytes()),
+                    (_, false) => out.extend_from_slice(&f64::from(v).to_le_bytes()),
+                    (_, true) => out.extend_from_slice(&f64::from(v).to_be_bytes()),
                 }
-                s.re.abs() >= 1.0 || s.im.abs() >= 1.0
             }
-            SampleFormat::Cf64Le => {
-                out.extend_from_slice(&f64::from(s.re).to_le_bytes());
-                out.extend_from_slice(&f64::from(s.im).to_le_bytes());
-                s.re.abs() >= 1.0 || s.im.abs() >= 1.0
-            }
-            SampleFormat::Ci16Le | SampleFormat::Ci16Be => {
-                let (i, ci) = quant(s.re, 32768.0, 0.0, -32768, 32767);
-                let (q, cq) = quant(s.im, 32768.0, 0.0, -32768, 32767);
-                for v in [i as i16, q as i16] {
-                    out.extend_from_slice(&if format == SampleFormat::Ci16Be {
-                        v.to_be_bytes()
-                    } else {
-                        v.to_le_bytes()
-                    });
-                }
-                ci || cq
-            }
-            SampleFormat::Ci8 => {
-                let (i, ci) = quant(s.re, 128.0, 0.0, -128, 127);
-                let (q, cq) = quant(s.im, 128.0, 0.0, -128, 127);
-                out.extend_from_slice(&[i as i8 as u8, q as i8 as u8]);
-                ci || cq
-            }
-            SampleFormat::Cu8 => {
-                let (i, ci) = quant(s.re, 127.5, 127.5, 0, 255);
-                let (q, cq) = quant(s.im, 127.5, 127.5, 0, 255);
-                out.extend_from_slice(&[i as u8, q as u8]);
-                ci || cq
-            }
+            s.re.abs() >= 1.0 || s.im.abs() >= 1.0
+        } else {
+            let (i, ci) = quant(s.re, scale, mid, lo, hi);
+            let (q, cq) = quant(s.im, scale, mid, lo, hi);
+            put_int(i, out);
+            put_int(q, out);
+            ci || cq
         };
         clipped += u64::from(c);
     }
     clipped
 }
 
-/// Write `samples` to `path` as `spec` says, atomically; optionally also the
-/// SigMF sidecar `NAME.sigmf-meta` (see [`Capture::open`](super::Capture::open)
-/// for how it is found again).
+/// Write `samples` to `path` as `spec` says, atomically; optionally also a
+/// SigMF sidecar (see the module doc for its name and contents; [`Capture::open`]
+/// finds it again).
+///
+/// [`Capture::open`]: super::Capture::open
 pub fn write_capture(
     path: &Path,
     samples: &[Cf32],
     spec: &WriteSpec,
 ) -> Result<WriteStats, CaptureError> {
-    if spec.sigmf_sidecar && matches!(spec.container, Container::Wav(_)) {
-        return Err(CaptureError::BadWriteSpec {
-            path: path.to_path_buf(),
-            problem:
-                "a SigMF sidecar describes raw samples only; choose a raw format or no sidecar"
-                    .into(),
-        });
-    }
     if !(spec.sample_rate_hz.is_finite() && spec.sample_rate_hz > 0.0) {
         return Err(CaptureError::BadWriteSpec {
             path: path.to_path_buf(),
             problem: format!("sample rate {} Hz is not positive", spec.sample_rate_hz),
         });
     }
+    let sidecar_datatype = match spec.container {
+        Container::Raw(f) => f,
+        Container::Wav(enc) => match wav_equivalent(enc) {
+            Some(f) => f,
+            None if spec.sigmf_sidecar => return Err(CaptureError::BadWriteSpec {
+                path: path.to_path_buf(),
+                problem: format!(
+                    "no SigMF datatype stores {enc} samples; choose another format or no sidecar"
+                ),
+            }),
+            None => SampleFormat::Cf32Le,
+        },
+    };
+    let meta_path = if spec.sigmf_sidecar {
+        Some(sigmf::choose_sidecar_path(path)?)
+    } else {
+        None
+    };
     let clipped = match spec.container {
         Container::Raw(format) => atomic_write(path, |w| {
             let mut buf = Vec::with_capacity(CHUNK * format.bytes_per_sample());
             let mut clipped = 0;
             for chunk in samples.chunks(CHUNK) {
                 buf.clear();
-                clipped += encode_raw(chunk, format, &mut buf);
+                clipped += encode_raw_with(chunk, format, spec.unsigned_zero, &mut buf);
                 w.write_all(&buf)?;
             }
             Ok(clipped)
@@ -146,33 +201,104 @@ pub fn write_capture(
             atomic_write(path, |w| write_wav(w, samples, enc, rate as u32))?
         }
     };
-    if spec.sigmf_sidecar {
-        if let Container::Raw(format) = spec.container {
-            let text = sigmf::sidecar_json(
-                format,
-                spec.sample_rate_hz,
-                spec.center_freq_hz,
-                spec.description.as_deref(),
-            );
-            let meta = sigmf::sidecar_path(path);
-            atomic_write(&meta, |w| w.write_all(text.as_bytes()))?;
-        }
+    if let Some(meta) = &meta_path {
+        let (header_bytes, trailing_bytes) = match spec.container {
+            Container::Raw(_) => (0, 0),
+            Container::Wav(_) => {
+                // Where the writer put the samples: read the header back.
+                let mut f = File::open(path).map_err(|source| CaptureError::Write {
+                    path: path.to_path_buf(),
+                    source,
+                })?;
+                let len = f
+                    .metadata()
+                    .map_err(|source| CaptureError::Write {
+                        path: path.to_path_buf(),
+                        source,
+                    })?
+                    .len();
+                let l = wav::read_header(&mut f, path, len)?;
+                (l.data_offset, len - l.data_offset - l.data_bytes)
+            }
+        };
+        let conforming = sigmf::has_extension(path, "sigmf-data");
+        let doc = sigmf::sidecar_document(&sigmf::SidecarSpec {
+            datatype: sidecar_datatype,
+            sample_rate_hz: spec.sample_rate_hz,
+            center_freq_hz: spec.center_freq_hz,
+            description: spec.description.as_deref(),
+            dataset: (!conforming).then(|| {
+                path.file_name()
+                    .map(|n| n.to_string_lossy().into_owned())
+                    .unwrap_or_default()
+            }),
+            header_bytes,
+            trailing_bytes,
+            annotations: &spec.annotations,
+        });
+        let text = sigmf::document_text(&doc);
+        atomic_write(meta, |w| w.write_all(text.as_bytes()))?;
     }
     Ok(WriteStats {
         samples: samples.len() as u64,
         clipped,
+        sidecar: meta_path,
     })
 }
 
 const CHUNK: usize = 1 << 14;
 
-/// Encode a 2-channel WAV through hound (the independent WAV writer).
+/// A 2-channel 64-bit IEEE float WAV (format tag 3, 18-byte fmt chunk,
+/// `fact` chunk, as the RIFF/WAVE format defines for non-PCM data). Sizes
+/// past the 32-bit RIFF limit are refused.
+fn write_wav_f64(w: &mut AtomicFile, samples: &[Cf32], rate: u32) -> std::io::Result<u64> {
+    let data = samples.len() as u64 * 16;
+    let riff = 4 + (8 + 18) + (8 + 4) + 8 + data;
+    let (Ok(riff), Ok(data32), Ok(frames)) = (
+        u32::try_from(riff),
+        u32::try_from(data),
+        u32::try_from(samples.len()),
+    ) else {
+        return Err(std::io::Error::other(
+            "too long for a RIFF WAV (4 GiB); write a raw format",
+        ));
+    };
+    w.write_all(b"RIFF")?;
+    w.write_all(&riff.to_le_bytes())?;
+    w.write_all(b"WAVEfmt ")?;
+    w.write_all(&18u32.to_le_bytes())?;
+    w.write_all(&3u16.to_le_bytes())?; // WAVE_FORMAT_IEEE_FLOAT
+    w.write_all(&2u16.to_le_bytes())?;
+    w.write_all(&rate.to_le_bytes())?;
+    w.write_all(&(u64::from(rate) as u32).wrapping_mul(16).to_le_bytes())?;
+    w.write_all(&16u16.to_le_bytes())?;
+    w.write_all(&64u16.to_le_bytes())?;
+    w.write_all(&0u16.to_le_bytes())?; // cbSize
+    w.write_all(b"fact")?;
+    w.write_all(&4u32.to_le_bytes())?;
+    w.write_all(&frames.to_le_bytes())?;
+    w.write_all(b"data")?;
+    w.write_all(&data32.to_le_bytes())?;
+    let mut clipped = 0u64;
+    for s in samples {
+        w.write_all(&f64::from(s.re).to_le_bytes())?;
+        w.write_all(&f64::from(s.im).to_le_bytes())?;
+        clipped += u64::from(s.re.abs() >= 1.0 || s.im.abs() >= 1.0);
+    }
+    Ok(clipped)
+}
+
+/// Encode a 2-channel WAV through hound (the independent WAV writer); 64-bit
+/// float, which hound does not write, by [`write_wav_f64`].
 fn write_wav(
     w: &mut AtomicFile,
     samples: &[Cf32],
     enc: WavEncoding,
     rate: u32,
 ) -> std::io::Result<u64> {
+    if enc == WavEncoding::Float64 {
+        return write_wav_f64(w, samples, rate);
+    }
     let spec = hound::WavSpec {
         channels: 2,
         sample_rate: rate,
@@ -189,11 +315,13 @@ fn write_wav(
     };
     let mut wr = hound::WavWriter::new(w, spec).map_err(to_io)?;
     let mut clipped = 0u64;
-    let (scale, lo, hi) = match enc {
+    let (scale, lo, hi): (f64, i64, i64) = match enc {
         WavEncoding::Pcm8 => (128.0, -128, 127),
         WavEncoding::Pcm16 => (32768.0, -32768, 32767),
         WavEncoding::Pcm24 => (8_388_608.0, -(1 << 23), (1 << 23) - 1),
-        WavEncoding::Pcm32 | WavEncoding::Float32 => (2_147_483_648.0, i32::MIN, i32::MAX),
+        WavEncoding::Pcm32 | WavEncoding::Float32 | WavEncoding::Float64 => {
+            (2_147_483_648.0, i32::MIN.into(), i32::MAX.into())
+        }
     };
     for s in samples {
         if enc == WavEncoding::Float32 {
@@ -210,8 +338,8 @@ fn write_wav(
             wr.write_sample(i as i8).map_err(to_io)?;
             wr.write_sample(q as i8).map_err(to_io)?;
         } else {
-            wr.write_sample(i).map_err(to_io)?;
-            wr.write_sample(q).map_err(to_io)?;
+            wr.write_sample(i as i32).map_err(to_io)?;
+            wr.write_sample(q as i32).map_err(to_io)?;
         }
     }
     wr.finalize().map_err(to_io)?;
@@ -221,7 +349,7 @@ fn write_wav(
 /// Write through `f` into a [`crate::atomic::AtomicFile`] beside `path`: the
 /// target appears whole or not at all, and on any error the temporary file is
 /// removed.
-fn atomic_write<T>(
+pub(crate) fn atomic_write<T>(
     path: &Path,
     f: impl FnOnce(&mut AtomicFile) -> std::io::Result<T>,
 ) -> Result<T, CaptureError> {
@@ -266,57 +394,93 @@ mod tests {
             assert_eq!(st.clipped, clipped, "{f}");
             assert_eq!(clipped, 2, "{f}: the -1.0 and the 1.5 sample");
             for (k, (a, b)) in samples.iter().zip(&out).enumerate() {
-                let expect = match f {
-                    SampleFormat::Cu8 => {
-                        let q = |x: f32| {
-                            ((x * 127.5 + 127.5).round().clamp(0.0, 255.0) - 127.5) / 127.5
-                        };
-                        Cf32::new(q(a.re), q(a.im))
+                // The reader's scaling applied to the clamped, rounded code.
+                let bits = 8 * f.component_bytes() as i32;
+                let q = |x: f32| -> f32 {
+                    if f.is_float() {
+                        return x;
                     }
-                    _ if k == 2
-                        && !matches!(
-                            f,
-                            SampleFormat::Cf32Le | SampleFormat::Cf32Be | SampleFormat::Cf64Le
-                        ) =>
-                    {
-                        let top = match f {
-                            SampleFormat::Ci8 => 127.0 / 128.0,
-                            _ => 32767.0 / 32768.0,
-                        };
-                        Cf32::new(top, a.im)
-                    }
-                    _ => *a,
+                    let (z, mid, lo, hi) = if f.is_unsigned() {
+                        let z = UnsignedZero::default().zero_point(bits as u32);
+                        (z, z, 0.0, 2f64.powi(bits) - 1.0)
+                    } else {
+                        let h = 2f64.powi(bits - 1);
+                        (h, 0.0, -h, h - 1.0)
+                    };
+                    let code = (f64::from(x) * z + mid).round().clamp(lo, hi);
+                    ((code - mid) / z) as f32
                 };
+                let expect = Cf32::new(q(a.re), q(a.im));
                 assert_eq!(*b, expect, "{f} sample {k}");
             }
         }
     }
 
     #[test]
-    fn atomic_write_leaves_no_temporary_file_and_sidecar_is_refused_for_wav() {
-        let dir = std::env::temp_dir().join(format!("iqaudit-w-{}", std::process::id()));
-        std::fs::create_dir_all(&dir).unwrap();
+    fn atomic_write_leaves_no_temporary_file_and_sidecar_is_refused_for_pcm24_wav() {
+        let dir = tempfile::tempdir().unwrap();
+        let dir = dir.path();
         let p = dir.join("t.cf32");
         let spec = WriteSpec {
-            container: Container::Raw(SampleFormat::Cf32Le),
-            sample_rate_hz: 1e6,
             center_freq_hz: Some(1e9),
             sigmf_sidecar: true,
-            description: None,
+            ..WriteSpec::new(Container::Raw(SampleFormat::Cf32Le), 1e6)
         };
         let st = write_capture(&p, &[Cf32::new(0.1, 0.2)], &spec).unwrap();
         assert_eq!(st.samples, 1);
-        let names: Vec<_> = std::fs::read_dir(&dir)
+        assert_eq!(
+            st.sidecar.as_deref(),
+            Some(dir.join("t.sigmf-meta").as_path())
+        );
+        let names: Vec<_> = std::fs::read_dir(dir)
             .unwrap()
             .map(|e| e.unwrap().file_name().into_string().unwrap())
             .collect();
         assert!(names.iter().all(|n| !n.ends_with(".tmp")), "{names:?}");
-        assert!(dir.join("t.sigmf-meta").is_file());
         let wav = WriteSpec {
-            container: Container::Wav(WavEncoding::Pcm16),
+            container: Container::Wav(WavEncoding::Pcm24),
             ..spec
         };
-        assert!(write_capture(&dir.join("t.wav"), &[], &wav).is_err());
-        std::fs::remove_dir_all(&dir).unwrap();
+        let e = write_capture(&dir.join("t.wav"), &[], &wav).unwrap_err();
+        assert!(e.to_string().contains("pcm24"), "{e}");
+        assert!(!dir.join("t.wav").exists());
+    }
+
+    #[test]
+    fn a_second_capture_of_the_same_name_gets_its_own_sidecar_and_a_third_is_refused() {
+        let dir = tempfile::tempdir().unwrap();
+        let dir = dir.path();
+        let spec = |f| WriteSpec {
+            sigmf_sidecar: true,
+            ..WriteSpec::new(Container::Raw(f), 1e6)
+        };
+        let s = [Cf32::new(0.5, -0.5)];
+        let a = write_capture(&dir.join("a.ci16"), &s, &spec(SampleFormat::Ci16Le)).unwrap();
+        assert_eq!(a.sidecar, Some(dir.join("a.sigmf-meta")));
+        let b = write_capture(&dir.join("a.cf32"), &s, &spec(SampleFormat::Cf32Le)).unwrap();
+        assert_eq!(b.sidecar, Some(dir.join("a.cf32.sigmf-meta")));
+        // Writing a.ci16 again replaces its own sidecar.
+        let a2 = write_capture(&dir.join("a.ci16"), &s, &spec(SampleFormat::Ci16Le)).unwrap();
+        assert_eq!(a2.sidecar, Some(dir.join("a.sigmf-meta")));
+        // A third file whose both names are taken by others is refused, and
+        // nothing is written.
+        std::fs::write(
+            dir.join("a.cu8.sigmf-meta"),
+            r#"{"global":{"core:datatype":"cu8","core:dataset":"other.cu8"}}"#,
+        )
+        .unwrap();
+        let e = write_capture(&dir.join("a.cu8"), &s, &spec(SampleFormat::Cu8)).unwrap_err();
+        assert!(matches!(e, CaptureError::SidecarTaken { .. }), "{e}");
+        assert!(e.to_string().contains("a.ci16"), "{e}");
+        assert!(!dir.join("a.cu8").exists());
+        // Each file opens with its own sidecar's datatype.
+        for (name, f) in [
+            ("a.ci16", SampleFormat::Ci16Le),
+            ("a.cf32", SampleFormat::Cf32Le),
+        ] {
+            let c = Capture::open(&dir.join(name), &Default::default()).unwrap();
+            assert_eq!(c.container(), Container::Raw(f), "{name}");
+            assert_eq!(c.format_source(), super::super::FormatSource::Sigmf);
+        }
     }
 }

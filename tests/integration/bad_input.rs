@@ -97,7 +97,7 @@ fn a_sigmf_sidecar_with_an_unknown_datatype_or_invalid_json_is_exit_2_naming_the
     fails_clearly(
         &[&bad("unknown-datatype.sigmf-data")],
         "unknown-datatype.sigmf-meta",
-        &["ri16_le", "unsupported"],
+        &["ri16_le", "real-valued", "complex samples"],
     );
     fails_clearly(
         &[&bad("bad-json.sigmf-data")],

@@ -172,6 +172,8 @@ fn the_writer_round_trips_every_wav_encoding_and_counts_the_clipping_the_reader_
             center_freq_hz: None,
             sigmf_sidecar: false,
             description: None,
+            annotations: Vec::new(),
+            unsigned_zero: Default::default(),
         };
         let ws = write_capture(&p, &samples, &spec).unwrap();
         let cap = Capture::open(&p, &OpenOptions::default()).unwrap();
@@ -180,13 +182,14 @@ fn the_writer_round_trips_every_wav_encoding_and_counts_the_clipping_the_reader_
         assert_eq!(st.clipped, ws.clipped, "{enc}");
         assert!(ws.clipped > 0, "{enc}: the 1.2 amplitude must clip");
         // Quantisation error bound: half a code step, 2^-(bits-1)/2 (float: exact).
-        let step = if enc == WavEncoding::Float32 {
+        let float = matches!(enc, WavEncoding::Float32 | WavEncoding::Float64);
+        let step = if float {
             0.0
         } else {
             2f32.powi(1 - i32::from(enc.bits()))
         };
         for (a, b) in samples.iter().zip(&got) {
-            let ca = if enc == WavEncoding::Float32 {
+            let ca = if float {
                 *a
             } else {
                 Cf32::new(a.re.clamp(-1.0, 1.0 - step), a.im.clamp(-1.0, 1.0 - step))
@@ -211,6 +214,8 @@ fn a_sigmf_sidecar_gives_format_rate_and_frequency_and_yields_only_to_the_option
             center_freq_hz: Some(433.92e6),
             sigmf_sidecar: true,
             description: Some("quayside crane telemetry".into()),
+            annotations: Vec::new(),
+            unsigned_zero: Default::default(),
         },
     )
     .unwrap();
@@ -228,6 +233,7 @@ fn a_sigmf_sidecar_gives_format_rate_and_frequency_and_yields_only_to_the_option
             format: Some(SampleFormat::Cu8),
             sample_rate_hz: Some(2e6),
             swap_iq: false,
+            unsigned_zero: Default::default(),
         },
     )
     .unwrap();
@@ -242,6 +248,8 @@ fn a_sigmf_sidecar_gives_format_rate_and_frequency_and_yields_only_to_the_option
         center_freq_hz: None,
         sigmf_sidecar: true,
         description: None,
+        annotations: Vec::new(),
+        unsigned_zero: Default::default(),
     };
     write_capture(&d, &samples, &spec).unwrap();
     for name in ["pair.sigmf-data", "pair.sigmf-meta"] {

@@ -45,6 +45,8 @@ fn a_tone_with_dc_gives_closed_form_power_peak_papr_and_dc() {
         center_freq_hz: Some(915e6),
         sigmf_sidecar: true,
         description: None,
+        annotations: Vec::new(),
+        unsigned_zero: Default::default(),
     };
     write_capture(&p, &x, &spec).unwrap();
     let (j, _) = info_json(&[p.as_os_str()]);
@@ -142,6 +144,8 @@ fn text_output_names_every_figure_and_wav_rate_comes_from_the_header() {
         center_freq_hz: None,
         sigmf_sidecar: false,
         description: None,
+        annotations: Vec::new(),
+        unsigned_zero: Default::default(),
     };
     write_capture(&p, &x, &spec).unwrap();
     let out = iqaudit().arg("info").arg(&p).output().unwrap();

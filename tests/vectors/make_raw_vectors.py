@@ -1,7 +1,7 @@
 #!/usr/bin/env python3
 """Independent writer of raw IQ byte layouts for iqaudit's reader tests.
 
-Writes one small file per SigMF complex datatype (tests/vectors/vec.<datatype>)
+Writes one small file per SigMF complex datatype (all fourteen) (tests/vectors/vec.<datatype>)
 with numpy's own dtype encoders, and tests/vectors/expected.json holding, per
 datatype, the decoded value of every sample at full scale 1.0 (computed here in
 float64 from the integer codes, following the scaling in iqaudit's src/lib.rs),
@@ -18,13 +18,22 @@ import numpy as np
 HERE = os.path.dirname(os.path.abspath(__file__))
 
 # (datatype, numpy dtype of one component, full-scale divisor, mid-scale)
+# Unsigned types use iqaudit's default zero point (2^bits - 1)/2
+# ("symmetric"; the SigMF reference library's 2^(bits-1) is checked against
+# that library itself in tests/sigmf/).
 INTS = [
+    ("ci32_le", "<i4", 2.0**31, 0.0),
+    ("ci32_be", ">i4", 2.0**31, 0.0),
     ("ci16_le", "<i2", 32768.0, 0.0),
     ("ci16_be", ">i2", 32768.0, 0.0),
     ("ci8", "i1", 128.0, 0.0),
+    ("cu32_le", "<u4", 2147483647.5, 2147483647.5),
+    ("cu32_be", ">u4", 2147483647.5, 2147483647.5),
+    ("cu16_le", "<u2", 32767.5, 32767.5),
+    ("cu16_be", ">u2", 32767.5, 32767.5),
     ("cu8", "u1", 127.5, 127.5),
 ]
-FLOATS = [("cf32_le", "<f4"), ("cf32_be", ">f4"), ("cf64_le", "<f8")]
+FLOATS = [("cf32_le", "<f4"), ("cf32_be", ">f4"), ("cf64_le", "<f8"), ("cf64_be", ">f8")]
 
 
 def int_codes(dtype):
