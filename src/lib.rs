@@ -37,9 +37,13 @@
 //! ## Conventions (apply everywhere in the crate)
 //!
 //! * **Samples** are [`Cf32`] (`Complex<f32>`). Integer capture formats are scaled
-//!   so that full scale is 1.0: `ci16` divides by 32768, `ci8` by 128, `cu8` maps
-//!   code `x` to `(x − 127.5) / 127.5`; PCM WAV likewise. A sample sitting at the
-//!   most negative or most positive integer code counts as clipped.
+//!   so that full scale is 1.0: signed codes divide by 2^(bits−1) (`ci8` by 128,
+//!   `ci16` by 32768, `ci32` by 2³¹); unsigned codes (`cu8`, `cu16`, `cu32`) map
+//!   `x` to `(x − z)/z` with the zero point `z` of [`UnsignedZero`] — by default
+//!   `(2^bits − 1)/2` (127.5 for `cu8`), optionally `2^(bits−1)` (128, the SigMF
+//!   reference library's); PCM WAV likewise (8-bit WAV PCM has its zero at 128).
+//!   A sample sitting at the most negative or most positive integer code counts as
+//!   clipped.
 //! * **Carrier frequency offset** (`cfo_hz`): the received signal is the ideal
 //!   baseband signal multiplied by `exp(+j·2π·cfo_hz·t)`, so a positive `cfo_hz`
 //!   means the received carrier sits above the nominal one. Correction multiplies

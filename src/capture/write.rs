@@ -165,12 +165,14 @@ pub fn write_capture(
         Container::Raw(f) => f,
         Container::Wav(enc) => match wav_equivalent(enc) {
             Some(f) => f,
-            None if spec.sigmf_sidecar => return Err(CaptureError::BadWriteSpec {
-                path: path.to_path_buf(),
-                problem: format!(
+            None if spec.sigmf_sidecar => {
+                return Err(CaptureError::BadWriteSpec {
+                    path: path.to_path_buf(),
+                    problem: format!(
                     "no SigMF datatype stores {enc} samples; choose another format or no sidecar"
                 ),
-            }),
+                })
+            }
             None => SampleFormat::Cf32Le,
         },
     };

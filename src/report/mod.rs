@@ -3,6 +3,7 @@
 //! Takes the per-burst results of the analysis and gives the report document
 //! (schema `iqaudit-report/2`), the terminal summary and the plots.
 
+pub mod annotations;
 pub mod capture_plots;
 pub mod compare;
 pub mod metrics;

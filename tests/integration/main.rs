@@ -19,6 +19,7 @@ mod profile;
 mod recheck_outputs;
 mod sample_captures;
 mod sidecars;
+mod sigmf_library;
 mod sigmf_reference;
 mod signal;
 mod sync;
