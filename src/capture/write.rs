@@ -22,8 +22,8 @@
 //! so a refusal (another capture's sidecar in the way) leaves no file behind.
 
 use crate::atomic::{AtomicFile, WriteError};
-use std::io::Write;
 use std::fs::File;
+use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use super::{

@@ -36,7 +36,7 @@ pub fn burst_annotations(
     center_freq_hz: &dyn Fn(&BurstReport) -> Option<f64>,
 ) -> Vec<SigmfAnnotation> {
     let p = &report.profile;
-    let fs = report.input.sample_rate_hz.unwrap_or(0.0);
+    let fs = report.input.sample_rate_hz;
     let sps = num(p, &["samples_per_symbol"]).unwrap_or(1.0).max(1.0);
     let rs = num(p, &["symbol_rate_hz"]).unwrap_or(fs / sps);
     let per_symbol = if rs > 0.0 { fs / rs } else { sps };
