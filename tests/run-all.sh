@@ -21,6 +21,18 @@ if [ "${#missing[@]}" -gt 0 ]; then
   apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq "${missing[@]}"
 fi
 
+# ---- SigMF reference library for the interchange checks (#18) ---------------
+# tests/integration/sigmf_library.rs has the SigMF project's Python library
+# validate and read every sidecar synth/analyse/batch write; under CI a missing
+# package fails that test instead of skipping it. numpy comes with it.
+if ! python3 -c "import sigmf, numpy" >/dev/null 2>&1; then
+  python3 -m pip install --quiet "sigmf==1.14.0" \
+    || python3 -m pip install --quiet --break-system-packages "sigmf==1.14.0"
+fi
+python3 -c "import sigmf; print('ci: SigMF reference library', sigmf.__version__)"
+export IQAUDIT_REQUIRE_SIGMF=1
+# ---- end of the SigMF block -----------------------------------------------------
+
 cargo test --release
 
 # ---- Slurm: docs/scaling.md's array job on a single-node cluster (#22) --------
