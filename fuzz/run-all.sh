@@ -9,10 +9,10 @@ cd "$(dirname "$0")"
 secs="${1:-180}"
 export RUSTC_BOOTSTRAP=1
 cargo fuzz build
-targets=(raw_capture wav_capture sigmf_meta profile report)
+targets=(raw_capture wav_capture sigmf_meta profile report recheck)
 run() {
   local t="$1" extra=()
-  [[ "$t" == report ]] && extra=(-max_len=65536)
+  [[ "$t" == report || "$t" == recheck ]] && extra=(-max_len=65536)
   mkdir -p "corpus/$t"
   cargo fuzz run "$t" "corpus/$t" "seeds/$t" -- -max_total_time="$secs" \
     -rss_limit_mb=2048 -timeout=10 -print_final_stats=1 "${extra[@]}" \

@@ -126,25 +126,43 @@ pub enum Outcome {
     Exit(u8),
 }
 
+/// The command line as recorded in reports and truth files: the program name
+/// without its path, then every argument as given. Arguments that are not
+/// UTF-8 are recorded lossily (invalid bytes become U+FFFD); the paths
+/// themselves are used exactly as given (clap keeps them as `OsString`).
+pub fn recorded_argv() -> Vec<String> {
+    std::iter::once("iqaudit".to_string())
+        .chain(
+            std::env::args_os()
+                .skip(1)
+                .map(|a| a.to_string_lossy().into_owned()),
+        )
+        .collect()
+}
+
 /// Run one command.
 pub fn run(cli: Cli) -> Result<Outcome, Error> {
-    let argv = || -> Vec<String> {
-        std::iter::once("iqaudit".to_string())
-            .chain(std::env::args().skip(1))
-            .collect()
+    let argv = recorded_argv;
+    // Commands that write files delete their temporary files on SIGINT/SIGTERM
+    // (batch installs its own, cooperative, handler).
+    let plain_signals = || {
+        let _ = iqaudit::atomic::remove_temps_on_signal(None);
     };
     match cli.command {
-        Command::Analyse(args) => analyse::run_analyse(&args, &argv()),
+        Command::Analyse(args) => {
+            plain_signals();
+            analyse::run_analyse(&args, &argv())
+        }
         Command::Batch(args) => batch::run_batch_cmd(&args, &argv()),
         Command::Recheck(args) => analyse::run_recheck(&args),
-        Command::Info(args) => run_info(&args),
+        Command::Info(args) => {
+            plain_signals();
+            run_info(&args)
+        }
         Command::Profile(args) => profile_synth::run_profile(&args),
         Command::Synth(args) => {
-            // Recorded in the truth file: the program name without its path.
-            let argv: Vec<String> = std::iter::once("iqaudit".to_string())
-                .chain(std::env::args().skip(1))
-                .collect();
-            profile_synth::run_synth(&args, &argv)
+            plain_signals();
+            profile_synth::run_synth(&args, &argv())
         }
     }
 }
@@ -162,7 +180,11 @@ pub fn exit_code(result: Result<Outcome, Error>) -> ExitCode {
             ExitCode::SUCCESS
         }
         Err(e) => {
-            eprintln!("iqaudit: {e}");
+            // Names and excerpts in the message may come from hostile files.
+            eprintln!(
+                "iqaudit: {}",
+                iqaudit::text::escape_controls(&e.to_string())
+            );
             ExitCode::from(2)
         }
     }
@@ -238,8 +260,8 @@ fn run_info(args: &InfoArgs) -> Result<Outcome, Error> {
     for w in &report.warnings {
         eprintln!(
             "iqaudit: warning: {}: {}",
-            args.capture.display(),
-            w.message
+            iqaudit::text::escaped_path(&args.capture),
+            iqaudit::text::escape_controls(&w.message)
         );
     }
     let text = if args.json {

@@ -48,7 +48,9 @@ pub enum Error {
         message: String,
     },
     /// The capture named in a report is not the one that was analysed.
-    #[error("{}: the capture changed since the report was written (SHA-256 {found}, report says {expected})", path.display())]
+    /// The message says "differs" and states neither digest: the report may
+    /// name any file, and its digest is not shown to whoever sent the report.
+    #[error("{}: the capture changed since the report was written (its SHA-256 differs from the one recorded)", path.display())]
     InputChanged {
         /// The capture.
         path: PathBuf,

@@ -96,6 +96,7 @@ pub mod report;
 pub mod signal;
 pub mod sync;
 pub mod synth;
+pub mod text;
 
 pub use capture::{
     write_capture, AnnotationTarget, Capture, CaptureError, CaptureNote, Container, OpenOptions,

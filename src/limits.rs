@@ -23,6 +23,8 @@ pub const MAX_PROFILE_BYTES: u64 = 16 << 20;
 /// Largest report read by `recheck`, bytes (traces are decimated, so reports
 /// stay in the megabytes).
 pub const MAX_REPORT_BYTES: u64 = 256 << 20;
+/// Largest batch summary (`summary*.jsonl`) read by `batch --merge`, bytes.
+pub const MAX_SUMMARY_BYTES: u64 = 1 << 30;
 /// Largest symbols file read, bytes (one `re im` pair per line).
 pub const MAX_SYMBOLS_FILE_BYTES: u64 = 256 << 20;
 /// Longest training sequence, symbols (PRBS and Zadoff-Chu lengths).
@@ -33,11 +35,86 @@ pub const MAX_PAYLOAD_SYMBOLS: usize = 1 << 24;
 pub const MAX_SAMPLES_PER_SYMBOL: u32 = 1024;
 /// Longest pulse span, symbols.
 pub const MAX_SPAN_SYMBOLS: u32 = 1024;
+/// Longest frame, samples: `(payload + training symbols) × samples_per_symbol`
+/// (the product is capped, not only each factor; 2^25 samples = 256 MiB of
+/// complex f32).
+pub const MAX_FRAME_SAMPLES: usize = 1 << 25;
+/// Most taps of the pulse filter, `span_symbols × samples_per_symbol + 1`.
+pub const MAX_PULSE_TAPS: usize = 1 << 16;
 /// Most pre-cursor or post-cursor taps a channel fit may be asked for (each side).
 pub const MAX_CURSOR_TAPS: usize = 256;
 /// Most feedforward or feedback equaliser taps (the MMSE-DFE design solves a
 /// dense system of this order).
 pub const MAX_EQUALISER_TAPS: usize = 512;
+
+/// Open `path` for reading only if it is a regular file, without ever blocking:
+/// the file is opened with `O_NONBLOCK` (so a FIFO swapped in after any earlier
+/// check does not block the open; the flag changes nothing for a regular file)
+/// and the *open descriptor* is checked with `fstat`. Returns the file and its
+/// length in bytes.
+///
+/// # Errors
+/// `InvalidInput` ("not a regular file") for a folder, FIFO, socket or device;
+/// any OS error from `open` or `fstat`.
+pub fn open_regular(path: &Path) -> io::Result<(std::fs::File, u64)> {
+    let mut opts = std::fs::OpenOptions::new();
+    opts.read(true);
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::OpenOptionsExt;
+        opts.custom_flags(libc::O_NONBLOCK);
+    }
+    // A folder opens on Unix; the fstat below refuses it.
+    let file = opts.open(path)?;
+    let meta = file.metadata()?;
+    if !meta.is_file() {
+        return Err(not_regular());
+    }
+    Ok((file, meta.len()))
+}
+
+fn not_regular() -> io::Error {
+    io::Error::new(
+        io::ErrorKind::InvalidInput,
+        "not a regular file (a directory, FIFO or device?)",
+    )
+}
+
+/// Largest capture file hashed or read, bytes (2^50 = 1 PiB): a file whose
+/// size is above it is refused. Reads never go past the size the file had when
+/// it was opened.
+pub const MAX_CAPTURE_BYTES: u64 = 1 << 50;
+
+/// Most samples `synth` may be asked to write in one capture (2^27 = 134 M
+/// samples, 1 GiB of cf32): the product `lead_gap + bursts × (frame + largest
+/// gap)` is checked before anything is generated.
+pub const MAX_SYNTH_SAMPLES: u64 = 1 << 27;
+
+/// `--jobs` may ask for at most this many worker threads per core
+/// (`std::thread::available_parallelism`); more is refused as a usage error.
+pub const MAX_JOBS_PER_CORE: usize = 4;
+
+/// The largest `--jobs` value on this machine: [`MAX_JOBS_PER_CORE`] × cores.
+pub fn max_jobs() -> usize {
+    let cores = std::thread::available_parallelism()
+        .map(|n| n.get())
+        .unwrap_or(1);
+    cores.saturating_mul(MAX_JOBS_PER_CORE)
+}
+
+/// Check a `--jobs` value: 1 ..= [`max_jobs`].
+///
+/// # Errors
+/// A one-line message naming the value and the allowed range.
+pub fn check_jobs(n: usize) -> Result<usize, String> {
+    let max = max_jobs();
+    if n == 0 || n > max {
+        return Err(format!(
+            "--jobs {n}: expected 1..={max} ({MAX_JOBS_PER_CORE} per core on this machine)"
+        ));
+    }
+    Ok(n)
+}
 
 /// Read a small UTF-8 text input of at most `max_bytes` bytes.
 ///
@@ -48,17 +125,14 @@ pub const MAX_EQUALISER_TAPS: usize = 512;
 pub fn read_small_text(path: &Path, max_bytes: u64) -> io::Result<String> {
     let meta = std::fs::metadata(path)?;
     if !meta.is_file() {
-        return Err(io::Error::new(
-            io::ErrorKind::InvalidInput,
-            "not a regular file (a directory, FIFO or device?)",
-        ));
+        return Err(not_regular());
     }
-    if meta.len() > max_bytes {
-        return Err(too_large(meta.len(), max_bytes));
+    let (file, len) = open_regular(path)?;
+    if len > max_bytes {
+        return Err(too_large(len, max_bytes));
     }
-    let file = std::fs::File::open(path)?;
     // The file may grow after the check: never read more than the cap + 1 byte.
-    let mut bytes = Vec::with_capacity(meta.len() as usize);
+    let mut bytes = Vec::with_capacity(len as usize);
     file.take(max_bytes + 1).read_to_end(&mut bytes)?;
     if bytes.len() as u64 > max_bytes {
         return Err(too_large(bytes.len() as u64, max_bytes));

@@ -168,6 +168,22 @@ pub fn parse_recorded_report(text: &str, report_path: &Path) -> Result<RecordedR
 /// when the capture is missing; [`Error::InputChanged`] when its SHA-256 differs
 /// from the recorded one; and any error of [`analyse_capture`].
 pub fn recheck(report_path: &Path) -> Result<RecheckResult, Error> {
+    recheck_with(report_path, false, &|_| {})
+}
+
+/// [`recheck`], with the opt-in for symbols files outside the report's folder
+/// and `notice`, called with every file the recheck will read (the capture,
+/// the sidecar it may use, the symbols files) after the report is checked and
+/// before any of them is opened.
+///
+/// # Errors
+/// As [`recheck`]; a symbols file outside the report's folder without
+/// `allow_outside_symbols` is an [`Error::Profile`].
+pub fn recheck_with(
+    report_path: &Path,
+    allow_outside_symbols: bool,
+    notice: &dyn Fn(&[PathBuf]),
+) -> Result<RecheckResult, Error> {
     let bad = |message: String| Error::Report {
         path: report_path.to_path_buf(),
         message,
@@ -184,15 +200,37 @@ pub fn recheck(report_path: &Path) -> Result<RecheckResult, Error> {
         format,
     } = parse_recorded_report(&text, report_path)?;
     drop(text);
+    let report_dir = match report_path.parent() {
+        Some(d) if !d.as_os_str().is_empty() => d,
+        _ => Path::new("."),
+    };
+    if !allow_outside_symbols {
+        crate::profile::check_symbols_files_inside(&profile, report_dir).map_err(|e| {
+            Error::Profile(crate::profile::ProfileError::InFile {
+                path: report_path.to_path_buf(),
+                source: Box::new(e),
+            })
+        })?;
+    }
     let input = locate_input(report_path, &report.input.path);
     check_sidecar(&report, &input)?;
-    let found = sha256_file(&input).map_err(|source| Error::Io {
-        path: input.clone(),
+    // The digest is of the sample data: a `.sigmf-meta` path stands for its
+    // `.sigmf-data`, as in `analyse`.
+    let data = crate::capture::data_path_of(&input);
+    let mut reads = vec![data.clone()];
+    reads.extend(
+        crate::profile::symbols_files(&profile)
+            .into_iter()
+            .map(|(_, p)| p),
+    );
+    notice(&reads);
+    let found = sha256_file(&data).map_err(|source| Error::Io {
+        path: data.clone(),
         source,
     })?;
     if !found.eq_ignore_ascii_case(&report.input.sha256) {
         return Err(Error::InputChanged {
-            path: input,
+            path: data,
             expected: report.input.sha256.clone(),
             found,
         });

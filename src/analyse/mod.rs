@@ -138,7 +138,9 @@ pub fn analyse_capture(
     }
     // The SHA-256 of the whole file is a second pass over it: run it beside the
     // search and the bursts (same bytes, same digest) instead of after them.
-    let hash_path = path.to_path_buf();
+    // The data file (a `.sigmf-meta` path stands for its `.sigmf-data`): the
+    // digest is always of the samples analysed.
+    let hash_path = capture.path().to_path_buf();
     let known = match (&opts.input_sha256, opts.skip_input_hash) {
         (Some(d), _) => Some(d.clone()),
         (None, true) => Some(String::new()),

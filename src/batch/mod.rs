@@ -589,10 +589,11 @@ enum Reuse {
 /// report's profile, overrides and input size all match.
 fn try_reuse(opts: &BatchOptions, e: &Entry, report_path: &Path, report_rel: &str) -> Reuse {
     let stale = Reuse::Stale { sha256: None };
-    let Ok(text) = fs::read(report_path) else {
+    let Ok(text) = crate::limits::read_small_text(report_path, crate::limits::MAX_REPORT_BYTES)
+    else {
         return stale;
     };
-    let Ok(report) = serde_json::from_slice::<Report>(&text) else {
+    let Ok(report) = serde_json::from_str::<Report>(&text) else {
         return stale;
     };
     let p = &report.provenance;

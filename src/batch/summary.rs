@@ -293,10 +293,13 @@ pub enum MergeError {
 
 /// Read the rows of one `summary*.jsonl` file (blank lines ignored).
 pub fn read_summary_jsonl(path: &Path) -> Result<Vec<SummaryRow>, MergeError> {
-    let text = std::fs::read_to_string(path).map_err(|source| MergeError::Read {
-        path: path.to_path_buf(),
-        source,
-    })?;
+    // A regular file of bounded size only (never /dev/zero or a FIFO).
+    let text = crate::limits::read_small_text(path, crate::limits::MAX_SUMMARY_BYTES).map_err(
+        |source| MergeError::Read {
+            path: path.to_path_buf(),
+            source,
+        },
+    )?;
     let mut rows = Vec::new();
     for (i, line) in text.lines().enumerate() {
         if line.trim().is_empty() {

@@ -18,18 +18,21 @@
 //! have decoded it: the pages leave the process (they stay in the kernel's page
 //! cache, so reading them again costs a minor fault, not a disk read).
 //!
-//! Truncation while mapped: touching a mapped page that lies past the file's
-//! current end raises SIGBUS, which no `Result` can catch. So every access to a
-//! mapped range first asks the kernel for the file's current length (`fstat` on
-//! the open descriptor, [`Source::ensure_present`]) and returns an
-//! `UnexpectedEof` error when the range is gone. Callers access the map in
-//! chunks, so the check costs one system call per chunk; it leaves only the
-//! window between that call and the copy of one chunk (docs/robustness.md).
+//! Truncation: touching a mapped page that lies past the file's current end
+//! raises SIGBUS, which no `Result` can catch, and a check of the length
+//! before each chunk (kept below as [`Source::ensure_present`]) still leaves
+//! the scan of that chunk exposed. So [`Capture::open`](super::Capture::open)
+//! — every command of the binary — reads files with positioned reads
+//! ([`Access::ReadOnly`]): a file that shrinks while it is read gives an
+//! `UnexpectedEof` error ("the file shrank to N bytes while open"), never a
+//! signal. Measured as fast as the map on this crate's search
+//! (docs/performance.md). The map is used only when a library caller asks
+//! for it ([`Capture::open_mapped`](super::Capture::open_mapped)) and accepts
+//! that hazard (docs/robustness.md).
 
 use std::cell::RefCell;
 use std::fs::File;
-use std::io::{self, Read, Seek, SeekFrom};
-use std::sync::Mutex;
+use std::io;
 
 use memmap2::Mmap;
 
@@ -48,8 +51,8 @@ pub(crate) enum Source {
     Memory(Vec<u8>),
     /// Positioned reads from the file (fallback when mapping is not possible).
     File {
-        /// The open file; reads seek then read, under the lock.
-        file: Mutex<File>,
+        /// The open file, read with positioned reads (no shared position).
+        file: File,
         /// File length in bytes at open time.
         len: u64,
     },
@@ -105,10 +108,7 @@ impl Source {
                 }
             }
         }
-        Source::File {
-            file: Mutex::new(file),
-            len,
-        }
+        Source::File { file, len }
     }
 
     /// Total length in bytes.
@@ -231,14 +231,62 @@ impl Source {
         READ_SCRATCH.with(|cell| {
             let mut buf = cell.borrow_mut();
             buf.resize(len, 0);
-            {
-                let mut guard = file
-                    .lock()
-                    .map_err(|_| io::Error::other("capture file lock poisoned"))?;
-                guard.seek(SeekFrom::Start(offset))?;
-                guard.read_exact(&mut buf[..len])?;
-            }
+            read_at(file, offset, &mut buf[..len]).map_err(|e| {
+                if e.kind() == io::ErrorKind::UnexpectedEof {
+                    shrank(file, offset + len as u64)
+                } else {
+                    e
+                }
+            })?;
             Ok(f(&buf[..len]))
         })
+    }
+}
+
+/// The error for a range that vanished: the file is shorter than `end` now.
+fn shrank(file: &File, end: u64) -> io::Error {
+    let now = file
+        .metadata()
+        .map(|m| m.len().to_string())
+        .unwrap_or_else(|_| "fewer".to_string());
+    io::Error::new(
+        io::ErrorKind::UnexpectedEof,
+        format!(
+            "the file shrank to {now} bytes while open (truncated by another process?); \
+             {end} bytes are needed"
+        ),
+    )
+}
+
+/// Fill `buf` from byte `offset` of the file with positioned reads (`pread` on
+/// Unix, `ReadFile` with an offset on Windows): no lock and no shared file
+/// position, so threads read in parallel. A file shorter than the range gives
+/// `UnexpectedEof` — never a signal.
+fn read_at(file: &File, offset: u64, buf: &mut [u8]) -> io::Result<()> {
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::FileExt;
+        file.read_exact_at(buf, offset)
+    }
+    #[cfg(windows)]
+    {
+        use std::os::windows::fs::FileExt;
+        let mut done = 0;
+        while done < buf.len() {
+            match file.seek_read(&mut buf[done..], offset + done as u64) {
+                Ok(0) => return Err(io::ErrorKind::UnexpectedEof.into()),
+                Ok(n) => done += n,
+                Err(e) if e.kind() == io::ErrorKind::Interrupted => {}
+                Err(e) => return Err(e),
+            }
+        }
+        Ok(())
+    }
+    #[cfg(not(any(unix, windows)))]
+    {
+        let _ = (file, offset, buf);
+        Err(io::Error::other(
+            "positioned reads are not supported on this platform",
+        ))
     }
 }

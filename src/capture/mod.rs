@@ -771,7 +771,9 @@ impl Capture {
     /// Open the capture at `path`, memory-mapping it (falls back to buffered reads
     /// when mapping fails). See the module doc for how the format is resolved.
     pub fn open(path: &Path, opts: &OpenOptions) -> Result<Capture, CaptureError> {
-        Capture::open_with(path, opts, Access::MapOrRead)
+        // Positioned reads: a file truncated while it is read gives a read
+        // error ("the file shrank …"), never SIGBUS (issue 16).
+        Capture::open_with(path, opts, Access::ReadOnly)
     }
 
     /// Like [`open`](Self::open) but never memory-maps: every range is read with
@@ -779,6 +781,16 @@ impl Capture {
     /// the tests that check both paths agree).
     pub fn open_unmapped(path: &Path, opts: &OpenOptions) -> Result<Capture, CaptureError> {
         Capture::open_with(path, opts, Access::ReadOnly)
+    }
+
+    /// Open with a read-only memory map (falling back to positioned reads when
+    /// mapping fails): zero-copy for `cf32_le`. Only for a file nobody truncates
+    /// while it is open: touching a range that another process cut off raises
+    /// SIGBUS, which the length check before each chunk
+    /// ([`ensure_present`](Self::ensure_present)) narrows but cannot close. The
+    /// binary never uses it (docs/robustness.md).
+    pub fn open_mapped(path: &Path, opts: &OpenOptions) -> Result<Capture, CaptureError> {
+        Capture::open_with(path, opts, Access::MapOrRead)
     }
 
     fn open_with(path: &Path, opts: &OpenOptions, access: Access) -> Result<Capture, CaptureError> {
@@ -822,8 +834,15 @@ impl Capture {
         if !meta.is_file() {
             return Err(CaptureError::NotAFile { path: data_path });
         }
-        let mut file = File::open(&data_path).map_err(open_err)?;
-        let file_len = file.metadata().map_err(open_err)?.len();
+        // Opened without blocking and checked again on the descriptor (a FIFO
+        // swapped in after the check above is refused, not waited on).
+        let (mut file, file_len) = match crate::limits::open_regular(&data_path) {
+            Ok(f) => f,
+            Err(e) if e.kind() == std::io::ErrorKind::InvalidInput => {
+                return Err(CaptureError::NotAFile { path: data_path })
+            }
+            Err(e) => return Err(open_err(e)),
+        };
         let sidecar = match sidecar {
             Some(s) => Some(s),
             None => sigmf::find_sidecar(&data_path, &mut notes)?,
@@ -1542,6 +1561,16 @@ fn resolve_layout(
     })
 }
 
+/// The file holding the samples of the capture named `path`: a `.sigmf-meta`
+/// path stands for its `.sigmf-data` recording, anything else for itself.
+pub fn data_path_of(path: &Path) -> PathBuf {
+    if sigmf::has_extension(path, "sigmf-meta") {
+        path.with_extension("sigmf-data")
+    } else {
+        path.to_path_buf()
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -1569,7 +1598,7 @@ mod tests {
             let p = dir.path().join(format!("shrinking.{ext}"));
             let bytes: Vec<u8> = (0..(1usize << 20)).map(|i| (i % 251) as u8).collect();
             std::fs::write(&p, &bytes).unwrap();
-            let cap = Capture::open(&p, &OpenOptions::default()).unwrap();
+            let cap = Capture::open_mapped(&p, &OpenOptions::default()).unwrap();
             assert_eq!(cap.access_path(), "mmap");
             let len = cap.len();
             assert_eq!(len, bytes.len() / bps);

@@ -7,8 +7,8 @@ use std::path::{Path, PathBuf};
 use clap::Args;
 use iqaudit::analyse::{analyse_capture, AnalyseOptions};
 use iqaudit::atomic::{ensure_not_an_input, write_atomic};
-use iqaudit::profile::load_profile;
-use iqaudit::recheck::recheck;
+use iqaudit::profile::load_profile_with;
+use iqaudit::recheck::recheck_with;
 use iqaudit::report::plots::write_plots;
 use iqaudit::report::schema::{Report, VerdictResult};
 use iqaudit::{Constellation, Error};
@@ -56,6 +56,15 @@ pub struct AnalyseArgs {
     #[arg(long, short = 'j', value_name = "N")]
     pub jobs: Option<usize>,
 
+    /// Read symbols files named by the profile even outside the profile's folder.
+    ///
+    /// Without it, a `symbols_file` training or known payload must lie inside
+    /// the folder of the profile (also of `CAPTURE.profile.json` when that is
+    /// used), so a profile from someone else cannot make the tool read, and
+    /// quote from, an arbitrary file.
+    #[arg(long)]
+    pub allow_outside_symbols: bool,
+
     /// Keep plot traces for the first K bursts and the K worst by RMS EVM
     /// (default 8, at most 1000; 0 keeps none). Other bursts report `trace: null`.
     #[arg(long, value_name = "K")]
@@ -79,6 +88,13 @@ pub struct RecheckArgs {
     /// document order, each {path, recorded, recomputed} as compact JSON text).
     #[arg(long)]
     pub json: bool,
+
+    /// Read symbols files the recorded profile names even outside the report's folder.
+    ///
+    /// Without it, every symbols file must lie inside the folder of the report,
+    /// so a report from someone else cannot make the tool read an arbitrary file.
+    #[arg(long)]
+    pub allow_outside_symbols: bool,
 }
 
 /// Schema id of `recheck --json`.
@@ -147,9 +163,11 @@ fn input_paths(capture: &Path, profile: &Path) -> Vec<PathBuf> {
     ]
 }
 
-/// Fail early when an output could not be written or would replace an input.
+/// Fail early when an output could not be written, would replace an input, or
+/// is not a regular file (links, folders, FIFOs, devices, `-` are refused).
 fn check_output(path: &Path, inputs: &[&Path]) -> Result<(), Error> {
     ensure_not_an_input(path, inputs)?;
+    iqaudit::atomic::ensure_replaceable(path)?;
     let dir = match path.parent() {
         Some(d) if !d.as_os_str().is_empty() => d,
         _ => Path::new("."),
@@ -163,6 +181,12 @@ fn check_output(path: &Path, inputs: &[&Path]) -> Result<(), Error> {
         });
     }
     Ok(())
+}
+
+/// The `--jobs` value checked against [`iqaudit::limits::max_jobs`].
+pub(crate) fn checked_jobs(jobs: Option<usize>) -> Result<Option<usize>, Error> {
+    jobs.map(|n| iqaudit::limits::check_jobs(n).map_err(|message| Error::Usage { message }))
+        .transpose()
 }
 
 /// Run `iqaudit analyse`.
@@ -188,9 +212,11 @@ pub fn run_analyse(args: &AnalyseArgs, argv: &[String]) -> Result<Outcome, Error
         check_output(r, &inputs)?;
     }
     if let Some(d) = &args.plots {
-        ensure_not_an_input(d, &inputs)?;
+        let others: Vec<&Path> = args.report.iter().map(PathBuf::as_path).collect();
+        iqaudit::atomic::ensure_plots_dir_clear(d, &inputs, &others)?;
     }
-    let profile = load_profile(&profile_path)?;
+    let jobs = checked_jobs(args.jobs)?;
+    let profile = load_profile_with(&profile_path, args.allow_outside_symbols)?;
     let opts = AnalyseOptions {
         format,
         sample_rate_hz: args.sample_rate,
@@ -202,7 +228,7 @@ pub fn run_analyse(args: &AnalyseArgs, argv: &[String]) -> Result<Outcome, Error
         skip_input_hash: args.report.is_none() && !args.json && args.plots.is_none(),
     };
     let run = || analyse_capture(&args.capture, &profile, &opts);
-    let report = match args.jobs {
+    let report = match jobs {
         Some(n) => rayon::ThreadPoolBuilder::new()
             .num_threads(n.max(1))
             .build()
@@ -248,7 +274,14 @@ pub fn run_analyse(args: &AnalyseArgs, argv: &[String]) -> Result<Outcome, Error
 
 /// Run `iqaudit recheck`.
 pub fn run_recheck(args: &RecheckArgs) -> Result<Outcome, Error> {
-    let r = recheck(&args.report)?;
+    let notice = |files: &[PathBuf]| {
+        let names: Vec<String> = files
+            .iter()
+            .map(|p| iqaudit::text::escaped_path(p))
+            .collect();
+        eprintln!("iqaudit: recheck will read: {}", names.join(", "));
+    };
+    let r = recheck_with(&args.report, args.allow_outside_symbols, &notice)?;
     let mut out = std::io::stdout().lock();
     let text = if args.json {
         let mut t = serde_json::to_string_pretty(&recheck_json(args, &r))
@@ -259,19 +292,22 @@ pub fn run_recheck(args: &RecheckArgs) -> Result<Outcome, Error> {
         format!(
             "every figure reproduces: {} numbers in {} match a fresh analysis of {}\n",
             r.figures,
-            args.report.display(),
-            r.input.display()
+            iqaudit::text::escaped_path(&args.report),
+            iqaudit::text::escaped_path(&r.input)
         )
     } else {
         let total = r.differences.total;
         let mut s = format!(
             "{total} figure(s) in {} do not reproduce:\n",
-            args.report.display(),
+            iqaudit::text::escaped_path(&args.report),
         );
         let shown = r.differences.kept.iter().take(args.max_listed);
         let listed = shown.len();
         for d in shown {
-            s.push_str(&format!("  {d}\n"));
+            s.push_str(&format!(
+                "  {}\n",
+                iqaudit::text::escape_controls(&d.to_string())
+            ));
         }
         if listed < total {
             s.push_str(&format!(

@@ -15,7 +15,7 @@ use iqaudit::batch::{
     exit_code_for_rows, merge_summaries, profile_sha256, run_batch, BatchOptions, Glob, JobFailure,
     ProgressMode, Shard,
 };
-use iqaudit::profile::load_profile;
+use iqaudit::profile::load_profile_with;
 use iqaudit::Error;
 
 use super::Outcome;
@@ -83,6 +83,10 @@ pub struct BatchArgs {
     /// Merge per-shard summary*.jsonl files into OUT/summary.jsonl and OUT/summary.csv instead of analysing.
     ///
     /// Fails if a capture appears in two files.
+    /// Read symbols files named by the profile even outside the profile's folder.
+    #[arg(long)]
+    pub allow_outside_symbols: bool,
+
     #[arg(long, value_name = "SUMMARY.jsonl", num_args = 1.., conflicts_with_all = ["dir", "profile", "shard", "force", "globs", "format", "sample_rate", "jobs"])]
     pub merge: Vec<PathBuf>,
 }
@@ -126,12 +130,12 @@ pub fn run_batch_cmd(args: &BatchArgs, argv: &[String]) -> Result<Outcome, Error
         });
     };
     let format = super::parse_format_arg(args.format.as_deref(), dir)?;
-    let profile = load_profile(profile_path)?;
+    let profile = load_profile_with(profile_path, args.allow_outside_symbols)?;
     let sha = profile_sha256(&profile).map_err(|e| Error::Usage {
         message: format!("{}: {e}", profile_path.display()),
     })?;
     let mut opts = BatchOptions::new(dir, &args.out, &sha);
-    opts.jobs = args.jobs.unwrap_or(0);
+    opts.jobs = super::analyse::checked_jobs(args.jobs)?.unwrap_or(0);
     opts.shard = args.shard;
     opts.force = args.force;
     opts.globs = args.globs.clone();
@@ -142,8 +146,14 @@ pub fn run_batch_cmd(args: &BatchArgs, argv: &[String]) -> Result<Outcome, Error
     };
     opts.format_override = format.map(|f| f.name().to_string());
     opts.sample_rate_override_hz = args.sample_rate;
-    // Without handlers a Ctrl-C still stops the batch, just less tidily.
-    let _ = opts.cancel.install_signal_handlers();
+    // The first SIGINT/SIGTERM stops handing out captures (running ones finish
+    // and are written whole); a second deletes every temporary file and exits
+    // with 128 + signal. Without handlers a Ctrl-C still stops the batch.
+    let cancel = opts.cancel.clone();
+    let _ = iqaudit::atomic::remove_temps_on_signal(Some(Box::new(move |sig| {
+        cancel.request(sig);
+        true
+    })));
     let aopts = AnalyseOptions {
         format,
         sample_rate_hz: args.sample_rate,

@@ -332,9 +332,48 @@ pub fn run_profile(args: &ProfileArgs) -> Result<Outcome, Error> {
     Ok(Outcome::Ok)
 }
 
+/// Refuse synth options whose product would make an output larger than
+/// [`iqaudit::limits::MAX_SYNTH_SAMPLES`], before anything is generated.
+fn check_synth_size(args: &SynthArgs, profile: &iqaudit::ResolvedProfile) -> Result<(), Error> {
+    let sps = profile.samples_per_symbol as u64;
+    let frame = (profile.payload_symbols_per_burst() as u64)
+        .saturating_add(profile.training.length_symbols.unwrap_or(0) as u64)
+        .saturating_add(2 * profile.pulse.span_symbols as u64)
+        .saturating_mul(sps);
+    let per_burst = frame.saturating_add(args.gap.1 as u64);
+    let total = (args.lead_gap as u64).saturating_add(args.bursts.saturating_mul(per_burst));
+    let max = iqaudit::limits::MAX_SYNTH_SAMPLES;
+    if total > max {
+        return Err(Error::Usage {
+            message: format!(
+                "--bursts {} × ({frame} samples a frame + gap up to {}) + --lead-gap {} = {total} samples: at most {max} samples per capture",
+                args.bursts, args.gap.1, args.lead_gap
+            ),
+        });
+    }
+    Ok(())
+}
+
 /// Run `iqaudit synth …`; `argv` is recorded in the truth file.
 pub fn run_synth(args: &SynthArgs, argv: &[String]) -> Result<Outcome, Error> {
+    // The outputs (capture, its sidecar, the truth file) never replace the
+    // profile, and are absent or regular files.
+    let mut truth_name = args.out.as_os_str().to_owned();
+    truth_name.push(".truth.json");
+    let mut meta_name = args.out.as_os_str().to_owned();
+    meta_name.push(".sigmf-meta");
+    let outputs = [
+        args.out.clone(),
+        PathBuf::from(truth_name),
+        args.out.with_extension("sigmf-meta"),
+        PathBuf::from(meta_name),
+    ];
+    for o in &outputs {
+        iqaudit::atomic::ensure_not_an_input(o, &[args.profile.as_path()])?;
+    }
+    iqaudit::atomic::ensure_replaceable(&args.out)?;
     let profile = load_profile(&args.profile)?;
+    check_synth_size(args, &profile)?;
     let channel = match &args.channel {
         None => None,
         Some(text) => {

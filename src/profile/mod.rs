@@ -197,7 +197,18 @@ fn strip_position(message: &str) -> String {
 
 /// Read, parse and resolve a profile file. Relative symbols-file paths are
 /// taken relative to the profile's directory. Every error names the file.
+/// Symbols files must lie inside the profile's folder
+/// ([`check_symbols_files_inside`]); use [`load_profile_with`] to allow others.
 pub fn load_profile(path: &Path) -> Result<ResolvedProfile, ProfileError> {
+    load_profile_with(path, false)
+}
+
+/// [`load_profile`], with `allow_outside_symbols` the explicit opt-in
+/// (`--allow-outside-symbols`) for symbols files outside the profile's folder.
+pub fn load_profile_with(
+    path: &Path,
+    allow_outside_symbols: bool,
+) -> Result<ResolvedProfile, ProfileError> {
     let text = crate::limits::read_small_text(path, crate::limits::MAX_PROFILE_BYTES).map_err(
         |source| ProfileError::Io {
             path: path.to_path_buf(),
@@ -211,7 +222,60 @@ pub fn load_profile(path: &Path) -> Result<ResolvedProfile, ProfileError> {
     let mut profile = parse_profile(&text).map_err(in_file)?;
     let base = path.parent().unwrap_or_else(|| Path::new(""));
     profile.rebase_paths(base);
-    profile.resolve().map_err(in_file)
+    let resolved = profile.resolve().map_err(in_file)?;
+    if !allow_outside_symbols {
+        check_symbols_files_inside(&resolved, base).map_err(in_file)?;
+    }
+    Ok(resolved)
+}
+
+/// The symbols files a resolved profile reads: `(key, path)` pairs.
+pub fn symbols_files(profile: &ResolvedProfile) -> Vec<(&'static str, PathBuf)> {
+    let mut out = Vec::new();
+    if let resolve::ResolvedSequence::SymbolsFile { path } = &profile.training.sequence {
+        out.push(("training.sequence.path", PathBuf::from(path)));
+    }
+    if let Some(resolve::ResolvedPayloadRule::SymbolsFile { path }) = &profile.payload.known {
+        out.push(("payload.known.path", PathBuf::from(path)));
+    }
+    out
+}
+
+/// Refuse a symbols file that does not lie inside `folder` (after following
+/// links and `..`): a profile — also one inside a report, or the
+/// `CAPTURE.profile.json` loaded by default — cannot make the tool read, and
+/// quote from, a file elsewhere without the user's explicit opt-in.
+///
+/// # Errors
+/// [`ProfileError::SymbolsFile`] naming the key.
+pub fn check_symbols_files_inside(
+    profile: &ResolvedProfile,
+    folder: &Path,
+) -> Result<(), ProfileError> {
+    let folder = if folder.as_os_str().is_empty() {
+        Path::new(".")
+    } else {
+        folder
+    };
+    let root = std::fs::canonicalize(folder).map_err(|source| ProfileError::Io {
+        path: folder.to_path_buf(),
+        source,
+    })?;
+    for (key, p) in symbols_files(profile) {
+        let inside = std::fs::canonicalize(&p).is_ok_and(|c| c.starts_with(&root));
+        if !inside {
+            return Err(ProfileError::SymbolsFile {
+                key: key.to_string(),
+                path: p,
+                message: format!(
+                    "is not inside the profile's folder {} (or does not exist); pass \
+                     --allow-outside-symbols to read a symbols file elsewhere",
+                    crate::text::escaped_path(folder)
+                ),
+            });
+        }
+    }
+    Ok(())
 }
 
 #[cfg(test)]

@@ -22,8 +22,8 @@ use super::schema::{
 use super::ProfileError;
 use crate::capture::SampleFormat;
 use crate::limits::{
-    MAX_CURSOR_TAPS, MAX_EQUALISER_TAPS, MAX_PAYLOAD_SYMBOLS, MAX_SAMPLES_PER_SYMBOL,
-    MAX_SPAN_SYMBOLS, MAX_TRAINING_SYMBOLS,
+    MAX_CURSOR_TAPS, MAX_EQUALISER_TAPS, MAX_FRAME_SAMPLES, MAX_PAYLOAD_SYMBOLS, MAX_PULSE_TAPS,
+    MAX_SAMPLES_PER_SYMBOL, MAX_SPAN_SYMBOLS, MAX_TRAINING_SYMBOLS,
 };
 use crate::signal::BARKER_LENGTHS;
 use crate::signal::{Modulation, PrbsPattern};
@@ -430,6 +430,47 @@ impl ResolvedProfile {
                 return Err(invalid("limits.ser_max", "a rate in [0, 1]", v));
             }
         }
+        self.check_products()
+    }
+
+    /// The caps on products of settings (issue 16): each setting within its own
+    /// cap can still multiply into one huge buffer, so the frame in samples
+    /// (`(before + training + after) × samples_per_symbol`) is capped at
+    /// [`MAX_FRAME_SAMPLES`] and the pulse filter (`span_symbols ×
+    /// samples_per_symbol + 1` taps) at [`MAX_PULSE_TAPS`]. A symbols-file
+    /// training is checked again once read (`training_symbols`).
+    pub fn check_products(&self) -> Result<(), ProfileError> {
+        let sps = self.samples_per_symbol;
+        let training = self.training.length_symbols.unwrap_or(0);
+        let frame = self
+            .payload
+            .before_symbols
+            .saturating_add(self.payload.after_symbols)
+            .saturating_add(training)
+            .saturating_mul(sps);
+        if frame > MAX_FRAME_SAMPLES {
+            return Err(invalid(
+                "samples_per_symbol",
+                format!(
+                    "a frame of at most {MAX_FRAME_SAMPLES} samples ((payload + training \
+                     symbols) × samples_per_symbol; a symbols-file training is added when \
+                     it is read)"
+                ),
+                format!("{frame} samples ({sps} per symbol)"),
+            ));
+        }
+        let taps = self
+            .pulse
+            .span_symbols
+            .saturating_mul(sps)
+            .saturating_add(1);
+        if taps > MAX_PULSE_TAPS {
+            return Err(invalid(
+                "pulse.span_symbols",
+                format!("a pulse of at most {MAX_PULSE_TAPS} taps (span_symbols × samples_per_symbol + 1)"),
+                format!("{taps} taps"),
+            ));
+        }
         Ok(())
     }
 }
@@ -657,7 +698,7 @@ impl Profile {
             spectral_mask: l.spectral_mask.clone(),
         };
 
-        Ok(ResolvedProfile {
+        let resolved = ResolvedProfile {
             capture,
             samples_per_symbol: sps,
             symbol_rate_hz,
@@ -668,7 +709,9 @@ impl Profile {
             equaliser,
             search,
             limits,
-        })
+        };
+        resolved.check_products()?;
+        Ok(resolved)
     }
 
     fn resolve_training(&self) -> Result<ResolvedTraining, ProfileError> {

@@ -98,9 +98,13 @@ impl ResolvedProfile {
                 signal::symbols_from_pairs(values).map_err(|e| invalid("values", e))?
             }
             ResolvedSequence::SymbolsFile { path } => {
-                let s = signal::read_symbols_file(Path::new(path))
-                    .map_err(|e| symbols_file_error("training.sequence.path", path, e))?;
+                let s =
+                    signal::read_symbols_file(Path::new(path), crate::limits::MAX_TRAINING_SYMBOLS)
+                        .map_err(|e| symbols_file_error("training.sequence.path", path, e))?;
                 check_training_fits(&self.channel_fit, s.len())?;
+                let mut with_len = self.clone();
+                with_len.training.length_symbols = Some(s.len());
+                with_len.check_products()?;
                 s
             }
         };
@@ -129,8 +133,9 @@ impl ResolvedProfile {
                 total,
             )?,
             Some(ResolvedPayloadRule::SymbolsFile { path }) => {
-                let mut s = signal::read_symbols_file(Path::new(path))
-                    .map_err(|e| symbols_file_error("payload.known.path", path, e))?;
+                let mut s =
+                    signal::read_symbols_file(Path::new(path), crate::limits::MAX_PAYLOAD_SYMBOLS)
+                        .map_err(|e| symbols_file_error("payload.known.path", path, e))?;
                 if s.len() < total {
                     return Err(symbols_file_error(
                         "payload.known.path",

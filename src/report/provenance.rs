@@ -20,8 +20,12 @@ pub fn hex(bytes: &[u8]) -> String {
 }
 
 /// SHA-256 of a file's contents, lowercase hex, streamed with a 1 MiB buffer.
+///
+/// Only a regular file is read (never a FIFO or device, which could block or
+/// never end), and only up to the length it had when opened.
 pub fn sha256_file(path: &Path) -> std::io::Result<String> {
-    let mut f = std::fs::File::open(path)?;
+    let (f, len) = crate::limits::open_regular(path)?;
+    let mut f = f.take(len);
     let mut hasher = Sha256::new();
     let mut buf = vec![0u8; 1 << 20];
     loop {

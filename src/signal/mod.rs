@@ -27,7 +27,7 @@ pub use rrc::{
     matched_filter, matched_filter_at, matched_filter_into, rrc_impulse, rrc_taps, shape,
     validate_rrc, PolyphaseInterpolator,
 };
-pub use symbols::{parse_symbols, read_symbols_file, symbols_from_pairs};
+pub use symbols::{parse_symbols, parse_symbols_capped, read_symbols_file, symbols_from_pairs};
 pub use zadoff_chu::{zadoff_chu, zadoff_chu_checked};
 
 /// Errors from parsing or validating signal definitions (user input, never programmer errors).

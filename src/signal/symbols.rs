@@ -14,8 +14,19 @@ use std::path::Path;
 use super::SignalError;
 use crate::Cf32;
 
+/// Longest excerpt of a symbols-file line quoted in an error, characters: the
+/// file may be any file the profile names, so at most this much of one line is
+/// shown, escaped (issue 16).
+pub const EXCERPT_CHARS: usize = 24;
+
 /// Parses a symbol list (see the module doc for the format).
 pub fn parse_symbols(text: &str) -> Result<Vec<Cf32>, SignalError> {
+    parse_symbols_capped(text, usize::MAX)
+}
+
+/// [`parse_symbols`], refusing a list of more than `max_symbols` symbols as
+/// soon as the count passes the cap (nothing beyond it is allocated).
+pub fn parse_symbols_capped(text: &str, max_symbols: usize) -> Result<Vec<Cf32>, SignalError> {
     let mut out = Vec::new();
     for (idx, raw_line) in text.lines().enumerate() {
         let line_no = idx + 1;
@@ -31,7 +42,14 @@ pub fn parse_symbols(text: &str) -> Result<Vec<Cf32>, SignalError> {
             return Err(SignalError::SymbolsParse {
                 line: line_no,
                 expected: "two numbers `re im` (real and imaginary part)",
-                found: content.to_string(),
+                found: crate::text::excerpt(content, EXCERPT_CHARS),
+            });
+        }
+        if out.len() >= max_symbols {
+            return Err(SignalError::SymbolsParse {
+                line: line_no,
+                expected: "no more symbols than the cap for this use",
+                found: format!("more than {max_symbols} symbols"),
             });
         }
         let mut parts = [0f32; 2];
@@ -49,7 +67,7 @@ pub fn parse_symbols(text: &str) -> Result<Vec<Cf32>, SignalError> {
                         } else {
                             "a finite number for the imaginary part"
                         },
-                        found: f.to_string(),
+                        found: crate::text::excerpt(f, EXCERPT_CHARS),
                     })
                 }
             };
@@ -63,13 +81,14 @@ pub fn parse_symbols(text: &str) -> Result<Vec<Cf32>, SignalError> {
 }
 
 /// Reads and parses a symbols file (UTF-8 text, format in the module doc).
-pub fn read_symbols_file(path: &Path) -> Result<Vec<Cf32>, SignalError> {
+/// At most `max_symbols` symbols are accepted.
+pub fn read_symbols_file(path: &Path, max_symbols: usize) -> Result<Vec<Cf32>, SignalError> {
     let text = crate::limits::read_small_text(path, crate::limits::MAX_SYMBOLS_FILE_BYTES)
         .map_err(|e| SignalError::Io {
             path: path.to_path_buf(),
             message: e.to_string(),
         })?;
-    parse_symbols(&text).map_err(|e| match e {
+    parse_symbols_capped(&text, max_symbols).map_err(|e| match e {
         SignalError::SymbolsParse {
             line,
             expected,
@@ -161,16 +180,16 @@ mod tests {
         let dir = tempfile::tempdir().unwrap();
         let p = dir.path().join("train.txt");
         std::fs::write(&p, "1 1\n-1 oops\n").unwrap();
-        match read_symbols_file(&p) {
+        match read_symbols_file(&p, usize::MAX) {
             Err(SignalError::SymbolsFile { path, line, .. }) => {
                 assert_eq!((path, line), (p.clone(), 2));
             }
             other => panic!("{other:?}"),
         }
         std::fs::write(&p, "1 1\n-1 -1\n").unwrap();
-        assert_eq!(read_symbols_file(&p).unwrap().len(), 2);
+        assert_eq!(read_symbols_file(&p, usize::MAX).unwrap().len(), 2);
         assert!(matches!(
-            read_symbols_file(&dir.path().join("missing.txt")),
+            read_symbols_file(&dir.path().join("missing.txt"), usize::MAX),
             Err(SignalError::Io { .. })
         ));
     }

@@ -532,11 +532,14 @@ fn hostile_profiles_give_the_documented_exit_code_and_message() {
         Case {
             name: "training symbols file that is /dev/zero (must not read forever)",
             setup: |d| {
-                analyse_with_profile(d, |v| {
+                let mut a = analyse_with_profile(d, |v| {
                     v["training"] = serde_json::json!({
                         "sequence": {"kind": "symbols_file", "path": "/dev/zero"}
                     })
-                })
+                });
+                // Outside the profile's folder: the opt-in reaches the file check.
+                a.push("--allow-outside-symbols".into());
+                a
             },
             code: 2,
             message: "not a regular file",
@@ -746,4 +749,507 @@ fn outputs_are_never_written_over_an_input() {
             check: Some(capture_unchanged),
         },
     ]);
+}
+
+/// Issue 16, rules 2–5 through the binary: resource caps on products and on
+/// every file read, writes that cannot hurt, no disclosure, recognised but
+/// broken containers refused.
+#[test]
+fn issue_16_hostile_inputs_and_outputs_are_refused_before_any_work() {
+    fn analyse_args(d: &Path, extra: &[&str]) -> Vec<String> {
+        let (c, p) = capture_with_copy(d);
+        let mut v = vec!["analyse".to_string(), s(&c), "--profile".into(), s(&p)];
+        v.extend(extra.iter().map(|x| x.to_string()));
+        v
+    }
+    run_table(&[
+        Case {
+            name: "samples_per_symbol 1024 × a 2^20-symbol training (product cap)",
+            setup: |d| {
+                analyse_with_profile(d, |v| {
+                    v["samples_per_symbol"] = serde_json::json!(1024);
+                    v["training"]["sequence"] =
+                        serde_json::json!({"kind": "prbs", "pattern": "prbs9", "length": 1 << 20});
+                })
+            },
+            code: 2,
+            message: "a frame of at most 33554432 samples",
+            check: None,
+        },
+        Case {
+            name: "pulse span × samples per symbol above the tap cap",
+            setup: |d| {
+                analyse_with_profile(d, |v| {
+                    v["samples_per_symbol"] = serde_json::json!(1024);
+                    v["pulse"]["span_symbols"] = serde_json::json!(1024);
+                })
+            },
+            code: 2,
+            message: "pulse.span_symbols",
+            check: None,
+        },
+        Case {
+            name: "--jobs 100000",
+            setup: |d| analyse_args(d, &["--jobs", "100000"]),
+            code: 2,
+            message: "--jobs 100000: expected 1..=",
+            check: None,
+        },
+        Case {
+            name: "--jobs 0",
+            setup: |d| analyse_args(d, &["--jobs", "0"]),
+            code: 2,
+            message: "--jobs 0: expected 1..=",
+            check: None,
+        },
+        Case {
+            name: "batch --jobs 100000",
+            setup: |d| {
+                let (_, p) = capture(d);
+                let o = d.join("out");
+                vec![
+                    "batch".into(),
+                    s(d),
+                    "--profile".into(),
+                    s(&p),
+                    "--out".into(),
+                    s(&o),
+                    "--jobs".into(),
+                    "100000".into(),
+                ]
+            },
+            code: 2,
+            message: "--jobs 100000: expected 1..=",
+            check: None,
+        },
+        Case {
+            name: "batch --merge /dev/zero",
+            setup: |d| {
+                let o = d.join("m");
+                vec![
+                    "batch".into(),
+                    "--merge".into(),
+                    "/dev/zero".into(),
+                    "--out".into(),
+                    s(&o),
+                ]
+            },
+            code: 2,
+            message: "not a regular file",
+            check: None,
+        },
+        Case {
+            name: "batch --merge of a FIFO (must not hang)",
+            setup: |d| {
+                let f = d.join("s.jsonl");
+                mkfifo(&f);
+                let o = d.join("m");
+                vec![
+                    "batch".into(),
+                    "--merge".into(),
+                    s(&f),
+                    "--out".into(),
+                    s(&o),
+                ]
+            },
+            code: 2,
+            message: "not a regular file",
+            check: None,
+        },
+        Case {
+            name: "synth --bursts 100000000",
+            setup: |d| {
+                let p = profile(d);
+                let o = d.join("x.ci16");
+                let a = [
+                    "synth",
+                    "--profile",
+                    &s(&p),
+                    "--out",
+                    &s(&o),
+                    "--bursts",
+                    "100000000",
+                ];
+                a.map(String::from).to_vec()
+            },
+            code: 2,
+            message: "samples per capture",
+            check: Some(|d| assert!(!d.join("x.ci16").exists())),
+        },
+        Case {
+            name: "synth --lead-gap 10^15",
+            setup: |d| {
+                let p = profile(d);
+                let o = d.join("x.ci16");
+                let a = [
+                    "synth",
+                    "--profile",
+                    &s(&p),
+                    "--out",
+                    &s(&o),
+                    "--lead-gap",
+                    "1000000000000000",
+                ];
+                a.map(String::from).to_vec()
+            },
+            code: 2,
+            message: "samples per capture",
+            check: None,
+        },
+        Case {
+            name: "synth --out onto its own profile",
+            setup: |d| {
+                let p = profile(d);
+                std::fs::copy(&p, d.join("p.copy")).unwrap();
+                let a = [
+                    "synth",
+                    "--profile",
+                    &s(&p),
+                    "--out",
+                    &s(&p),
+                    "--format",
+                    "ci16_le",
+                ];
+                a.map(String::from).to_vec()
+            },
+            code: 2,
+            message: "refusing to write over an input file",
+            check: Some(|d| {
+                assert_eq!(
+                    std::fs::read(d.join("p.json")).unwrap(),
+                    std::fs::read(d.join("p.copy")).unwrap()
+                )
+            }),
+        },
+        Case {
+            name: "--report onto /dev/null (a device node is never replaced)",
+            setup: |d| analyse_args(d, &["--report", "/dev/null"]),
+            code: 2,
+            message: "refusing to replace a device node",
+            check: Some(capture_unchanged),
+        },
+        Case {
+            name: "--report onto a FIFO",
+            setup: |d| {
+                let f = d.join("r.json");
+                mkfifo(&f);
+                analyse_args(d, &["--report", &s(&f)])
+            },
+            code: 2,
+            message: "refusing to replace a FIFO",
+            check: None,
+        },
+        Case {
+            name: "--report onto a symbolic link (planted)",
+            setup: |d| {
+                std::fs::write(d.join("victim"), b"keep").unwrap();
+                std::os::unix::fs::symlink(d.join("victim"), d.join("r.json")).unwrap();
+                analyse_args(d, &["--report", &s(&d.join("r.json"))])
+            },
+            code: 2,
+            message: "refusing to replace a symbolic link",
+            check: Some(|d| assert_eq!(std::fs::read(d.join("victim")).unwrap(), b"keep")),
+        },
+        Case {
+            name: "--report naming a folder leaves no temporary file",
+            setup: |d| {
+                std::fs::create_dir(d.join("sub")).unwrap();
+                analyse_args(d, &["--report", &s(&d.join("sub"))])
+            },
+            code: 2,
+            message: "refusing to replace a folder",
+            check: Some(|d| assert_eq!(std::fs::read_dir(d.join("sub")).unwrap().count(), 0)),
+        },
+        Case {
+            name: "--report -",
+            setup: |d| analyse_args(d, &["--report", "-"]),
+            code: 2,
+            message: "use --json to print the report on stdout",
+            check: None,
+        },
+        Case {
+            name: "--report X --plots X",
+            setup: |d| {
+                let x = s(&d.join("x"));
+                analyse_args(d, &["--report", &x, "--plots", &x])
+            },
+            code: 2,
+            message: "is also the --plots folder",
+            check: Some(|d| assert!(!d.join("x").exists())),
+        },
+        Case {
+            name: "--report inside --plots under a plot's name",
+            setup: |d| {
+                let dir = d.join("pl");
+                let r = s(&dir.join("index.html"));
+                std::fs::create_dir(&dir).unwrap();
+                analyse_args(d, &["--report", &r, "--plots", &s(&dir)])
+            },
+            code: 2,
+            message: "under a name the plots are written with",
+            check: None,
+        },
+        Case {
+            name: "--plots over a folder holding an input named like a plot",
+            setup: |d| {
+                let (c, _) = capture(d);
+                let p = profile_with(d, "index.html", |_| {});
+                let a = ["analyse", &s(&c), "--profile", &s(&p), "--plots", &s(d)];
+                a.map(String::from).to_vec()
+            },
+            code: 2,
+            message: "under a name the plots are written with",
+            check: None,
+        },
+        Case {
+            name: "symbols file outside the profile's folder needs the opt-in",
+            setup: |d| {
+                let (c, _) = capture(d);
+                let sub = d.join("profiles");
+                std::fs::create_dir(&sub).unwrap();
+                std::fs::write(d.join("secret.txt"), "root:$6$hash:1:2\n").unwrap();
+                let p = profile_with(&sub, "p.json", |v| {
+                    v["training"]["sequence"] =
+                        serde_json::json!({"kind": "symbols_file", "path": "../secret.txt"});
+                    v["training"].as_object_mut().unwrap().remove("modulation");
+                });
+                vec!["analyse".into(), s(&c), "--profile".into(), s(&p)]
+            },
+            code: 2,
+            message: "--allow-outside-symbols",
+            check: None,
+        },
+        Case {
+            name: "a symbols file's bad line is quoted short and escaped",
+            setup: |d| {
+                let (c, _) = capture(d);
+                std::fs::write(
+                    d.join("t.txt"),
+                    "root:$6$averyveryverylongsaltandhashvalue\u{1b}[31m:19000:0:99999:7:::\n",
+                )
+                .unwrap();
+                let p = profile_with(d, "q.json", |v| {
+                    v["training"]["sequence"] =
+                        serde_json::json!({"kind": "symbols_file", "path": "t.txt"});
+                    v["training"].as_object_mut().unwrap().remove("modulation");
+                });
+                vec!["analyse".into(), s(&c), "--profile".into(), s(&p)]
+            },
+            code: 2,
+            message: "line 1",
+            check: None,
+        },
+        Case {
+            name: "WAV with a broken header is refused even with --format",
+            setup: |d| {
+                let p = d.join("x.ci16");
+                std::fs::write(&p, &wav_header(64, 64)[..20]).unwrap();
+                vec!["info".into(), s(&p), "--format".into(), "ci16_le".into()]
+            },
+            code: 2,
+            message: "RIFF/WAVE header",
+            check: None,
+        },
+        Case {
+            name: "file starting with RIFF but a raw extension is parsed as WAV",
+            setup: |d| {
+                let p = d.join("x.cf32");
+                let mut b = wav_header(64, 64);
+                b[8..12].copy_from_slice(b"JUNK");
+                std::fs::write(&p, b).unwrap();
+                vec!["info".into(), s(&p)]
+            },
+            code: 2,
+            message: "WAV",
+            check: None,
+        },
+        Case {
+            name: "recheck reports 'differs' and no digest of the file",
+            setup: |d| {
+                let r = report(d);
+                edit_report(&r, |v| {
+                    v["input"]["sha256"] = serde_json::json!("0".repeat(64))
+                });
+                recheck(&r)
+            },
+            code: 2,
+            message: "differs from the one recorded",
+            check: None,
+        },
+        Case {
+            name: "recheck says which files it will read",
+            setup: |d| {
+                let r = report(d);
+                recheck(&r)
+            },
+            code: 0,
+            message: "recheck will read:",
+            check: None,
+        },
+        Case {
+            name: "recheck of a report naming /dev/zero (must not hang)",
+            setup: |d| {
+                let r = report(d);
+                edit_report(&r, |v| v["input"]["path"] = serde_json::json!("/dev/zero"));
+                recheck(&r)
+            },
+            code: 2,
+            message: "not a regular file",
+            check: None,
+        },
+        Case {
+            name: "recheck of a report naming a FIFO (must not hang)",
+            setup: |d| {
+                let r = report(d);
+                mkfifo(&d.join("pipe.ci16"));
+                edit_report(&r, |v| v["input"]["path"] = serde_json::json!("pipe.ci16"));
+                recheck(&r)
+            },
+            code: 2,
+            message: "not a regular file",
+            check: None,
+        },
+        Case {
+            name: "recorded profile with a product over the cap",
+            setup: |d| {
+                let r = report(d);
+                edit_report(&r, |v| {
+                    v["profile"]["samples_per_symbol"] = serde_json::json!(1024);
+                    v["profile"]["payload"]["after_symbols"] = serde_json::json!(1 << 24);
+                });
+                recheck(&r)
+            },
+            code: 2,
+            message: "the recorded profile is not usable",
+            check: None,
+        },
+        Case {
+            name: "recorded symbols file outside the report's folder",
+            setup: |d| {
+                let r = report(d);
+                edit_report(&r, |v| {
+                    v["profile"]["training"]["sequence"] =
+                        serde_json::json!({"kind": "symbols_file", "path": "/etc/passwd"});
+                    v["profile"]["training"]["length_symbols"] = serde_json::Value::Null;
+                });
+                recheck(&r)
+            },
+            code: 2,
+            message: "--allow-outside-symbols",
+            check: None,
+        },
+        Case {
+            name: "an error naming a file with control characters is escaped",
+            setup: |d| {
+                let p = d.join("evil\u{1b}[2Jname.cf32");
+                std::fs::write(&p, [0u8; 1]).unwrap();
+                vec!["info".into(), s(&p)]
+            },
+            code: 2,
+            message: "evil\\u{1b}[2Jname.cf32",
+            check: None,
+        },
+    ]);
+}
+
+/// Issue 16, rule 1: a non-UTF-8 argument is used exactly and recorded
+/// lossily; nothing panics.
+#[cfg(unix)]
+#[test]
+fn a_non_utf8_path_is_used_exactly_and_recorded_lossily() {
+    use std::os::unix::ffi::OsStrExt;
+    let dir = tempdir();
+    let d = dir.path();
+    let p = profile(d);
+    let name = std::ffi::OsStr::from_bytes(b"cap\xff\xfe.ci16");
+    let c = d.join(name);
+    let out = iqaudit()
+        .arg("synth")
+        .arg("--profile")
+        .arg(&p)
+        .arg("--out")
+        .arg(&c)
+        .arg("--seed")
+        .arg("3")
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(c.exists(), "written under the exact non-UTF-8 name");
+    let r = d.join("r.json");
+    let out = iqaudit()
+        .arg("analyse")
+        .arg(&c)
+        .arg("--profile")
+        .arg(&p)
+        .arg("--report")
+        .arg(&r)
+        .output()
+        .unwrap();
+    let code = out.status.code();
+    assert!(
+        matches!(code, Some(0) | Some(1)),
+        "{code:?}: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&std::fs::read(&r).unwrap()).unwrap();
+    let cmd = v["command"].to_string();
+    assert!(cmd.contains('\u{fffd}'), "{cmd}");
+    let out = iqaudit()
+        .arg("info")
+        .arg(&c)
+        .arg("--format")
+        .arg(std::ffi::OsStr::from_bytes(b"\xff"))
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    assert!(!String::from_utf8_lossy(&out.stderr).contains("panicked"));
+}
+
+/// Issue 16, rule 3: SIGTERM during a write leaves no temporary file.
+#[cfg(unix)]
+#[test]
+fn a_sigterm_during_synth_leaves_no_temporary_file() {
+    let dir = tempdir();
+    let d = dir.path();
+    let p = profile(d);
+    let o = d.join("big.ci16");
+    let mut child = std::process::Command::new(assert_cmd::cargo::cargo_bin("iqaudit"))
+        .args([
+            "synth",
+            "--profile",
+            &s(&p),
+            "--out",
+            &s(&o),
+            "--bursts",
+            "3000",
+            "--seed",
+            "1",
+        ])
+        .stderr(std::process::Stdio::null())
+        .spawn()
+        .unwrap();
+    // Wait until its temporary file appears (or it finished), then stop it.
+    for _ in 0..2000 {
+        let tmp = std::fs::read_dir(d)
+            .unwrap()
+            .any(|e| e.unwrap().file_name().to_string_lossy().ends_with(".tmp"));
+        if tmp || child.try_wait().unwrap().is_some() {
+            break;
+        }
+        std::thread::sleep(Duration::from_millis(5));
+    }
+    let _ = std::process::Command::new("kill")
+        .args(["-TERM", &child.id().to_string()])
+        .status();
+    let _ = child.wait().unwrap();
+    let left: Vec<_> = std::fs::read_dir(d)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .filter(|n| n.ends_with(".tmp"))
+        .collect();
+    assert!(left.is_empty(), "temporary files left: {left:?}");
 }

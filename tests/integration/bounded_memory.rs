@@ -226,7 +226,7 @@ fn reading_a_mapped_capture_end_to_end_leaves_few_of_its_pages_mapped() {
         format: Some(SampleFormat::Cf32Le),
         ..OpenOptions::default()
     };
-    let c = Capture::open(&p, &opts).unwrap();
+    let c = Capture::open_mapped(&p, &opts).unwrap();
     assert_eq!(c.access_path(), "mmap");
     let addr = c.as_cf32_slice().unwrap().as_ptr() as usize;
     let mut buf = vec![Cf32::new(0.0, 0.0); 1 << 17];
