@@ -57,7 +57,7 @@ fn every_raw_layout_written_by_numpy_decodes_to_the_expected_values_and_counts()
 
 #[test]
 fn cf32_le_on_a_little_endian_host_is_a_zero_copy_view() {
-    let cap = Capture::open(
+    let cap = Capture::open_mapped(
         &test_data("vectors/vec.cf32_le"),
         &OpenOptions {
             format: Some(SampleFormat::Cf32Le),
@@ -341,7 +341,7 @@ fn mapped_unmapped_and_in_memory_reads_give_identical_statistics() {
             format: Some(f),
             ..OpenOptions::default()
         };
-        let mapped = Capture::open(&p, &opts).unwrap();
+        let mapped = Capture::open_mapped(&p, &opts).unwrap();
         if f == SampleFormat::Cf32Le && cfg!(target_endian = "little") {
             assert!(mapped.as_cf32_slice().is_some(), "view path exercised");
         }
