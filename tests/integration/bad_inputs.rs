@@ -1047,7 +1047,7 @@ fn issue_16_hostile_inputs_and_outputs_are_refused_before_any_work() {
                 vec!["info".into(), s(&p), "--format".into(), "ci16_le".into()]
             },
             code: 2,
-            message: "RIFF/WAVE header",
+            message: "invalid WAV header",
             check: None,
         },
         Case {

@@ -169,7 +169,7 @@ fn segments_header_bytes_trailing_bytes_and_archives_give_the_same_samples() {
         assert_eq!(read_all(&cap), want, "via {}", cap.access_path());
     }
     assert_eq!(
-        Capture::open(&archive, &OpenOptions::default())
+        Capture::open_mapped(&archive, &OpenOptions::default())
             .unwrap()
             .access_path(),
         "mmap"
