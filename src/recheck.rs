@@ -42,8 +42,9 @@ fn check_sidecar(report: &Report, input: &Path) -> Result<(), Error> {
     let mut appended = input.as_os_str().to_owned();
     appended.push(".sigmf-meta");
     let candidates = [input.with_extension("sigmf-meta"), PathBuf::from(appended)];
-    if candidates.iter().any(|c| c.is_file()) || !input.exists() {
-        // A missing capture is reported by the hash check, naming the capture.
+    if candidates.iter().any(|c| c.is_file()) || !input.is_file() {
+        // A missing capture, or one that is not a regular file (a FIFO, a
+        // device), is reported by the hash check, naming the capture.
         return Ok(());
     }
     Err(Error::SidecarMissing {

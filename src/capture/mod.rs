@@ -847,7 +847,12 @@ impl Capture {
             Some(s) => Some(s),
             None => sigmf::find_sidecar(&data_path, &mut notes)?,
         };
-        let is_wav = sigmf::has_extension(&data_path, "wav") || wav::has_magic(&mut file);
+        // A RIFF-family file is parsed as WAV whatever its name; one that is
+        // not a WAVE form is refused rather than read as samples, unless the
+        // user or a sidecar names a raw format.
+        let is_wav = sigmf::has_extension(&data_path, "wav")
+            || wav::has_magic(&mut file)
+            || (opts.format.is_none() && sidecar.is_none() && wav::has_riff_prefix(&mut file));
         let resolved = resolve_layout(
             &data_path,
             &mut file,

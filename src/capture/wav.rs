@@ -49,10 +49,21 @@ impl WavLayout {
 /// Whether the stream starts like a WAV file (`RIFF`/`RF64`/`BW64` … `WAVE`);
 /// the stream is rewound.
 pub(crate) fn has_magic<R: Read + Seek>(r: &mut R) -> bool {
+    matches!(magic(r), Some(m) if &m[8..12] == b"WAVE")
+}
+
+/// Whether the file opens with a RIFF-family chunk id (`RIFF`, `RF64`,
+/// `BW64`), WAVE form or not. Such a file is a container, not raw samples,
+/// unless the user says otherwise with `--format` or a sidecar does.
+pub(crate) fn has_riff_prefix<R: Read + Seek>(r: &mut R) -> bool {
+    magic(r).is_some()
+}
+
+fn magic<R: Read + Seek>(r: &mut R) -> Option<[u8; 12]> {
     let mut magic = [0u8; 12];
     let ok = r.rewind().is_ok() && r.read_exact(&mut magic).is_ok();
     let _ = r.rewind();
-    ok && matches!(&magic[0..4], b"RIFF" | b"RF64" | b"BW64") && &magic[8..12] == b"WAVE"
+    (ok && matches!(&magic[0..4], b"RIFF" | b"RF64" | b"BW64")).then_some(magic)
 }
 
 /// The SubFormat GUID tail shared by the KSDATAFORMAT_SUBTYPE_* GUIDs of
