@@ -486,7 +486,62 @@ impl SynthSpec {
 }
 
 /// Make the capture: samples (full scale 1.0) and ground truth.
+///
+/// When the profile gives `symbol_rate_hz` and the sample rate is not
+/// `samples_per_symbol` × that rate, the capture is made at the integer rate
+/// and resampled to the sample rate with [`crate::signal::Resampler`] (#17);
+/// the truth's sample positions are then in the resampled capture, and a
+/// sample-spaced channel's spacing is one sample of the integer rate.
 pub fn run(spec: &SynthSpec) -> Result<Synthesised, SynthError> {
+    let fs = spec.validate()?;
+    let prof = &spec.profile;
+    let Some(rs) = prof.resample_to_symbol_rate_hz else {
+        return run_integer_rate(spec);
+    };
+    let gen_rate = rs * prof.samples_per_symbol as f64;
+    let ratio = gen_rate / fs;
+    if (ratio - 1.0).abs() < 1e-12 {
+        return run_integer_rate(spec);
+    }
+    let resampler = crate::signal::Resampler::new(ratio).ok_or_else(|| {
+        bad(
+            "--sample-rate",
+            format!(
+                "a rate within a factor {} of samples_per_symbol × symbol_rate_hz ({gen_rate} Hz)",
+                crate::signal::resample::MAX_RATIO
+            ),
+            fs,
+        )
+    })?;
+    let mut inner = spec.clone();
+    inner.sample_rate_hz = Some(gen_rate);
+    let to_gen = |n: usize| (n as f64 * ratio).ceil() as usize;
+    inner.gap_samples = (to_gen(spec.gap_samples.0), to_gen(spec.gap_samples.1));
+    inner.lead_gap_samples = to_gen(spec.lead_gap_samples);
+    let made = run_integer_rate(&inner)?;
+    let samples = resampler.process_all(&made.samples);
+    let total = samples.len() as u64;
+    let mut truth = made.truth;
+    truth.sample_rate_hz = fs;
+    truth.total_samples = total;
+    // White noise keeps its variance through an interpolator; a decimating
+    // low-pass keeps the fraction 1/ratio of it.
+    truth.receiver.noise_variance_per_sample *= (1.0 / ratio).min(1.0);
+    truth.receiver.gap_samples = [spec.gap_samples.0, spec.gap_samples.1];
+    truth.receiver.lead_gap_samples = spec.lead_gap_samples;
+    for b in &mut truth.bursts {
+        let instant = (b.start_sample as f64 + b.timing_frac) / ratio;
+        let start = instant.round();
+        b.start_sample = start as u64;
+        b.timing_frac = instant - start;
+        b.first_sample = (b.first_sample as f64 / ratio).floor() as u64;
+        b.end_sample = ((b.end_sample as f64 / ratio).ceil() as u64).min(total);
+    }
+    Ok(Synthesised { samples, truth })
+}
+
+/// [`run`] at the integer rate `samples_per_symbol` × the symbol rate.
+fn run_integer_rate(spec: &SynthSpec) -> Result<Synthesised, SynthError> {
     let fs = spec.validate()?;
     let prof = &spec.profile;
     let sps = prof.samples_per_symbol;

@@ -493,8 +493,9 @@ fn region_warnings(
 ) -> Result<Option<f64>, Error> {
     let sps = plan.sps as i64;
     let lo = (bs.start_sample - plan.before as i64 * sps).max(0) as usize;
-    let hi = ((bs.start_sample + (plan.training.len() + plan.after) as i64 * sps).max(0) as usize)
-        .min(capture.len());
+    let hi = (bs.start_sample + (plan.training.len() + plan.after) as i64 * sps).max(0) as usize;
+    // The capture's own samples under the burst (#17: the analysis stream may be resampled).
+    let (lo, hi) = plan.capture_range(lo, hi, capture);
     if hi <= lo {
         return Ok(None);
     }

@@ -45,6 +45,7 @@
 //! |---|---|---|
 //! | `mod.rs` (this driver) | capture path, resolved profile, [`AnalyseOptions`] | the [`Report`]: opens, plans, searches, runs the bursts in batches, collects |
 //! | `plan.rs` | the profile and the opened capture | the per-capture plan (symbols, constellation, equaliser settings) and the synchroniser |
+//! | `rate.rs` | the capture's rate and the profile's symbol rate | the resampled stream the analysis reads, when the rates are not an integer ratio (#17) |
 //! | `burst.rs` | one synchronised burst and the plan | its [`BurstReport`]: extraction, fit and equalisers, figures, warnings |
 //! | `detail.rs` | a burst's equalised symbols and channel | the plot trace and the channel figures of the report |
 //! | `traced.rs` | each burst's RMS EVM, in any order | which bursts keep their traces |
@@ -55,6 +56,7 @@
 mod burst;
 mod detail;
 mod plan;
+mod rate;
 mod traced;
 mod verdict;
 
@@ -210,7 +212,7 @@ pub fn analyse_capture(
             size_bytes: capture.file_len_bytes(),
             sha256,
             format: format_description(&capture, opts),
-            sample_rate_hz: plan.sample_rate_hz,
+            sample_rate_hz: plan.input_rate_hz,
             center_freq_hz: plan.center_freq_hz,
             samples: capture.len() as u64,
         },
@@ -251,7 +253,7 @@ fn bursts_or_too_short(
     warnings: &mut Vec<Warning>,
 ) -> Result<Vec<BurstReport>, Error> {
     let (capture, sync) = (run.capture, run.sync);
-    if capture.len() >= sync.min_capture_len() {
+    if run.plan.analysis_len(capture) >= sync.min_capture_len() {
         return run.all_bursts(traced);
     }
     warnings.push(Warning::new(
@@ -298,8 +300,9 @@ impl Run<'_> {
     /// [`BURST_BATCH`], keeping the detail of the traced set only.
     fn all_bursts(&self, traced: usize) -> Result<Vec<BurstReport>, Error> {
         let capture = self.capture;
-        let src = ChunkReader::new(capture.len(), |s, out: &mut [Cf32]| {
-            capture.read_into(s, out).map(|_| ())
+        let plan = self.plan;
+        let src = ChunkReader::new(plan.analysis_len(capture), |s, out: &mut [Cf32]| {
+            plan.read_analysis(capture, s, out)
         });
         let detections = self.sync.search_source(&src)?;
         let mut selection = TraceSelection::new(traced);
@@ -355,10 +358,12 @@ impl Run<'_> {
         if let (Some(first), Some(last)) = (batch.first(), batch.last()) {
             let plan = self.plan;
             let pad = 2 * (plan.frame_symbols() + 2 * plan.margin) * plan.sps + 4096;
-            self.capture.release_samples(
+            let (lo, hi) = plan.capture_range(
                 first.start_sample.saturating_sub(pad),
                 last.start_sample.saturating_add(pad),
+                self.capture,
             );
+            self.capture.release_samples(lo, hi);
         }
     }
 

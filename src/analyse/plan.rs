@@ -36,8 +36,14 @@ pub(super) struct Plan {
     pub(super) margin: usize,
     /// Samples per symbol.
     pub(super) sps: usize,
+    /// Rate of the stream the analysis reads (the capture's, or the rate it
+    /// is resampled to).
     pub(super) sample_rate_hz: f64,
     pub(super) symbol_rate_hz: f64,
+    /// The capture's own sample rate.
+    pub(super) input_rate_hz: f64,
+    /// Resampler to the analysis rate, when the rates differ (see `rate.rs`).
+    pub(super) resampler: Option<crate::signal::Resampler>,
     /// Centre frequency: the profile's, else the capture's.
     pub(super) center_freq_hz: Option<f64>,
 }
@@ -193,12 +199,14 @@ pub(super) fn tracking_name(t: Tracking) -> &'static str {
 
 impl Plan {
     pub(super) fn new(profile: &ResolvedProfile, capture: &Capture) -> Result<Plan, Error> {
-        let sample_rate_hz = capture.sample_rate_hz().ok_or_else(|| {
+        let input_rate_hz = capture.sample_rate_hz().ok_or_else(|| {
             usage(format!(
                 "{}: sample rate unknown: give capture.sample_rate_hz in the profile, a SigMF sidecar, or --sample-rate",
                 capture.path().display()
             ))
         })?;
+        let (sample_rate_hz, resampler) =
+            super::rate::resampler_for(profile, capture, input_rate_hz)?;
         let sps = profile.samples_per_symbol;
         let training = profile.training_symbols()?;
         let payload = profile.payload_symbols()?;
@@ -225,6 +233,8 @@ impl Plan {
             sps,
             sample_rate_hz,
             symbol_rate_hz: sample_rate_hz / sps as f64,
+            input_rate_hz,
+            resampler,
             center_freq_hz: profile.capture.center_freq_hz.or(capture.center_freq_hz()),
         })
     }

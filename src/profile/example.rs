@@ -61,7 +61,8 @@ pub fn example_profile(opts: &ExampleOptions) -> Profile {
             center_freq_hz: Some(458_500_000.0),
             swap_iq: false,
         },
-        samples_per_symbol: opts.samples_per_symbol,
+        samples_per_symbol: Some(opts.samples_per_symbol),
+        symbol_rate_hz: None,
         pulse: PulseSection {
             shape: PulseShape::Rrc,
             rolloff: opts.rolloff,

@@ -30,6 +30,9 @@ use crate::signal::{Modulation, PrbsPattern};
 
 /// Default RRC span in symbols.
 pub const DEFAULT_SPAN_SYMBOLS: usize = 12;
+/// Samples per symbol the capture is resampled to when the profile gives a
+/// symbol rate and no `samples_per_symbol`.
+pub const DEFAULT_RESAMPLED_SPS: usize = 4;
 /// Default `max_cfo_hz` as a fraction of the symbol rate.
 pub const DEFAULT_MAX_CFO_FRACTION: f64 = 0.02;
 
@@ -41,8 +44,15 @@ pub struct ResolvedProfile {
     pub capture: ResolvedCapture,
     /// Samples per symbol (≥ 1).
     pub samples_per_symbol: usize,
-    /// Symbol rate in Hz (`sample_rate_hz / samples_per_symbol`), null without a rate.
+    /// Symbol rate in Hz (`sample_rate_hz / samples_per_symbol`, or the
+    /// profile's `symbol_rate_hz`), null without a rate.
     pub symbol_rate_hz: Option<f64>,
+    /// The symbol rate the profile gives (Hz), when it gives one: the capture
+    /// is then resampled to `samples_per_symbol` samples per symbol before the
+    /// analysis. Absent: the capture's own rate is `samples_per_symbol` × the
+    /// symbol rate.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub resample_to_symbol_rate_hz: Option<f64>,
     /// Pulse.
     pub pulse: ResolvedPulse,
     /// Training block.
@@ -280,6 +290,9 @@ impl ResolvedProfile {
         )?;
         if let Some(r) = self.symbol_rate_hz {
             positive("symbol_rate_hz", r)?;
+        }
+        if let Some(r) = self.resample_to_symbol_rate_hz {
+            positive("resample_to_symbol_rate_hz", r)?;
         }
         let p = &self.pulse;
         if !(p.rolloff.is_finite() && p.rolloff > 0.0 && p.rolloff <= 1.0) {
@@ -591,13 +604,24 @@ impl Profile {
             center_freq_hz: c.center_freq_hz,
             swap_iq: c.swap_iq,
         };
-        bounded(
-            "samples_per_symbol",
-            self.samples_per_symbol as usize,
-            MAX_SAMPLES_PER_SYMBOL as usize,
-        )?;
-        let sps = self.samples_per_symbol as usize;
-        let symbol_rate_hz = c.sample_rate_hz.map(|r| r / sps as f64);
+        if let Some(r) = self.symbol_rate_hz {
+            positive("symbol_rate_hz", r)?;
+        }
+        let sps = match (self.samples_per_symbol, self.symbol_rate_hz) {
+            (Some(s), _) => s as usize,
+            (None, Some(_)) => DEFAULT_RESAMPLED_SPS,
+            (None, None) => {
+                return Err(invalid(
+                    "samples_per_symbol",
+                    "an integer oversampling factor (or give symbol_rate_hz)",
+                    "nothing",
+                ))
+            }
+        };
+        bounded("samples_per_symbol", sps, MAX_SAMPLES_PER_SYMBOL as usize)?;
+        let symbol_rate_hz = self
+            .symbol_rate_hz
+            .or(c.sample_rate_hz.map(|r| r / sps as f64));
 
         // pulse
         let p = &self.pulse;
@@ -702,6 +726,7 @@ impl Profile {
             capture,
             samples_per_symbol: sps,
             symbol_rate_hz,
+            resample_to_symbol_rate_hz: self.symbol_rate_hz,
             pulse,
             training,
             payload,

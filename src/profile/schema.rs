@@ -20,8 +20,16 @@ pub struct Profile {
     /// How the capture is stored, when the file itself does not say.
     #[serde(default)]
     pub capture: CaptureSection,
-    /// Integer oversampling factor of the capture (samples per symbol).
-    pub samples_per_symbol: u32,
+    /// Integer oversampling factor of the capture (samples per symbol). With
+    /// `symbol_rate_hz`, the integer rate the capture is resampled to (default
+    /// 4); without it, required.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub samples_per_symbol: Option<u32>,
+    /// Symbol rate in Hz, for a capture whose sample rate is not an integer
+    /// multiple of it: the capture is then resampled to `samples_per_symbol`
+    /// samples per symbol before the analysis (#17).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub symbol_rate_hz: Option<f64>,
     /// Transmit pulse.
     pub pulse: PulseSection,
     /// The training block.

@@ -16,6 +16,7 @@
 pub mod barker;
 pub mod constellation;
 pub mod prbs;
+pub mod resample;
 pub mod rrc;
 pub mod symbols;
 pub mod zadoff_chu;
@@ -23,6 +24,7 @@ pub mod zadoff_chu;
 pub use barker::{barker, barker_symbols, BARKER_LENGTHS};
 pub use constellation::{Constellation, Modulation, Psk8Map};
 pub use prbs::{prbs_bits, prbs_symbols, Lfsr, PrbsPattern};
+pub use resample::Resampler;
 pub use rrc::{
     matched_filter, matched_filter_at, matched_filter_into, rrc_impulse, rrc_taps, shape,
     validate_rrc, PolyphaseInterpolator,

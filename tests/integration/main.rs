@@ -4,6 +4,7 @@
 //! generated in per-test temporary directories. Gives out: pass/fail.
 
 mod analyse;
+mod any_rate;
 mod bad_input;
 mod bad_inputs;
 mod batch;
