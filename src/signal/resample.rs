@@ -73,7 +73,7 @@ impl Resampler {
     /// ratio `fs_in / fs_out`. `None` unless the ratio is finite and within
     /// [1/[`MAX_RATIO`], [`MAX_RATIO`]].
     pub fn new(ratio: f64) -> Option<Resampler> {
-        if !(ratio.is_finite() && ratio >= 1.0 / MAX_RATIO && ratio <= MAX_RATIO) {
+        if !(ratio.is_finite() && (1.0 / MAX_RATIO..=MAX_RATIO).contains(&ratio)) {
             return None;
         }
         let scale = if ratio > 1.0 { 1.0 / ratio } else { 1.0 };
