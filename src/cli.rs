@@ -16,9 +16,11 @@ use iqaudit::{Capture, CaptureError, Error, OpenOptions, SampleFormat};
 
 mod analyse;
 mod batch;
+mod docs;
 mod profile_synth;
 use analyse::{AnalyseArgs, RecheckArgs};
 use batch::BatchArgs;
+use docs::SchemaArgs;
 use profile_synth::{ProfileArgs, SynthArgs};
 
 /// Audit recorded baseband IQ captures.
@@ -46,6 +48,8 @@ pub enum Command {
     Profile(ProfileArgs),
     /// Make a test capture with known ground truth (FILE + FILE.truth.json).
     Synth(Box<SynthArgs>),
+    /// Print the JSON Schema of a document iqaudit writes (report, info, summary-row, synth-truth, recheck).
+    Schema(SchemaArgs),
 }
 
 /// Arguments of `iqaudit info`.
@@ -84,9 +88,10 @@ pub struct InfoArgs {
     #[arg(long)]
     pub swap_iq: bool,
 
-    /// Print one JSON object (schema iqaudit.info/1) instead of text.
+    /// Print one JSON object (schema iqaudit.info/2) instead of text.
     ///
-    /// The keys are documented in the library's `InfoReport` type.
+    /// The keys are documented in the library's `InfoReport` type and in
+    /// `iqaudit schema info`.
     #[arg(long)]
     pub json: bool,
 
@@ -160,6 +165,7 @@ pub fn run(cli: Cli) -> Result<Outcome, Error> {
             run_info(&args)
         }
         Command::Profile(args) => profile_synth::run_profile(&args),
+        Command::Schema(args) => docs::run_schema(&args),
         Command::Synth(args) => {
             plain_signals();
             profile_synth::run_synth(&args, &argv())
@@ -274,14 +280,19 @@ fn run_info(args: &InfoArgs) -> Result<Outcome, Error> {
     } else {
         render_info(&report, &capture)
     };
+    write_stdout(text.as_bytes())?;
+    Ok(Outcome::Ok)
+}
+
+/// Write `bytes` to stdout and flush; an error names `<stdout>`.
+pub(crate) fn write_stdout(bytes: &[u8]) -> Result<(), Error> {
     let mut out = std::io::stdout().lock();
-    out.write_all(text.as_bytes())
+    out.write_all(bytes)
         .and_then(|_| out.flush())
         .map_err(|source| Error::Io {
             path: PathBuf::from("<stdout>"),
             source,
-        })?;
-    Ok(Outcome::Ok)
+        })
 }
 
 fn opt(v: Option<f64>, digits: usize, unit: &str) -> String {

@@ -29,7 +29,7 @@ pub fn locate_input(report_path: &Path, recorded: &str) -> PathBuf {
 
 /// Whether the recorded report says its format came from a SigMF sidecar.
 fn format_from_sidecar(report: &Report) -> bool {
-    report.input.format.contains("from SigMF sidecar")
+    report.input.format_source == crate::report::schema::InputFormatSource::Sigmf
 }
 
 /// A capture analysed with its SigMF sidecar must still have it beside it:
@@ -51,6 +51,69 @@ fn check_sidecar(report: &Report, input: &Path) -> Result<(), Error> {
         path: input.to_path_buf(),
         sidecar: candidates[0].clone(),
     })
+}
+
+/// Schema id of `recheck --json`'s document.
+pub const RECHECK_SCHEMA: &str = "iqaudit.recheck/1";
+
+/// The document `recheck --json` prints (schema [`RECHECK_SCHEMA`]).
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize, schemars::JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct RecheckDocument {
+    /// Always [`RECHECK_SCHEMA`].
+    pub schema: String,
+    /// Name and version of the program that re-ran the analysis.
+    pub tool: crate::report::schema::ToolInfo,
+    /// The report file as given.
+    pub report: String,
+    /// The capture that was re-analysed.
+    pub input: String,
+    /// True when every figure reproduced.
+    pub reproduces: bool,
+    /// Numeric figures compared.
+    pub figures_compared: usize,
+    /// Figures that differ, all counted.
+    pub differences_total: usize,
+    /// The first differences in document order (at most
+    /// [`MAX_KEPT_DIFFERENCES`](crate::report::compare::MAX_KEPT_DIFFERENCES)).
+    pub differences: Vec<RecheckDifference>,
+}
+
+/// One figure that did not reproduce.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize, schemars::JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct RecheckDifference {
+    /// JSON path of the figure, e.g. `bursts[0].cfo_hz`.
+    pub path: String,
+    /// Recorded value as compact JSON text, or `absent`.
+    pub recorded: String,
+    /// Re-computed value as compact JSON text, or `absent`.
+    pub recomputed: String,
+}
+
+impl RecheckResult {
+    /// The `recheck --json` document; `report` names the report file.
+    pub fn document(&self, report: &Path) -> RecheckDocument {
+        RecheckDocument {
+            schema: RECHECK_SCHEMA.into(),
+            tool: crate::report::schema::ToolInfo::this(),
+            report: report.display().to_string(),
+            input: self.input.display().to_string(),
+            reproduces: self.differences.is_empty(),
+            figures_compared: self.figures,
+            differences_total: self.differences.total,
+            differences: self
+                .differences
+                .kept
+                .iter()
+                .map(|d| RecheckDifference {
+                    path: d.path.clone(),
+                    recorded: d.recorded.clone(),
+                    recomputed: d.recomputed.clone(),
+                })
+                .collect(),
+        }
+    }
 }
 
 /// What `recheck` found.
@@ -90,7 +153,7 @@ pub struct RecordedReport {
 }
 
 /// Parse and check report text for `recheck` without touching any other file:
-/// valid JSON, schema `iqaudit-report/2`, every key known, `input.sha256` a
+/// valid JSON, schema [`SCHEMA`], every key known, `input.sha256` a
 /// 64-digit hex string, the recorded profile usable and within the caps of
 /// `crate::limits`, the format override a known format. `report_path` only
 /// names the report in errors.
@@ -109,7 +172,8 @@ pub fn parse_recorded_report(text: &str, report_path: &Path) -> Result<RecordedR
         .and_then(|s| s.as_str())
         .unwrap_or("");
     if schema != SCHEMA {
-        let why = if schema.starts_with("iqaudit-report/") {
+        let why = if schema.starts_with("iqaudit-report/") || schema.starts_with("iqaudit.report/")
+        {
             "written by another iqaudit version; analyse the capture again"
         } else {
             "not an iqaudit report?"
@@ -165,7 +229,7 @@ pub fn parse_recorded_report(text: &str, report_path: &Path) -> Result<RecordedR
 ///
 /// # Errors
 /// [`Error::Report`] when the report cannot be read or is not an
-/// `iqaudit-report/2` document (see [`parse_recorded_report`]); [`Error::Io`]
+/// [`SCHEMA`] document (see [`parse_recorded_report`]); [`Error::Io`]
 /// when the capture is missing; [`Error::InputChanged`] when its SHA-256 differs
 /// from the recorded one; and any error of [`analyse_capture`].
 pub fn recheck(report_path: &Path) -> Result<RecheckResult, Error> {

@@ -81,7 +81,8 @@ use crate::{Cf32, Cf64};
 const BLOCK: usize = 1 << 14;
 
 /// Schema name written in every truth file.
-pub const TRUTH_SCHEMA: &str = "iqaudit.synth-truth/1";
+/// (`/2`: `tool` became `{name, version}` like the other documents', #19.)
+pub const TRUTH_SCHEMA: &str = "iqaudit.synth-truth/2";
 
 /// Errors of the synthesiser.
 #[derive(Debug, thiserror::Error)]
@@ -119,7 +120,7 @@ fn bad(option: &str, expected: impl Into<String>, found: impl std::fmt::Display)
 }
 
 /// How far apart the channel taps are.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum TapSpacing {
     /// One symbol period (`sps` samples).
@@ -210,7 +211,7 @@ impl SynthSpec {
 }
 
 /// Where the payload of a burst came from.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct TruthPayload {
     /// Payload constellation.
@@ -228,7 +229,7 @@ pub struct TruthPayload {
 }
 
 /// Ground truth of one burst.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct TruthBurst {
     /// Burst number from 0.
@@ -266,7 +267,7 @@ pub struct TruthBurst {
 }
 
 /// Receiver impairments applied to the whole capture.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct TruthReceiver {
     /// Noise variance per complex sample (full-scale units²), 0 when noise-free.
@@ -288,7 +289,7 @@ pub struct TruthReceiver {
 }
 
 /// The output file written beside the truth (filled by [`write_outputs`]).
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct TruthCapture {
     /// File name of the capture (same directory as the truth file).
@@ -300,13 +301,13 @@ pub struct TruthCapture {
 }
 
 /// The complete ground truth of a synthesised capture (`FILE.truth.json`).
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct GroundTruth {
     /// Always [`TRUTH_SCHEMA`].
     pub schema: String,
-    /// `iqaudit <version>`.
-    pub tool: String,
+    /// Name and version of the writing program.
+    pub tool: crate::report::schema::ToolInfo,
     /// The command line that made it (null from the library).
     pub command: Option<String>,
     /// RNG seed.
@@ -750,7 +751,7 @@ fn run_integer_rate(spec: &SynthSpec) -> Result<Synthesised, SynthError> {
 
     let truth = GroundTruth {
         schema: TRUTH_SCHEMA.to_string(),
-        tool: format!("iqaudit {}", env!("CARGO_PKG_VERSION")),
+        tool: crate::report::schema::ToolInfo::this(),
         command: None,
         seed: spec.seed,
         sample_rate_hz: fs,

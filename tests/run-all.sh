@@ -25,11 +25,15 @@ fi
 # tests/integration/sigmf_library.rs has the SigMF project's Python library
 # validate and read every sidecar synth/analyse/batch write; under CI a missing
 # package fails that test instead of skipping it. numpy comes with it.
-if ! python3 -c "import sigmf, numpy" >/dev/null 2>&1; then
-  python3 -m pip install --quiet "sigmf==1.14.0" \
-    || python3 -m pip install --quiet --break-system-packages "sigmf==1.14.0"
+# tests/integration/schemas.rs validates every JSON document against the
+# shipped docs/schemas/ with the Python `jsonschema` package (#19); under CI a
+# missing package fails that test too.
+if ! python3 -c "import sigmf, numpy, jsonschema" >/dev/null 2>&1; then
+  python3 -m pip install --quiet "sigmf==1.14.0" "jsonschema==4.26.0" \
+    || python3 -m pip install --quiet --break-system-packages "sigmf==1.14.0" "jsonschema==4.26.0"
 fi
 python3 -c "import sigmf; print('ci: SigMF reference library', sigmf.__version__)"
+python3 -c "import importlib.metadata as m; print('ci: jsonschema', m.version('jsonschema'))"
 export IQAUDIT_REQUIRE_SIGMF=1
 # ---- end of the SigMF block -----------------------------------------------------
 

@@ -1,7 +1,7 @@
 //! Fuzz target: the report parser `recheck` uses before it touches any file
 //! (`recheck::parse_recorded_report`).
 //!
-//! Asserts, when accepted: the schema is `iqaudit-report/2`; `input.sha256` is
+//! Asserts, when accepted: the schema is `SCHEMA` (`iqaudit.report/4`); `input.sha256` is
 //! 64 hex digits; the recorded profile passes `validate`; the typed report
 //! serialises and reads back unchanged. When refused: an `Error::Report`
 //! naming the report path.

@@ -1,7 +1,7 @@
 //! The main job: analyse one capture against a link profile.
 //!
 //! Takes a capture path, a [`ResolvedProfile`] and [`AnalyseOptions`]; gives a
-//! [`Report`] (schema `iqaudit-report/2`). The stages run in data-flow order:
+//! [`Report`] (schema `iqaudit.report/4`). The stages run in data-flow order:
 //!
 //! 1. `capture` — open the file (memory map, chunked decoding);
 //! 2. `signal` — build the training symbols, the known payload (if any), the
@@ -65,7 +65,8 @@ use crate::capture::SampleFormat;
 use crate::profile::ResolvedProfile;
 use crate::report::provenance::sha256_file;
 use crate::report::schema::{
-    BurstReport, InputInfo, Provenance, Report, ToolInfo, Warning, WarningCode, SCHEMA,
+    BurstReport, InputFormatSource, InputInfo, Provenance, Report, ToolInfo, Warning, WarningCode,
+    SCHEMA,
 };
 use crate::sync::{ChunkReader, Detection, SampleSource, Synchroniser};
 use crate::{Cf32, Error};
@@ -202,16 +203,15 @@ pub fn analyse_capture(
         serde_json::to_value(profile).map_err(|e| usage(format!("profile: {e}")))?;
     Ok(Report {
         schema: SCHEMA.to_string(),
-        tool: ToolInfo {
-            name: "iqaudit".into(),
-            version: env!("CARGO_PKG_VERSION").into(),
-        },
+        tool: ToolInfo::this(),
         command: opts.command.clone(),
         input: InputInfo {
             path: path.display().to_string(),
             size_bytes: capture.file_len_bytes(),
             sha256,
-            format: format_description(&capture, opts),
+            format: capture.container().to_string(),
+            format_source: format_source(&capture, opts),
+            swap_iq: capture.swap_iq(),
             sample_rate_hz: plan.input_rate_hz,
             center_freq_hz: plan.center_freq_hz,
             samples: capture.len() as u64,
@@ -234,7 +234,6 @@ fn provenance(
     threshold: f64,
 ) -> Result<Provenance, Error> {
     Ok(Provenance {
-        tool_version: env!("CARGO_PKG_VERSION").into(),
         profile_sha256: crate::report::provenance::profile_sha256(profile)
             .map_err(|e| usage(format!("profile: {e}")))?,
         format_override: opts.format.map(|f| f.name().to_string()),
@@ -267,24 +266,19 @@ fn bursts_or_too_short(
     Ok(Vec::new())
 }
 
-/// The capture's format as the report states it. The capture layer cannot tell
-/// `--format` from the profile's format (both reach it as an open option);
-/// name the one that was used.
-fn format_description(capture: &Capture, opts: &AnalyseOptions) -> String {
-    if capture.format_source() != crate::capture::FormatSource::Option {
-        return capture.format_description();
+/// Where the capture's format came from, as the report states it. The capture
+/// layer cannot tell `--format` from the profile's format (both reach it as an
+/// open option); name the one that was used.
+fn format_source(capture: &Capture, opts: &AnalyseOptions) -> InputFormatSource {
+    use crate::capture::FormatSource as F;
+    match capture.format_source() {
+        F::Option if opts.format.is_some() => InputFormatSource::Option,
+        F::Option => InputFormatSource::Profile,
+        F::Sigmf => InputFormatSource::Sigmf,
+        F::WavHeader => InputFormatSource::WavHeader,
+        F::Extension => InputFormatSource::Extension,
+        F::Memory => InputFormatSource::Memory,
     }
-    let by = if opts.format.is_some() {
-        "from --format"
-    } else {
-        "from the profile"
-    };
-    let swap = if capture.swap_iq() {
-        ", I/Q swapped"
-    } else {
-        ""
-    };
-    format!("{} ({by}{swap})", capture.container())
 }
 
 /// What every burst of one capture shares while the bursts run.

@@ -35,8 +35,24 @@ use serde::{Deserialize, Serialize};
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
+/// Schema id of one summary row (`iqaudit schema summary-row`); rows do not
+/// carry it, the CSV header and the JSON keys are the columns.
+pub const SUMMARY_ROW_SCHEMA: &str = "iqaudit.summary-row/1";
+
 /// What became of one capture.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
+#[derive(
+    Debug,
+    Clone,
+    Copy,
+    PartialEq,
+    Eq,
+    PartialOrd,
+    Ord,
+    Hash,
+    Serialize,
+    Deserialize,
+    schemars::JsonSchema,
+)]
 #[serde(rename_all = "kebab-case")]
 pub enum RowVerdict {
     /// Analysed, every limit met.
@@ -65,7 +81,7 @@ impl RowVerdict {
 }
 
 /// One capture's line in the summary; see the module documentation for each key.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct SummaryRow {
     /// Path relative to the batch folder, `/`-separated.

@@ -54,7 +54,7 @@ pub use write::{encode_raw, encode_raw_with, write_capture, WriteSpec, WriteStat
 /// by the same value, where the zero point is chosen by [`UnsignedZero`]
 /// (default: the symmetric mid-code (2^bits − 1)/2, e.g. 127.5 for `cu8`; the
 /// SigMF reference library uses 2^(bits−1), e.g. 128).
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize, schemars::JsonSchema)]
 pub enum SampleFormat {
     /// 32-bit IEEE float, little-endian, I then Q (8 bytes per sample).
     #[serde(rename = "cf32_le")]
@@ -203,7 +203,9 @@ impl SampleFormat {
 /// Where the zero of an unsigned integer datatype (`cu8`, `cu16_*`, `cu32_*`)
 /// sits. SigMF names the datatypes but not their zero point, and two
 /// conventions are in use.
-#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Hash, Serialize, Deserialize)]
+#[derive(
+    Debug, Clone, Copy, Default, PartialEq, Eq, Hash, Serialize, Deserialize, schemars::JsonSchema,
+)]
 #[serde(rename_all = "snake_case")]
 pub enum UnsignedZero {
     /// Zero at the mid-code (2^bits − 1)/2 (127.5 for `cu8`), full scale the
@@ -280,7 +282,7 @@ impl FromStr for SampleFormat {
 }
 
 /// Sample encodings of a 2-channel WAV file.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(rename_all = "lowercase")]
 pub enum WavEncoding {
     /// 8-bit unsigned PCM, mid-scale 128; full scale 128.
@@ -339,7 +341,7 @@ impl fmt::Display for WavEncoding {
 }
 
 /// A stored sample layout: raw interleaved or WAV.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum Container {
     /// Raw interleaved samples, no header.
@@ -382,7 +384,7 @@ pub struct OpenOptions {
 }
 
 /// Where the sample format of an opened capture came from.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum FormatSource {
     /// The caller's explicit option (`--format`).
@@ -398,7 +400,7 @@ pub enum FormatSource {
 }
 
 /// Clipped and non-finite counts over a decoded range (complex samples).
-#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 pub struct ReadStats {
     /// Samples with I or Q at the most negative/positive code (floats: `|x| ≥ 1`).
     pub clipped: u64,

@@ -480,12 +480,16 @@ fn db(x: f64) -> Option<f64> {
     (x > 0.0 && x.is_finite()).then(|| 10.0 * x.log10())
 }
 
-/// The JSON object printed by `iqaudit info --json` (schema `iqaudit.info/1`).
+/// Schema id of `iqaudit info --json` (`/2`: `tool` became `{name, version}`
+/// like the other documents', #19).
+pub const INFO_SCHEMA: &str = "iqaudit.info/2";
+
+/// The JSON object printed by `iqaudit info --json` (schema [`INFO_SCHEMA`]).
 ///
 /// Keys and units (a key is `null` when the figure is undefined — e.g. a dB
 /// value of zero power, or anything in Hz when the sample rate is unknown):
 ///
-/// * `schema` — `"iqaudit.info/1"`; `tool_version` — crate version.
+/// * `schema` — `"iqaudit.info/2"`; `tool` — `{name, version}` of the program.
 /// * `path`, `file_size_bytes`, `data_offset_bytes`, `trailing_bytes` (ignored
 ///   partial sample at the end), `format` (`cf32_le`, …, `wav_pcm16`, …),
 ///   `format_source` (`option`, `sigmf`, `wav_header`, `extension`), `swap_iq`.
@@ -506,12 +510,12 @@ fn db(x: f64) -> Option<f64> {
 ///   [`super::views`].
 /// * `warnings` — list of `{kind, message}`; kinds: `trailing_bytes`,
 ///   `clipping`, `non_finite`.
-#[derive(Debug, Clone, Serialize, PartialEq)]
+#[derive(Debug, Clone, Serialize, PartialEq, schemars::JsonSchema)]
 pub struct InfoReport {
     /// Schema identifier.
     pub schema: &'static str,
-    /// Crate version.
-    pub tool_version: &'static str,
+    /// Name and version of the writing program.
+    pub tool: crate::report::schema::ToolInfo,
     /// Capture path as given.
     pub path: String,
     /// File length in bytes.
@@ -582,7 +586,7 @@ pub struct InfoReport {
 }
 
 /// Something the user should know about a capture.
-#[derive(Debug, Clone, Serialize, PartialEq)]
+#[derive(Debug, Clone, Serialize, PartialEq, schemars::JsonSchema)]
 pub struct InfoWarning {
     /// `trailing_bytes`, `clipping` or `non_finite`.
     pub kind: &'static str,
@@ -640,8 +644,8 @@ pub fn info_report(capture: &Capture, stats: &CaptureStats, opts: &StatsOptions)
         });
     }
     InfoReport {
-        schema: "iqaudit.info/1",
-        tool_version: env!("CARGO_PKG_VERSION"),
+        schema: INFO_SCHEMA,
+        tool: crate::report::schema::ToolInfo::this(),
         path: capture.path().display().to_string(),
         file_size_bytes: capture.file_len_bytes(),
         data_offset_bytes: capture.data_offset_bytes(),

@@ -183,7 +183,7 @@ impl PowerEnvelope {
 
 /// Everything the capture plots are drawn from (`info --json` key `views`,
 /// report key `capture`).
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct CaptureViews {
     /// Sample rate, Hz; `null` when unknown (then every frequency is in
@@ -202,7 +202,7 @@ pub struct CaptureViews {
 }
 
 /// A decimated Welch PSD.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct PsdView {
     /// Welch segment length N (bins of the full-resolution PSD).
@@ -233,7 +233,7 @@ pub struct PsdView {
 }
 
 /// A narrow peak in the PSD.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct Spur {
     /// Frequency offset from the centre (the PSD's `frequency_unit`).
@@ -247,7 +247,7 @@ pub struct Spur {
 }
 
 /// The decimated power-over-time envelope.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct PowerView {
     /// Samples per short-term power reading.

@@ -81,7 +81,7 @@ pub struct RecheckArgs {
     #[arg(long, value_name = "N", default_value_t = 20)]
     pub max_listed: usize,
 
-    /// Print the result as one JSON object (schema `iqaudit.recheck/1`) on stdout.
+    /// Print the result as one JSON object (schema `iqaudit.recheck/1`, `iqaudit schema recheck`) on stdout.
     ///
     /// Keys: `schema`, `tool` {name, version}, `report`, `input`, `reproduces`,
     /// `figures_compared`, `differences_total`, `differences` (the first 1000 in
@@ -95,35 +95,6 @@ pub struct RecheckArgs {
     /// so a report from someone else cannot make the tool read an arbitrary file.
     #[arg(long)]
     pub allow_outside_symbols: bool,
-}
-
-/// Schema id of `recheck --json`.
-pub const RECHECK_SCHEMA: &str = "iqaudit.recheck/1";
-
-/// `recheck --json`'s document.
-fn recheck_json(args: &RecheckArgs, r: &iqaudit::recheck::RecheckResult) -> serde_json::Value {
-    let listed: Vec<serde_json::Value> = r
-        .differences
-        .kept
-        .iter()
-        .map(|d| {
-            serde_json::json!({
-                "path": d.path,
-                "recorded": d.recorded,
-                "recomputed": d.recomputed,
-            })
-        })
-        .collect();
-    serde_json::json!({
-        "schema": RECHECK_SCHEMA,
-        "tool": {"name": "iqaudit", "version": env!("CARGO_PKG_VERSION")},
-        "report": args.report.display().to_string(),
-        "input": r.input.display().to_string(),
-        "reproduces": r.differences.is_empty(),
-        "figures_compared": r.figures,
-        "differences_total": r.differences.total,
-        "differences": listed,
-    })
 }
 
 /// `CAPTURE.profile.json` beside the capture.
@@ -284,7 +255,7 @@ pub fn run_recheck(args: &RecheckArgs) -> Result<Outcome, Error> {
     let r = recheck_with(&args.report, args.allow_outside_symbols, &notice)?;
     let mut out = std::io::stdout().lock();
     let text = if args.json {
-        let mut t = serde_json::to_string_pretty(&recheck_json(args, &r))
+        let mut t = serde_json::to_string_pretty(&r.document(&args.report))
             .map_err(|e| stdout_err(e.into()))?;
         t.push('\n');
         t

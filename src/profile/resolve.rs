@@ -37,7 +37,7 @@ pub const DEFAULT_RESAMPLED_SPS: usize = 4;
 pub const DEFAULT_MAX_CFO_FRACTION: f64 = 0.02;
 
 /// A profile with every default filled in and every value checked.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ResolvedProfile {
     /// Capture storage (format and rate may still be null: the file decides).
@@ -70,7 +70,7 @@ pub struct ResolvedProfile {
 }
 
 /// Resolved `capture`.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ResolvedCapture {
     /// Raw sample format, null when the file or sidecar must say.
@@ -84,7 +84,7 @@ pub struct ResolvedCapture {
 }
 
 /// Resolved `pulse`.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ResolvedPulse {
     /// Pulse shape.
@@ -96,7 +96,7 @@ pub struct ResolvedPulse {
 }
 
 /// Resolved training sequence (tag `"kind"`).
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(tag = "kind", rename_all = "snake_case", deny_unknown_fields)]
 pub enum ResolvedSequence {
     /// PRBS from a Fibonacci LFSR `x^n + x^a + 1` (`polynomial = [n, a]`).
@@ -140,7 +140,7 @@ pub enum ResolvedSequence {
 }
 
 /// Resolved `training`.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ResolvedTraining {
     /// Constellation the bits map onto (null for Zadoff-Chu and explicit symbols).
@@ -152,7 +152,7 @@ pub struct ResolvedTraining {
 }
 
 /// Resolved payload regeneration rule (tag `"kind"`).
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(tag = "kind", rename_all = "snake_case", deny_unknown_fields)]
 pub enum ResolvedPayloadRule {
     /// PRBS bits on the payload modulation, restarted from `seed` every burst.
@@ -174,7 +174,7 @@ pub enum ResolvedPayloadRule {
 }
 
 /// Resolved `payload`.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ResolvedPayload {
     /// Payload constellation.
@@ -190,7 +190,7 @@ pub struct ResolvedPayload {
 }
 
 /// Resolved `channel_fit`.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ResolvedChannelFit {
     /// Pre-cursor taps (or `"auto"`).
@@ -207,7 +207,7 @@ pub struct ResolvedChannelFit {
 }
 
 /// Resolved `equaliser`.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ResolvedEqualiser {
     /// Structure.
@@ -225,7 +225,7 @@ pub struct ResolvedEqualiser {
 }
 
 /// Resolved `search`.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ResolvedSearch {
     /// Normalised correlation threshold in (0, 1]; null: derived by the
@@ -237,7 +237,7 @@ pub struct ResolvedSearch {
 }
 
 /// Resolved `limits` (null = not checked).
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ResolvedLimits {
     /// Largest RMS EVM, percent.

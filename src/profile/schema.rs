@@ -14,7 +14,7 @@ use crate::signal::{Modulation, PrbsPattern};
 
 /// A complete link profile as parsed from JSON (before defaults are checked and
 /// filled in by [`Profile::resolve`]).
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct Profile {
     /// How the capture is stored, when the file itself does not say.
@@ -52,7 +52,7 @@ pub struct Profile {
 
 /// `capture`: storage format and rates (each optional when the file or a SigMF
 /// sidecar says).
-#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct CaptureSection {
     /// SigMF datatype name of a raw capture, e.g. `"cf32_le"`.
@@ -70,7 +70,9 @@ pub struct CaptureSection {
 }
 
 /// Pulse shapes the profile can name.
-#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(
+    Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize, schemars::JsonSchema,
+)]
 #[serde(rename_all = "snake_case")]
 pub enum PulseShape {
     /// Root-raised cosine (transmit and matched filter).
@@ -79,7 +81,7 @@ pub enum PulseShape {
 }
 
 /// `pulse`: the transmit pulse.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct PulseSection {
     /// Pulse shape; only `"rrc"`.
@@ -93,7 +95,7 @@ pub struct PulseSection {
 }
 
 /// `training`: modulation and sequence of the training block.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct TrainingSection {
     /// Constellation the PRBS bits are mapped onto (default `"qpsk"`; not
@@ -106,7 +108,7 @@ pub struct TrainingSection {
 }
 
 /// `training.sequence`: how the training symbols are generated (tag `"kind"`).
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(tag = "kind", rename_all = "snake_case", deny_unknown_fields)]
 pub enum Sequence {
     /// ITU-T O.150-style PRBS bits mapped onto the training modulation.
@@ -155,7 +157,7 @@ pub enum Sequence {
 }
 
 /// Where the payload sits relative to the training block.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum PayloadPosition {
     /// Training first (preamble frame).
@@ -167,7 +169,7 @@ pub enum PayloadPosition {
 }
 
 /// `payload`: modulation, length, position and, when known, how to regenerate it.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct PayloadSection {
     /// Payload constellation.
@@ -190,7 +192,7 @@ pub struct PayloadSection {
 }
 
 /// `payload.known`: a rule that regenerates the payload symbols (tag `"kind"`).
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(tag = "kind", rename_all = "snake_case", deny_unknown_fields)]
 pub enum PayloadRule {
     /// PRBS bits mapped onto the payload modulation, restarted from `seed` in
@@ -285,6 +287,35 @@ impl<'de> Deserialize<'de> for TapCount {
         Ok(de_auto_or(d)?.map_or(TapCount::Auto, TapCount::Fixed))
     }
 }
+/// JSON Schema of a count written as a non-negative integer or `"auto"`.
+fn auto_or_count_schema(what: &str) -> schemars::Schema {
+    schemars::json_schema!({
+        "description": format!("{what}: a non-negative integer or \"auto\""),
+        "oneOf": [
+            {"type": "integer", "minimum": 0},
+            {"const": "auto"}
+        ]
+    })
+}
+
+impl schemars::JsonSchema for TapCount {
+    fn schema_name() -> std::borrow::Cow<'static, str> {
+        "TapCount".into()
+    }
+    fn json_schema(_: &mut schemars::SchemaGenerator) -> schemars::Schema {
+        auto_or_count_schema("tap count")
+    }
+}
+
+impl schemars::JsonSchema for Delay {
+    fn schema_name() -> std::borrow::Cow<'static, str> {
+        "Delay".into()
+    }
+    fn json_schema(_: &mut schemars::SchemaGenerator) -> schemars::Schema {
+        auto_or_count_schema("decision delay in symbols")
+    }
+}
+
 impl Serialize for Delay {
     fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
         match *self {
@@ -300,7 +331,7 @@ impl<'de> Deserialize<'de> for Delay {
 }
 
 /// `channel_fit`: which taps and extra terms the least-squares fit estimates.
-#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ChannelFitSection {
     /// Pre-cursor taps `P` (default 1).
@@ -318,7 +349,9 @@ pub struct ChannelFitSection {
 }
 
 /// Equaliser structures.
-#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(
+    Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize, schemars::JsonSchema,
+)]
 #[serde(rename_all = "kebab-case")]
 pub enum EqualiserKind {
     /// Zero-forcing decision feedback equaliser.
@@ -331,7 +364,7 @@ pub enum EqualiserKind {
 }
 
 /// Decision-directed tracking of a slowly varying channel (tag `"kind"`).
-#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(tag = "kind", rename_all = "snake_case", deny_unknown_fields)]
 pub enum Tracking {
     /// No tracking: the filters stay as designed from the training.
@@ -350,7 +383,7 @@ pub enum Tracking {
 }
 
 /// `equaliser`: structure and lengths.
-#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct EqualiserSection {
     /// Structure (default `"mmse-dfe"`).
@@ -374,7 +407,7 @@ pub struct EqualiserSection {
 }
 
 /// `search`: how the training block is found.
-#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct SearchSection {
     /// Normalised correlation threshold in (0, 1] (default: derived from the
@@ -387,7 +420,7 @@ pub struct SearchSection {
 }
 
 /// `limits`: pass/fail limits; an absent limit is not checked.
-#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct LimitsSection {
     /// Largest allowed RMS EVM in percent.
@@ -412,7 +445,7 @@ pub struct LimitsSection {
 /// One segment of `limits.spectral_mask`: for offsets
 /// `from_offset_hz ≤ |f − fc| ≤ to_offset_hz` the Welch PSD (the same one
 /// `iqaudit info` computes) must not exceed its peak plus `max_db_rel_peak`.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct MaskSegment {
     /// Lower end of the offset range, Hz (≥ 0).

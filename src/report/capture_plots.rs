@@ -397,7 +397,7 @@ pub fn info_index_html(r: &crate::capture::stats::InfoReport) -> String {
 <h1>iqaudit info · {p}</h1><p>Written by iqaudit {ver}. The figures below come from <code>iqaudit info --json</code> (schema {schema}).</p><table>",
         p = esc_html(&r.path),
         css = page_style(),
-        ver = esc_html(r.tool_version),
+        ver = esc_html(&r.tool.version),
         schema = esc_html(r.schema)
     );
     let fmt_src = match r.format_source {

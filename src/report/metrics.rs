@@ -21,7 +21,7 @@ use serde::{Deserialize, Serialize};
 use statrs::distribution::{Beta, Continuous, ContinuousCDF};
 
 /// EVM and MER of one block of symbols.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 pub struct EvmFigures {
     /// Number of symbols measured.
     pub symbols: usize,
@@ -112,7 +112,7 @@ pub fn evm(z: &[Cf32], s: &[Cf32]) -> Option<EvmFigures> {
 }
 
 /// A count of errors out of a number of trials with its exact two-sided interval.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 pub struct ErrorRate {
     /// Number of errors.
     pub errors: u64,
@@ -220,7 +220,7 @@ fn beta_quantile(p: f64, a: f64, b: f64) -> f64 {
 }
 
 /// One run of consecutive decision errors.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, schemars::JsonSchema)]
 pub struct ErrorRun {
     /// Index of the first wrong symbol, counted in payload symbols.
     pub start: usize,
@@ -267,7 +267,7 @@ pub fn run_length_histogram(runs: &[ErrorRun]) -> Vec<u64> {
 
 /// How much decision feedback multiplied the errors: the DFE's symbol errors
 /// against the errors of the same DFE fed the true symbols (the genie).
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 pub struct ErrorPropagation {
     /// Symbol errors of the decision-fed equaliser.
     pub dfe_errors: u64,

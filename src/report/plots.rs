@@ -923,7 +923,7 @@ The figures on this page come from the JSON report <a href=\"{link}\">{link}</a>
             "file",
             format!("{} ({} bytes, {} samples)", i.path, i.size_bytes, i.samples),
         ),
-        ("format", i.format.clone()),
+        ("format", i.format_description()),
         ("sample rate", fmt_hz(i.sample_rate_hz)),
         (
             "centre frequency",

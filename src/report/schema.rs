@@ -1,4 +1,4 @@
-//! The report document, schema `iqaudit-report/3`.
+//! The report document, schema `iqaudit.report/4`.
 //!
 //! One JSON object per analysed capture. Every key is listed here with its unit
 //! and when it is `null`; docs/report.md repeats this reference for users.
@@ -8,17 +8,17 @@
 //!
 //! | key | meaning |
 //! |---|---|
-//! | `schema` | always `"iqaudit-report/3"` |
+//! | `schema` | always `"iqaudit.report/4"` |
 //! | `tool` | `{name, version}` of the program that wrote the report |
 //! | `command` | the command line, one argument per element |
-//! | `input` | path, `size_bytes`, `sha256` (hex), format, `sample_rate_hz`, `center_freq_hz` (null when unknown), `samples` |
+//! | `input` | path, `size_bytes`, `sha256` (hex), `format` (the layout name), `format_source` (where it came from), `swap_iq`, `sample_rate_hz`, `center_freq_hz` (null when unknown), `samples` |
 //! | `profile` | the resolved link profile with every default filled in |
 //! | `capture` | [`CaptureViews`]: decimated PSD (dBFS/Hz), spurs and power-over-time envelope of the whole capture; `null` in reports that predate it |
 //! | `bursts` | one [`BurstReport`] per burst found, in capture order; only a bounded set of them carries a [`Trace`] |
 //! | `summary` | [`Summary`] over all bursts |
 //! | `verdict` | [`Verdict`]: `pass`, `fail` or `no-training`, with each limit checked |
 //! | `warnings` | capture-level [`Warning`]s (burst-level ones are inside each burst) |
-//! | `provenance` | what is needed to re-run: tool version, profile SHA-256, the trace selection, the `recheck` command |
+//! | `provenance` | what is needed to re-run: profile SHA-256, the options given, the trace selection, the `recheck` command (the tool version is `tool.version`) |
 //!
 //! Size: apart from the traced bursts, every burst entry has a size bounded by
 //! the profile (taps, at most [`ERROR_RUNS_KEPT`] error runs, a run-length
@@ -27,7 +27,11 @@
 //! `provenance.traced_bursts` bursts with the largest RMS EVM (ties: the lower
 //! index), so the traced count is at most twice that figure whatever the capture.
 //!
-//! Schema history: `/3` added `capture` (the capture views),
+//! Schema history: `/4` renamed the schema id from `iqaudit-report/N` to
+//! `iqaudit.report/N` (one scheme with `iqaudit.info/N`, `iqaudit.synth-truth/N`,
+//! `iqaudit.recheck/N`), split `input.format` (`"ci16_le (from SigMF sidecar)"`)
+//! into `format`, `format_source` and `swap_iq`, and dropped
+//! `provenance.tool_version` (it repeated `tool.version`); issue #19. `/3` added `capture` (the capture views),
 //! `bursts[].received_power_dbfs`, `channel.training_symbols`,
 //! `equaliser.feedforward`/`feedback` (the coefficients), `trace.eye_matched`
 //! and `trace.eye_equalised`, and `verdict.checks[].margin` (issue #20); every
@@ -37,11 +41,12 @@
 
 use super::metrics::{ErrorPropagation, ErrorRate, ErrorRun};
 pub use crate::capture::views::CaptureViews;
+use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 use std::fmt;
 
 /// The schema identifier written into every report.
-pub const SCHEMA: &str = "iqaudit-report/3";
+pub const SCHEMA: &str = "iqaudit.report/4";
 
 /// Most decision-error runs listed per burst in `metrics.error_runs` (the first
 /// ones in payload order); `metrics.run_length_histogram` covers them all.
@@ -51,7 +56,7 @@ pub const ERROR_RUNS_KEPT: usize = 256;
 pub type Complex2 = [f64; 2];
 
 /// The whole report for one capture.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct Report {
     /// Always [`SCHEMA`].
@@ -63,6 +68,7 @@ pub struct Report {
     /// The capture analysed.
     pub input: InputInfo,
     /// The resolved link profile (every default filled in).
+    #[schemars(with = "crate::profile::ResolvedProfile")]
     pub profile: serde_json::Value,
     /// What the capture plots are drawn from: the whole capture's Welch PSD
     /// (decimated, dBFS/Hz), its spurs and its power-over-time envelope.
@@ -81,7 +87,7 @@ pub struct Report {
 }
 
 /// Program name and version.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ToolInfo {
     /// `"iqaudit"`.
@@ -90,8 +96,18 @@ pub struct ToolInfo {
     pub version: String,
 }
 
+impl ToolInfo {
+    /// This program: `iqaudit` and the crate version.
+    pub fn this() -> ToolInfo {
+        ToolInfo {
+            name: "iqaudit".into(),
+            version: env!("CARGO_PKG_VERSION").into(),
+        }
+    }
+}
+
 /// The analysed capture.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct InputInfo {
     /// Path as given on the command line.
@@ -100,8 +116,12 @@ pub struct InputInfo {
     pub size_bytes: u64,
     /// SHA-256 of the file contents, lowercase hex.
     pub sha256: String,
-    /// Sample format, e.g. `cf32_le` or `wav pcm16`.
+    /// Sample layout name, e.g. `ci16_le` or `wav_pcm16` (the names of `--format`).
     pub format: String,
+    /// Where the layout came from.
+    pub format_source: InputFormatSource,
+    /// True when I and Q were swapped after decoding.
+    pub swap_iq: bool,
     /// Sample rate in Hz.
     pub sample_rate_hz: f64,
     /// Centre frequency in Hz; `null` when unknown.
@@ -110,8 +130,42 @@ pub struct InputInfo {
     pub samples: u64,
 }
 
+impl InputInfo {
+    /// The layout and where it came from, for people: `ci16_le (from SigMF sidecar)`.
+    pub fn format_description(&self) -> String {
+        let src = match self.format_source {
+            InputFormatSource::Option => "from --format",
+            InputFormatSource::Profile => "from the profile",
+            InputFormatSource::Sigmf => "from SigMF sidecar",
+            InputFormatSource::WavHeader => "from WAV header",
+            InputFormatSource::Extension => "from file extension",
+            InputFormatSource::Memory => "in memory",
+        };
+        let swap = if self.swap_iq { ", I/Q swapped" } else { "" };
+        format!("{} ({src}{swap})", self.format)
+    }
+}
+
+/// Where the sample layout of the analysed capture came from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum InputFormatSource {
+    /// The `--format` option.
+    Option,
+    /// The profile's `capture.format`.
+    Profile,
+    /// A SigMF `.sigmf-meta` sidecar.
+    Sigmf,
+    /// The WAV header.
+    WavHeader,
+    /// The file extension.
+    Extension,
+    /// Samples given in memory (library use).
+    Memory,
+}
+
 /// One burst: where it was found, what the channel did, how the payload came out.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct BurstReport {
     /// 0-based burst number in capture order.
@@ -153,7 +207,7 @@ pub struct BurstReport {
 }
 
 /// The least-squares channel fit of one burst.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ChannelReport {
     /// Complex taps `h[−P] … h[Q]` as `[re, im]`.
@@ -192,7 +246,7 @@ pub struct ChannelReport {
 }
 
 /// Which equaliser ran and what it was expected to achieve.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct EqualiserReport {
     /// `zf-dfe`, `mmse-dfe` or `linear-mmse`.
@@ -222,7 +276,7 @@ pub struct EqualiserReport {
 }
 
 /// Figures of merit of one burst's payload.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct BurstMetrics {
     /// `known-payload` (data-aided) or `decisions`.
@@ -271,7 +325,7 @@ impl BurstMetrics {
 }
 
 /// Decimated data the plots are drawn from.
-#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct Trace {
     /// Up to a fixed number of equalised payload symbols, evenly spread: `[index, re, im]`.
@@ -294,7 +348,7 @@ pub struct Trace {
 /// Eye-diagram data: matched-filter output around consecutive symbol
 /// instants, divided by the main tap `h[0]` (so the ideal values at the
 /// instant are the constellation points), CFO corrected.
-#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct EyeTrace {
     /// Points per symbol period in each trace.
@@ -305,7 +359,7 @@ pub struct EyeTrace {
 }
 
 /// Figures over all bursts of a capture.
-#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct Summary {
     /// Bursts found.
@@ -327,7 +381,7 @@ pub struct Summary {
 }
 
 /// Pass/fail against limits.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct Verdict {
     /// `pass`, `fail` or `no-training`.
@@ -337,7 +391,7 @@ pub struct Verdict {
 }
 
 /// Outcome of the limit checks.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
 #[serde(rename_all = "kebab-case")]
 pub enum VerdictResult {
     /// Analysed, every limit met.
@@ -349,7 +403,7 @@ pub enum VerdictResult {
 }
 
 /// One limit and the value it was checked against.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct LimitCheck {
     /// The profile key of the limit, e.g. `limits.evm_rms_percent_max`.
@@ -367,11 +421,9 @@ pub struct LimitCheck {
 }
 
 /// Reproduction data.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct Provenance {
-    /// Tool version that wrote the figures.
-    pub tool_version: String,
     /// SHA-256 of the canonical JSON of the resolved profile.
     pub profile_sha256: String,
     /// Sample format given on the command line (overrides profile and file), if any.
@@ -388,7 +440,7 @@ pub struct Provenance {
 }
 
 /// A warning with a stable code and a specific hint.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct Warning {
     /// Stable code, e.g. `clipping`.
@@ -398,7 +450,9 @@ pub struct Warning {
 }
 
 /// Stable warning codes.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize, Deserialize)]
+#[derive(
+    Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize, Deserialize, JsonSchema,
+)]
 #[serde(rename_all = "kebab-case")]
 #[non_exhaustive]
 pub enum WarningCode {

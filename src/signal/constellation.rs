@@ -40,7 +40,19 @@ use crate::Cf32;
 /// A modulation scheme.
 ///
 /// Text and serde names: `"bpsk"`, `"qpsk"`, `"8psk"`, `"16qam"`, `"64qam"`, `"256qam"`.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
+#[derive(
+    Debug,
+    Clone,
+    Copy,
+    PartialEq,
+    Eq,
+    Hash,
+    PartialOrd,
+    Ord,
+    Serialize,
+    Deserialize,
+    schemars::JsonSchema,
+)]
 pub enum Modulation {
     /// Binary PSK, 1 bit per symbol (3GPP: on the diagonal).
     #[serde(rename = "bpsk")]

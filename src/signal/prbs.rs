@@ -31,7 +31,19 @@ use super::{Constellation, SignalError};
 use crate::Cf32;
 
 /// A named PRBS pattern: stage taps and output inversion per ITU-T O.150.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
+#[derive(
+    Debug,
+    Clone,
+    Copy,
+    PartialEq,
+    Eq,
+    Hash,
+    PartialOrd,
+    Ord,
+    Serialize,
+    Deserialize,
+    schemars::JsonSchema,
+)]
 pub enum PrbsPattern {
     /// x^7 + x^6 + 1, period 127 (common practice; not in O.150). Not inverted.
     #[serde(rename = "prbs7")]

@@ -827,7 +827,8 @@ fn the_json_report_is_byte_identical_for_one_and_four_worker_threads() {
 
 #[test]
 fn the_report_says_the_sample_format_came_from_the_profile_when_no_format_option_was_given() {
-    // Regression: input.format read "ci16_le (from --format)" although only the
+    // Regression: input.format read "ci16_le (from --format)" (now format_source
+    // "option") although only the
     // profile's capture.format named it.
     let dir = tempdir();
     let prof = one_tap_profile(dir.path());
@@ -838,11 +839,10 @@ fn the_report_says_the_sample_format_came_from_the_profile_when_no_format_option
         &["--seed", "1", "--no-sigmf"],
     );
     let (_, r) = analyse_json(&cap, &prof, &[]);
-    let format = r["input"]["format"].as_str().unwrap();
-    assert!(format.contains("from the profile"), "{format}");
+    assert_eq!(r["input"]["format"], "ci16_le");
+    assert_eq!(r["input"]["format_source"], "profile", "{}", r["input"]);
     let (_, r) = analyse_json(&cap, &prof, &["--format", "ci16_le"]);
-    let format = r["input"]["format"].as_str().unwrap();
-    assert!(format.contains("from --format"), "{format}");
+    assert_eq!(r["input"]["format_source"], "option", "{}", r["input"]);
 }
 
 #[test]
@@ -869,8 +869,8 @@ fn a_wav_capture_is_read_by_its_header_even_when_the_profile_names_a_raw_format(
         ],
     );
     let (code, r) = analyse_json(&cap, &prof, &[]);
-    let format = r["input"]["format"].as_str().unwrap();
-    assert!(format.contains("from WAV header"), "{format}");
+    assert_eq!(r["input"]["format"], "wav_float32", "{}", r["input"]);
+    assert_eq!(r["input"]["format_source"], "wav_header", "{}", r["input"]);
     assert_eq!(code, 0);
     assert_eq!(r["bursts"].as_array().unwrap().len(), truth.bursts.len());
     assert_eq!(r["summary"]["ser"]["errors"], 0);

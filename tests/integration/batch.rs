@@ -44,6 +44,8 @@ fn minimal_report(path: &Path, result: VerdictResult, profile_sha: &str) -> Repo
             size_bytes: bytes.len() as u64,
             sha256: sha256_file(path).unwrap(),
             format: "cf32_le".into(),
+            format_source: iqaudit::report::schema::InputFormatSource::Extension,
+            swap_iq: false,
             sample_rate_hz: 1.0e6,
             center_freq_hz: None,
             samples: bytes.len() as u64 / 8,
@@ -67,7 +69,6 @@ fn minimal_report(path: &Path, result: VerdictResult, profile_sha: &str) -> Repo
         },
         warnings: Vec::new(),
         provenance: Provenance {
-            tool_version: env!("CARGO_PKG_VERSION").into(),
             profile_sha256: profile_sha.to_string(),
             format_override: None,
             sample_rate_override_hz: None,

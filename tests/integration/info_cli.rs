@@ -50,7 +50,8 @@ fn a_tone_with_dc_gives_closed_form_power_peak_papr_and_dc() {
     };
     write_capture(&p, &x, &spec).unwrap();
     let (j, _) = info_json(&[p.as_os_str()]);
-    assert_eq!(j["schema"], "iqaudit.info/1");
+    assert_eq!(j["schema"], "iqaudit.info/2");
+    assert_eq!(j["tool"]["name"], "iqaudit");
     assert_eq!(j["samples"], n as u64);
     assert_eq!(j["format"], "cf32_le");
     assert_eq!(j["format_source"], "sigmf");

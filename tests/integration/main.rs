@@ -19,6 +19,7 @@ mod large_capture;
 mod profile;
 mod recheck_outputs;
 mod sample_captures;
+mod schemas;
 mod sidecars;
 mod sigmf_library;
 mod sigmf_reference;
