@@ -3,11 +3,13 @@
 //! Takes nothing; prints equalised symbols per second on one core for the
 //! MMSE-DFE with Nf = 16, Nb = 8 on 16-QAM (phase loop off/on, LMS, RLS), the
 //! time to design the MMSE-DFE filters (Δ optimised), the channel fit time, the
-//! slicer alone per modulation, the per-burst infinite-length bounds and one
-//! whole burst through `process_burst`.
+//! slicer alone per modulation, the per-burst infinite-length bounds, one
+//! whole burst through `process_burst`, and the Viterbi MLSE
+//! (`equalise::mlse`) for QPSK with memory 2 and 4 and 16-QAM with memory 2.
 //! Run: `cargo bench --bench equalise`. Figures go to docs/performance.md.
 
 use iqaudit::channel::{fit_channel, ChannelFitConfig, TapSpan};
+use iqaudit::equalise::mlse::{Mlse, MlseBurst, MlseConfig, MlseScratch};
 use iqaudit::equalise::mmse_dfe::{design_mmse_dfe, DesignInput};
 use iqaudit::equalise::tracking::{AdaptMode, LoopConfig, TrackingConfig};
 use iqaudit::equalise::{
@@ -214,6 +216,67 @@ fn main() {
             "MMSE-DFE Nf=16 Nb=8 16QAM, {name}: {:.2} M symbols/s ({errors} symbol errors in {})",
             len as f64 / s / 1e6,
             len - ntrain - 40
+        );
+    }
+    mlse_throughput(&mut r);
+}
+
+/// Viterbi MLSE symbols per second (per core) on random bursts through a
+/// channel of `memory + 1` taps, at a SNR with few decision errors.
+fn mlse_throughput(r: &mut ChaCha8Rng) {
+    let n = 50_000usize;
+    for (modulation, memory) in [
+        (Modulation::Qpsk, 2usize),
+        (Modulation::Qpsk, 4),
+        (Modulation::Qam16, 2),
+    ] {
+        let c = Constellation::new(modulation);
+        let m = c.order();
+        let taps: Vec<Cf64> = (0..=memory)
+            .map(|k| {
+                if k == 0 {
+                    Cf64::new(1.0, 0.0)
+                } else {
+                    Cf64::new(0.5 / k as f64, 0.2 / k as f64)
+                }
+            })
+            .collect();
+        let x: Vec<Cf32> = (0..n).map(|_| c.points()[r.gen_range(0..m)]).collect();
+        let y: Vec<Cf32> = (0..n)
+            .map(|k| {
+                let mut acc = Cf64::new(0.0, 0.0);
+                for (i, h) in taps.iter().enumerate() {
+                    if k >= i {
+                        let v = x[k - i];
+                        acc += h * Cf64::new(v.re as f64, v.im as f64);
+                    }
+                }
+                let noise = Cf32::new(r.gen_range(-0.03..0.03), r.gen_range(-0.03..0.03));
+                Cf32::new(acc.re as f32, acc.im as f32) + noise
+            })
+            .collect();
+        let det = Mlse::new(&taps, 0, &c, &MlseConfig::default()).expect("plan");
+        let burst = MlseBurst {
+            y: &y,
+            training: &x[..64],
+            offset: 0,
+            span: 0..n,
+        };
+        let mut out = Vec::new();
+        let mut sc = MlseScratch::default();
+        det.detect_into(&burst, &mut out, &mut sc).expect("run"); // warm-up
+        let reps = if det.states() > 64 { 2 } else { 10 };
+        let (s, _) = time_per_call(reps, || {
+            det.detect_into(&burst, &mut out, &mut sc).expect("run");
+            black_box(&out);
+        });
+        let errors = (64..n).filter(|&k| c.points()[out[k]] != x[k]).count();
+        println!(
+            "MLSE {} memory {memory} ({} states): {:.3} M symbols/s ({errors} symbol errors in {})",
+            modulation.name(),
+            det.states(),
+            n as f64 / s / 1e6,
+            n - 64
         );
     }
 }

@@ -1,7 +1,7 @@
 //! Equalisation of a burst: classic ZF-DFE, finite-length MMSE-DFE, linear
 //! MMSE, genie-fed DFE, decision-directed carrier refinement and LMS/RLS
-//! tracking; plus the infinite-length theory ([`theory`]) and decision-error
-//! runs.
+//! tracking; plus the infinite-length theory ([`theory`]), decision-error
+//! runs and a Viterbi MLSE reference detector ([`mlse`]).
 //!
 //! Inputs are plain: symbol-rate samples `y` (one per symbol, timed and
 //! CFO-corrected by `sync`), the training symbols and the index `offset` of the
@@ -33,6 +33,7 @@ pub mod carrier;
 mod engine;
 pub mod genie;
 pub mod linear_mmse;
+pub mod mlse;
 pub mod mmse_dfe;
 pub mod theory;
 pub mod tracking;
