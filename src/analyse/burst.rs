@@ -5,10 +5,12 @@
 //! cut out around the frame, every equaliser runs on them
 //! ([`process_burst`]), the profile's choice (or the MMSE-DFE when it refused) is
 //! reported, and the payload figures come from
-//! [`crate::report::metrics::payload_figures`]. The trace and the channel
+//! [`crate::report::metrics::payload_figures`]; with `equaliser.mlse` on, the
+//! Viterbi MLSE runs beside it ([`super::mlse`]). The trace and the channel
 //! response are computed only when `want_detail` says the burst may be traced.
 
 use super::detail::{channel_report, trace};
+use super::mlse::{burst_mlse, mlse_warning};
 use super::plan::{chosen_name, tracking_name, usage, Plan};
 use super::CONFIDENCE;
 use crate::capture::Capture;
@@ -223,6 +225,29 @@ pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
     // (the value judged is `metrics.evm_rms_percent` below).
     let detail = want_detail(evm.map(|f| f.evm_rms_percent).unwrap_or(0.0));
     propagation_warning(&fig, &mut warnings);
+    // The MLSE reference detector beside the reported equaliser (when asked for).
+    let mlse = plan.mlse.as_ref().map(|mc| {
+        let l = plan.training.len();
+        let (f0, f1) = (frame.offset - plan.before, frame.offset + l + plan.after);
+        let span = f0.max(frame.avail.start).min(frame.offset)
+            ..f1.min(frame.avail.end).max(frame.offset + l);
+        let truth: Option<Vec<usize>> = known_payload
+            .as_ref()
+            .map(|kp| kp.iter().map(|s| plan.constellation.slice(*s)).collect());
+        burst_mlse(
+            mc,
+            &out,
+            plan,
+            frame.offset,
+            span,
+            present,
+            eq,
+            truth.as_deref(),
+        )
+    });
+    if let Some(ml) = &mlse {
+        mlse_warning(ml, name, &mut warnings);
+    }
     let linear_evm = linear_evm(&out, &frame, known_payload.as_deref(), plan);
     let mut channel = channel_report(&out.channel, detail);
     channel.training_symbols = plan.training.len();
@@ -247,7 +272,8 @@ pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
         },
         &mut warnings,
     );
-    let metrics = burst_metrics(&fig, &numbers, known_payload.is_some());
+    let mut metrics = burst_metrics(&fig, &numbers, known_payload.is_some());
+    metrics.mlse = mlse;
     let trace = if detail {
         Some(trace(
             bs,
@@ -327,6 +353,7 @@ fn burst_metrics(fig: &PayloadFigures, numbers: &[usize], known: bool) -> BurstM
         run_length_histogram: run_length_histogram(&fig.runs),
         error_runs: fig.runs.clone(),
         error_propagation: fig.propagation,
+        mlse: None,
     }
 }
 

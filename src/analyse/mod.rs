@@ -55,6 +55,7 @@
 
 mod burst;
 mod detail;
+mod mlse;
 mod plan;
 mod rate;
 mod traced;

@@ -9,6 +9,7 @@
 use super::AnalyseOptions;
 use crate::capture::{Capture, OpenOptions, SampleFormat};
 use crate::channel::{ChannelFitConfig, TapSpan};
+use crate::equalise::mlse::MlseConfig;
 use crate::equalise::tracking::{AdaptMode, TrackingConfig};
 use crate::equalise::BurstConfig;
 use crate::profile::ResolvedProfile;
@@ -46,6 +47,8 @@ pub(super) struct Plan {
     pub(super) resampler: Option<crate::signal::Resampler>,
     /// Centre frequency: the profile's, else the capture's.
     pub(super) center_freq_hz: Option<f64>,
+    /// The MLSE reference detector, when the profile turns it on.
+    pub(super) mlse: Option<MlseConfig>,
 }
 
 pub(super) fn usage(message: impl Into<String>) -> Error {
@@ -236,6 +239,11 @@ impl Plan {
             input_rate_hz,
             resampler,
             center_freq_hz: profile.capture.center_freq_hz.or(capture.center_freq_hz()),
+            mlse: profile.equaliser.mlse.enabled.then_some(MlseConfig {
+                max_states: profile.equaliser.mlse.max_states,
+                reduced_state: profile.equaliser.mlse.reduced_state,
+                traceback_depth: None,
+            }),
         })
     }
 

@@ -343,6 +343,28 @@ impl Mlse {
     pub fn traceback_depth(&self) -> usize {
         self.depth
     }
+    /// `full` or `reduced-state`, the report's status word.
+    pub fn status(&self) -> &'static str {
+        match self.mode {
+            MlseMode::Full => "full",
+            MlseMode::ReducedState => "reduced-state",
+        }
+    }
+    /// One line for the report, e.g. `viterbi, 16^2 = 256 states` or
+    /// `ddfse, 16^3 = 4096 states (channel memory 4)`.
+    pub fn describe(&self) -> String {
+        let m = self.points.len();
+        match self.mode {
+            MlseMode::Full => format!(
+                "viterbi, {m}^{} = {} states",
+                self.state_memory, self.states
+            ),
+            MlseMode::ReducedState => format!(
+                "ddfse, {m}^{} = {} states (channel memory {})",
+                self.state_memory, self.states, self.memory
+            ),
+        }
+    }
 
     /// Bytes of [`MlseScratch`] a burst of `len` samples needs (the buffers grow
     /// to this and no further): path metrics and residuals `4·4·M^μ`, survivor

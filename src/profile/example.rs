@@ -5,8 +5,8 @@
 
 use super::schema::{
     CaptureSection, ChannelFitSection, Delay, EqualiserKind, EqualiserSection, LimitsSection,
-    PayloadPosition, PayloadRule, PayloadSection, Profile, PulseSection, PulseShape, SearchSection,
-    Sequence, TapCount, Tracking, TrainingSection,
+    MlseSection, PayloadPosition, PayloadRule, PayloadSection, Profile, PulseSection, PulseShape,
+    SearchSection, Sequence, TapCount, Tracking, TrainingSection,
 };
 use crate::capture::SampleFormat;
 use crate::signal::{Modulation, PrbsPattern};
@@ -104,6 +104,11 @@ pub fn example_profile(opts: &ExampleOptions) -> Profile {
             delay: Some(Delay::Auto),
             carrier_refinement: Some(true),
             tracking: Some(Tracking::Off),
+            mlse: Some(MlseSection {
+                enabled: Some(false),
+                max_states: Some(crate::equalise::mlse::DEFAULT_MAX_STATES),
+                reduced_state: Some(true),
+            }),
         },
         search: SearchSection {
             threshold: None,

@@ -36,14 +36,14 @@ pub use resolve::check_training_fits;
 pub use symbols::PayloadSymbols;
 
 pub use resolve::{
-    ResolvedCapture, ResolvedChannelFit, ResolvedEqualiser, ResolvedLimits, ResolvedPayload,
-    ResolvedPayloadRule, ResolvedProfile, ResolvedPulse, ResolvedSearch, ResolvedSequence,
-    ResolvedTraining,
+    ResolvedCapture, ResolvedChannelFit, ResolvedEqualiser, ResolvedLimits, ResolvedMlse,
+    ResolvedPayload, ResolvedPayloadRule, ResolvedProfile, ResolvedPulse, ResolvedSearch,
+    ResolvedSequence, ResolvedTraining,
 };
 pub use schema::{
     CaptureSection, ChannelFitSection, Delay, EqualiserKind, EqualiserSection, LimitsSection,
-    PayloadPosition, PayloadRule, PayloadSection, Profile, PulseSection, PulseShape, SearchSection,
-    Sequence, TapCount, Tracking, TrainingSection,
+    MlseSection, PayloadPosition, PayloadRule, PayloadSection, Profile, PulseSection, PulseShape,
+    SearchSection, Sequence, TapCount, Tracking, TrainingSection,
 };
 
 use std::path::{Path, PathBuf};

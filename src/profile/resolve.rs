@@ -222,6 +222,48 @@ pub struct ResolvedEqualiser {
     pub carrier_refinement: bool,
     /// Tracking.
     pub tracking: Tracking,
+    /// The Viterbi MLSE reference detector (absent in profiles recorded
+    /// before it existed: off).
+    #[serde(default)]
+    pub mlse: ResolvedMlse,
+}
+
+/// Largest `equaliser.mlse.max_states` accepted (the survivor memory is
+/// `(D + D/2)` bytes per state, ≈ 6 MiB per thread at this limit).
+pub const MAX_MLSE_STATES: usize = 65536;
+
+/// Resolved `equaliser.mlse`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ResolvedMlse {
+    /// Run the detector.
+    pub enabled: bool,
+    /// State limit `M^L` (2..=65536).
+    pub max_states: usize,
+    /// Reduced-state detector above the limit (else skipped).
+    pub reduced_state: bool,
+}
+
+impl Default for ResolvedMlse {
+    fn default() -> Self {
+        ResolvedMlse {
+            enabled: false,
+            max_states: crate::equalise::mlse::DEFAULT_MAX_STATES,
+            reduced_state: true,
+        }
+    }
+}
+
+fn check_mlse_states(n: usize) -> Result<usize, ProfileError> {
+    if (2..=MAX_MLSE_STATES).contains(&n) {
+        Ok(n)
+    } else {
+        Err(invalid(
+            "equaliser.mlse.max_states",
+            format!("an integer in 2..={MAX_MLSE_STATES}"),
+            n,
+        ))
+    }
 }
 
 /// Resolved `search`.
@@ -401,6 +443,7 @@ impl ResolvedProfile {
                 ));
             }
         }
+        check_mlse_states(e.mlse.max_states)?;
         match e.tracking {
             Tracking::Off => {}
             Tracking::Lms { mu } => {
@@ -1067,6 +1110,15 @@ impl Profile {
             delay,
             carrier_refinement: e.carrier_refinement.unwrap_or(true),
             tracking,
+            mlse: {
+                let m = e.mlse.clone().unwrap_or_default();
+                let d = ResolvedMlse::default();
+                ResolvedMlse {
+                    enabled: m.enabled.unwrap_or(d.enabled),
+                    max_states: check_mlse_states(m.max_states.unwrap_or(d.max_states))?,
+                    reduced_state: m.reduced_state.unwrap_or(d.reduced_state),
+                }
+            },
         })
     }
 }

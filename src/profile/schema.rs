@@ -404,6 +404,25 @@ pub struct EqualiserSection {
     /// Tracking (default `{"kind": "off"}`).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub tracking: Option<Tracking>,
+    /// The Viterbi MLSE reference detector (default off).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub mlse: Option<MlseSection>,
+}
+
+/// `equaliser.mlse`: the Viterbi MLSE reference detector run beside the DFE.
+#[derive(Debug, Clone, Default, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct MlseSection {
+    /// Run it (default false: it costs far more than the DFE, docs/performance.md).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub enabled: Option<bool>,
+    /// Largest trellis state count `M^L` (default 4096, allowed 2..=65536).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub max_states: Option<usize>,
+    /// Above the limit, run the reduced-state detector (DDFSE) instead of
+    /// skipping (default true).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub reduced_state: Option<bool>,
 }
 
 /// `search`: how the training block is found.

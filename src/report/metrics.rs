@@ -405,6 +405,169 @@ pub fn payload_figures(
     fig
 }
 
+/// How often two detectors took the same decision over the same symbols.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Agreement {
+    /// Symbols compared.
+    pub symbols: u64,
+    /// Symbols on which both decided the same point.
+    pub agree: u64,
+    /// `agree / symbols`; `null` for no symbol.
+    pub rate: Option<f64>,
+}
+
+impl Agreement {
+    /// Count the equal labels of `a` and `b` (same length).
+    pub fn of(a: impl IntoIterator<Item = usize>, b: impl IntoIterator<Item = usize>) -> Agreement {
+        let (mut n, mut same) = (0u64, 0u64);
+        for (x, y) in a.into_iter().zip(b) {
+            n += 1;
+            same += u64::from(x == y);
+        }
+        Agreement {
+            symbols: n,
+            agree: same,
+            rate: (n > 0).then(|| same as f64 / n as f64),
+        }
+    }
+}
+
+/// The margin of the `dfe-below-mlse` warning: the DFE made more than this
+/// factor times the MLSE's symbol errors …
+pub const DFE_LOSS_FACTOR: f64 = 2.0;
+/// … and at least this many errors, and the two 95 % Clopper–Pearson
+/// intervals are disjoint (common practice, as for the error-propagation
+/// warning's factor 2 and 10 errors).
+pub const DFE_LOSS_MIN_ERRORS: u64 = 10;
+
+/// The Viterbi MLSE reference detector on one burst, beside the DFE.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct MlseReport {
+    /// `full` (Viterbi over all `M^L` states), `reduced-state` (DDFSE over
+    /// `M^μ` states, not maximum likelihood) or `skipped`.
+    pub status: String,
+    /// One line, e.g. `viterbi, 16^2 = 256 states` or `skipped (16^4 states, limit 4096)`.
+    pub detail: String,
+    /// Channel memory `L` (fitted taps − 1).
+    pub channel_memory: usize,
+    /// Trellis states `M^μ`; `null` when skipped.
+    pub states: Option<usize>,
+    /// Symbols of state `μ`; `null` when skipped.
+    pub state_memory: Option<usize>,
+    /// Traceback depth, symbols; `null` when skipped.
+    pub traceback_depth: Option<usize>,
+    /// MLSE symbol errors and SER with its 95 % interval; `null` when the payload
+    /// is unknown or the detector skipped.
+    pub ser: Option<ErrorRate>,
+    /// The reported equaliser's SER (= `metrics.ser`), for the comparison.
+    pub dfe_ser: Option<ErrorRate>,
+    /// The genie MMSE-DFE's SER (true symbols fed back); `null` when unknown.
+    pub genie_ser: Option<ErrorRate>,
+    /// DFE symbol errors minus MLSE symbol errors (negative is possible by chance).
+    pub dfe_excess_errors: Option<i64>,
+    /// Unknown payload: how often the DFE's and the MLSE's decisions agree;
+    /// `null` with a known payload (the SERs say more) or when skipped.
+    pub agreement: Option<Agreement>,
+}
+
+/// Per-payload-symbol labels for [`MlseReport::compare`] (all the same length).
+pub struct MlseDecisions<'a> {
+    /// The MLSE's decisions.
+    pub mlse: &'a [usize],
+    /// The reported equaliser's decisions.
+    pub dfe: &'a [usize],
+    /// The genie MMSE-DFE's decisions, when it ran.
+    pub genie: Option<&'a [usize]>,
+    /// The true labels, when the payload is known.
+    pub truth: Option<&'a [usize]>,
+}
+
+impl MlseReport {
+    /// The report of a burst on which the detector could not run.
+    pub fn skipped(channel_memory: usize, detail: String) -> MlseReport {
+        MlseReport {
+            status: "skipped".into(),
+            detail,
+            channel_memory,
+            states: None,
+            state_memory: None,
+            traceback_depth: None,
+            ser: None,
+            dfe_ser: None,
+            genie_ser: None,
+            dfe_excess_errors: None,
+            agreement: None,
+        }
+    }
+
+    /// The comparison for a detector that ran: SERs with `confidence`
+    /// intervals when `d.truth` is known, else the DFE/MLSE agreement.
+    /// `status`, `detail`, `channel_memory`, `states`, `state_memory` and
+    /// `traceback_depth` describe the detector (see the fields).
+    #[allow(clippy::too_many_arguments)]
+    pub fn compare(
+        status: &str,
+        detail: String,
+        channel_memory: usize,
+        states: usize,
+        state_memory: usize,
+        traceback_depth: usize,
+        d: &MlseDecisions<'_>,
+        confidence: f64,
+    ) -> MlseReport {
+        let n = d.mlse.len() as u64;
+        let count =
+            |a: &[usize], t: &[usize]| a.iter().zip(t).filter(|(x, y)| x != y).count() as u64;
+        let (ser, dfe_ser, genie_ser, excess, agreement) = match d.truth {
+            Some(t) => {
+                let (me, de) = (count(d.mlse, t), count(d.dfe, t));
+                (
+                    ErrorRate::new(me, n, confidence),
+                    ErrorRate::new(de, n, confidence),
+                    d.genie
+                        .and_then(|g| ErrorRate::new(count(g, t), n, confidence)),
+                    Some(de as i64 - me as i64),
+                    None,
+                )
+            }
+            None => (
+                None,
+                None,
+                None,
+                None,
+                Some(Agreement::of(d.mlse.iter().copied(), d.dfe.iter().copied())),
+            ),
+        };
+        MlseReport {
+            status: status.into(),
+            detail,
+            channel_memory,
+            states: Some(states),
+            state_memory: Some(state_memory),
+            traceback_depth: Some(traceback_depth),
+            ser,
+            dfe_ser,
+            genie_ser,
+            dfe_excess_errors: excess,
+            agreement,
+        }
+    }
+
+    /// Whether the DFE loses more than the stated margin to the MLSE
+    /// ([`DFE_LOSS_FACTOR`], [`DFE_LOSS_MIN_ERRORS`], disjoint intervals).
+    pub fn dfe_loses(&self) -> bool {
+        match (&self.dfe_ser, &self.ser) {
+            (Some(d), Some(m)) => {
+                d.errors >= DFE_LOSS_MIN_ERRORS
+                    && d.errors as f64 > DFE_LOSS_FACTOR * m.errors as f64
+                    && d.ci_low > m.ci_high
+            }
+            _ => false,
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -649,5 +812,52 @@ mod reference_vectors {
             f.evm_peak_index as u64,
             ex["evm_peak_index"].as_u64().unwrap()
         );
+    }
+
+    #[test]
+    fn the_mlse_comparison_counts_errors_and_agreement_by_hand() {
+        // Hand-counted: truth 0 1 2 3 0 1; mlse wrong at 1 symbol, dfe at 3, genie at 2.
+        let truth = [0, 1, 2, 3, 0, 1];
+        let mlse = [0, 1, 2, 3, 0, 2];
+        let dfe = [1, 1, 0, 3, 0, 2];
+        let genie = [0, 1, 0, 3, 0, 2];
+        let d = MlseDecisions {
+            mlse: &mlse,
+            dfe: &dfe,
+            genie: Some(&genie),
+            truth: Some(&truth),
+        };
+        let r = MlseReport::compare("full", "x".into(), 2, 16, 2, 64, &d, 0.95);
+        assert_eq!(r.ser.map(|e| e.errors), Some(1));
+        assert_eq!(r.dfe_ser.map(|e| e.errors), Some(3));
+        assert_eq!(r.genie_ser.map(|e| e.errors), Some(2));
+        assert_eq!(r.dfe_excess_errors, Some(2));
+        assert!(r.agreement.is_none());
+        // Too few errors for the warning.
+        assert!(!r.dfe_loses());
+        let blind = MlseDecisions {
+            truth: None,
+            genie: None,
+            ..d
+        };
+        let a = MlseReport::compare("full", "x".into(), 2, 16, 2, 64, &blind, 0.95)
+            .agreement
+            .unwrap();
+        // mlse vs dfe agree at indices 1, 3, 4, 5.
+        assert_eq!((a.symbols, a.agree, a.rate), (6, 4, Some(4.0 / 6.0)));
+    }
+
+    #[test]
+    fn the_dfe_loss_warning_needs_the_factor_the_count_and_disjoint_intervals() {
+        let rep = |dfe: u64, mlse: u64| MlseReport {
+            ser: ErrorRate::new(mlse, 10_000, 0.95),
+            dfe_ser: ErrorRate::new(dfe, 10_000, 0.95),
+            ..MlseReport::skipped(2, String::new())
+        };
+        assert!(rep(100, 10).dfe_loses());
+        assert!(!rep(100, 60).dfe_loses(), "factor below 2");
+        assert!(!rep(9, 0).dfe_loses(), "fewer than 10 errors");
+        // 12 against 5: factor 2.4 but the 95 % intervals overlap.
+        assert!(!rep(12, 5).dfe_loses());
     }
 }

@@ -37,9 +37,11 @@
 //! and `trace.eye_equalised`, and `verdict.checks[].margin` (issue #20); every
 //! new key reads as `null`/empty/0 from a `/2` document. `/2` made `trace` and `channel.response_db` nullable (null
 //! outside the traced set), capped `metrics.error_runs` and added
-//! `provenance.traced_bursts`.
+//! `provenance.traced_bursts`. Later in `/3`: the optional `metrics.mlse`
+//! object (absent unless the profile turns the MLSE on, so reports without it
+//! are unchanged) and the `dfe-below-mlse` warning (issue #21).
 
-use super::metrics::{ErrorPropagation, ErrorRate, ErrorRun};
+use super::metrics::{ErrorPropagation, ErrorRate, ErrorRun, MlseReport};
 pub use crate::capture::views::CaptureViews;
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
@@ -306,6 +308,10 @@ pub struct BurstMetrics {
     pub run_length_histogram: Vec<u64>,
     /// DFE errors against the genie DFE fed true symbols; `null` when the payload is unknown.
     pub error_propagation: Option<ErrorPropagation>,
+    /// The Viterbi MLSE reference detector on the same burst ([`MlseReport`]);
+    /// absent unless the profile turns it on (`equaliser.mlse.enabled`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub mlse: Option<MlseReport>,
 }
 
 impl BurstMetrics {
@@ -482,6 +488,8 @@ pub enum WarningCode {
     /// The burst's figures show loss of lock (errors or EVM far beyond what the
     /// fitted SNR predicts, or a CFO outside the search range).
     LossOfLock,
+    /// The DFE made clearly more symbol errors than the MLSE on the same channel.
+    DfeBelowMlse,
 }
 
 impl fmt::Display for WarningCode {

@@ -108,8 +108,41 @@ fn burst_lines(out: &mut String, b: &BurstReport, st: &Style) {
                 .unwrap_or_default()
         );
     }
+    if let Some(ml) = &m.mlse {
+        let _ = writeln!(out, "       {}", mlse_line(ml));
+    }
     for w in &b.warnings {
         let _ = writeln!(out, "       {}", st.note(&format!("! {w}")));
+    }
+}
+
+/// One line for the MLSE comparison of a burst.
+fn mlse_line(ml: &crate::report::metrics::MlseReport) -> String {
+    let rate = |r: &Option<crate::report::metrics::ErrorRate>| {
+        r.map(|r| format!("{} ({:.2e})", r.errors, r.rate))
+            .unwrap_or_else(|| "n/a".into())
+    };
+    if ml.status == "skipped" {
+        return format!("mlse: {}", ml.detail);
+    }
+    match (&ml.ser, &ml.agreement) {
+        (Some(_), _) => format!(
+            "symbol errors: dfe {}, genie dfe {}, mlse {} [{}]",
+            rate(&ml.dfe_ser),
+            rate(&ml.genie_ser),
+            rate(&ml.ser),
+            ml.detail
+        ),
+        (None, Some(a)) => format!(
+            "dfe and mlse decisions agree on {} of {} symbols{} [{}]",
+            a.agree,
+            a.symbols,
+            a.rate
+                .map(|r| format!(" ({:.2} %)", 100.0 * r))
+                .unwrap_or_default(),
+            ml.detail
+        ),
+        (None, None) => format!("mlse: {}", ml.detail),
     }
 }
 

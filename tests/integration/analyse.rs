@@ -426,6 +426,95 @@ fn a_burst_with_strong_post_cursor_isi_shows_error_propagation_and_runs_that_sum
 }
 
 #[test]
+fn with_the_mlse_on_the_report_compares_dfe_genie_and_mlse_and_warns_when_the_dfe_loses() {
+    // Source: Forney 1972 — on 1.0 + 0.8 z⁻¹ the minimum-distance error event
+    // is the single error (d² = 1 + 0.8² = 1.64, the matched-filter bound; the
+    // event (+, −) has 1 + 0.2² + 0.8² = 1.68), so the MLSE runs ≈ 2.1 dB better
+    // than the ZF-DFE bound SNR·|h0|² = SNR (REFERENCE-VALUES §8, minimum
+    // phase). At Es/N0 9 dB the DFE therefore makes many times the MLSE's
+    // errors: where the 95 % intervals are disjoint MLSE < DFE must hold, and
+    // the `dfe-below-mlse` warning must appear on such a burst. Issue #21.
+    let dir = tempdir();
+    let edit = |mlse: bool, known: bool| {
+        move |v: &mut Value| {
+            v["pulse"]["span_symbols"] = json!(32);
+            v["payload"]["modulation"] = json!("qpsk");
+            v["payload"]["length_symbols"] = json!(4000);
+            v["equaliser"]["mlse"]["enabled"] = json!(mlse);
+            if !known {
+                v["payload"].as_object_mut().unwrap().remove("known");
+                v["limits"].as_object_mut().unwrap().remove("ser_max");
+            }
+        }
+    };
+    let on = write_profile(dir.path(), "on", edit(true, true));
+    let off = write_profile(dir.path(), "off", edit(false, true));
+    let blind = write_profile(dir.path(), "blind", edit(true, false));
+    let (cap, _) = synth(
+        dir.path(),
+        &on,
+        "mlse.ci16",
+        &[
+            "--esn0-db",
+            "9",
+            "--channel",
+            "1.0,0.8",
+            "--bursts",
+            "2",
+            "--seed",
+            "5",
+        ],
+    );
+    let (_, r) = analyse_json(&cap, &on, &[]);
+    let mut warned = false;
+    for b in r["bursts"].as_array().unwrap() {
+        let m = &b["metrics"];
+        let ml = &m["mlse"];
+        assert_eq!(ml["status"], json!("full"), "{ml}");
+        let memory = f(&ml["channel_memory"]) as i32;
+        assert_eq!(f(&ml["states"]), 4f64.powi(memory), "QPSK: 4^L states");
+        assert_eq!(
+            ml["dfe_ser"], m["ser"],
+            "the comparison uses the reported SER"
+        );
+        assert!(ml["agreement"].is_null());
+        let (d, g, e) = (&ml["dfe_ser"], &ml["genie_ser"], &ml["ser"]);
+        assert_eq!(
+            f(&ml["dfe_excess_errors"]),
+            f(&d["errors"]) - f(&e["errors"])
+        );
+        assert_eq!(f(&g["errors"]), f(&m["error_propagation"]["genie_errors"]));
+        if f(&d["ci_low"]) > f(&e["ci_high"]) || f(&e["ci_low"]) > f(&d["ci_high"]) {
+            assert!(
+                f(&e["errors"]) < f(&d["errors"]),
+                "MLSE worse than the DFE: {ml}"
+            );
+        }
+        warned |= b["warnings"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|w| w["code"] == json!("dfe-below-mlse"));
+    }
+    assert!(warned, "no dfe-below-mlse warning: {}", r["bursts"]);
+    // Off (the default): no `mlse` key at all.
+    let (_, r) = analyse_json(&cap, &off, &[]);
+    for b in r["bursts"].as_array().unwrap() {
+        assert!(b["metrics"].get("mlse").is_none());
+    }
+    // Unknown payload: the agreement of the two detectors' decisions instead.
+    let (_, r) = analyse_json(&cap, &blind, &[]);
+    for b in r["bursts"].as_array().unwrap() {
+        let ml = &b["metrics"]["mlse"];
+        assert!(ml["ser"].is_null());
+        let a = &ml["agreement"];
+        let (n, k) = (f(&a["symbols"]), f(&a["agree"]));
+        assert_eq!(n, f(&b["metrics"]["symbols"]));
+        assert!(k <= n && k > 0.9 * n, "{a}");
+    }
+}
+
+#[test]
 fn exit_codes_are_0_within_limits_and_1_when_a_limit_fails() {
     // Source: PRODUCT.md, exit codes.
     let dir = tempdir();
