@@ -233,7 +233,7 @@ pub struct ResolvedEqualiser {
 pub const MAX_MLSE_STATES: usize = 65536;
 
 /// Resolved `equaliser.mlse`.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ResolvedMlse {
     /// Run the detector.

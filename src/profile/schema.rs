@@ -410,7 +410,7 @@ pub struct EqualiserSection {
 }
 
 /// `equaliser.mlse`: the Viterbi MLSE reference detector run beside the DFE.
-#[derive(Debug, Clone, Default, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Default, PartialEq, Eq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct MlseSection {
     /// Run it (default false: it costs far more than the DFE, docs/performance.md).

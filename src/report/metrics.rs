@@ -406,7 +406,7 @@ pub fn payload_figures(
 }
 
 /// How often two detectors took the same decision over the same symbols.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 pub struct Agreement {
     /// Symbols compared.
     pub symbols: u64,
@@ -441,7 +441,7 @@ pub const DFE_LOSS_FACTOR: f64 = 2.0;
 pub const DFE_LOSS_MIN_ERRORS: u64 = 10;
 
 /// The Viterbi MLSE reference detector on one burst, beside the DFE.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct MlseReport {
     /// `full` (Viterbi over all `M^L` states), `reduced-state` (DDFSE over
