@@ -3,7 +3,8 @@
 //! Takes in: parsed arguments. Gives out: an [`Outcome`] or an [`iqaudit::Error`];
 //! [`exit_code`] is the one place that turns either into the process exit code
 //! (0 analysed and within limits, 1 a limit failed, 2 bad usage or unreadable
-//! input, 3 no training block found). Data goes to stdout, messages and progress
+//! input, 3 no training block found, 4 the capture was read but its analysis
+//! failed). Data goes to stdout, messages and progress
 //! to stderr as `iqaudit: <file>: <problem>`.
 
 use std::io::{IsTerminal, Write};
@@ -16,11 +17,13 @@ use iqaudit::{Capture, CaptureError, Error, OpenOptions, SampleFormat};
 
 mod analyse;
 mod batch;
+mod conventions;
 mod docs;
 mod profile_synth;
 use analyse::{AnalyseArgs, RecheckArgs};
 use batch::BatchArgs;
-use docs::SchemaArgs;
+use conventions::ColorWhen;
+use docs::{CompletionsArgs, ManArgs, SchemaArgs};
 use profile_synth::{ProfileArgs, SynthArgs};
 
 /// Audit recorded baseband IQ captures.
@@ -30,6 +33,11 @@ pub struct Cli {
     /// The command to run.
     #[command(subcommand)]
     pub command: Command,
+
+    /// Colour the terminal output: auto (a terminal, unless NO_COLOR is set and
+    /// not empty; CLICOLOR_FORCE forces it), always or never.
+    #[arg(long, global = true, value_enum, value_name = "WHEN", default_value_t = ColorWhen::Auto)]
+    pub color: ColorWhen,
 }
 
 /// The commands.
@@ -50,6 +58,10 @@ pub enum Command {
     Synth(Box<SynthArgs>),
     /// Print the JSON Schema of a document iqaudit writes (report, info, summary-row, synth-truth, recheck).
     Schema(SchemaArgs),
+    /// Print a shell completion script (bash, zsh, fish, elvish, powershell).
+    Completions(CompletionsArgs),
+    /// Print the man page (roff), or write one per command into a folder.
+    Man(ManArgs),
 }
 
 /// Arguments of `iqaudit info`.
@@ -64,7 +76,7 @@ pub struct InfoArgs {
     /// read by its header). Names are the SigMF datatype names: cf32_le, cf32_be,
     /// cf64_le, cf64_be, ci32_le, ci32_be, ci16_le, ci16_be, ci8, cu32_le,
     /// cu32_be, cu16_le, cu16_be, cu8.
-    #[arg(long, value_name = "F")]
+    #[arg(long, short = 'f', value_name = "F")]
     pub format: Option<String>,
 
     /// Zero point of unsigned samples (cu8/cu16/cu32): symmetric or power_of_two.
@@ -87,6 +99,13 @@ pub struct InfoArgs {
     /// round.
     #[arg(long)]
     pub swap_iq: bool,
+
+    /// Centre frequency in Hz, overriding a SigMF sidecar's core:frequency.
+    ///
+    /// Only labels the spectrum (absolute frequencies); the figures do not
+    /// depend on it.
+    #[arg(long, value_name = "HZ", value_parser = parse_rate)]
+    pub center_freq: Option<f64>,
 
     /// Print one JSON object (schema iqaudit.info/2) instead of text.
     ///
@@ -156,7 +175,7 @@ pub fn run(cli: Cli) -> Result<Outcome, Error> {
     match cli.command {
         Command::Analyse(args) => {
             plain_signals();
-            analyse::run_analyse(&args, &argv())
+            analyse::run_analyse(&args, &argv(), cli.color)
         }
         Command::Batch(args) => batch::run_batch_cmd(&args, &argv()),
         Command::Recheck(args) => analyse::run_recheck(&args),
@@ -166,6 +185,8 @@ pub fn run(cli: Cli) -> Result<Outcome, Error> {
         }
         Command::Profile(args) => profile_synth::run_profile(&args),
         Command::Schema(args) => docs::run_schema(&args),
+        Command::Completions(args) => docs::run_completions(&args),
+        Command::Man(args) => docs::run_man(&args),
         Command::Synth(args) => {
             plain_signals();
             profile_synth::run_synth(&args, &argv())
@@ -191,7 +212,12 @@ pub fn exit_code(result: Result<Outcome, Error>) -> ExitCode {
                 "iqaudit: {}",
                 iqaudit::text::escape_controls(&e.to_string())
             );
-            ExitCode::from(2)
+            // 4: the capture was read but its analysis failed; 2: usage or input.
+            ExitCode::from(if matches!(e, Error::Analysis { .. }) {
+                4
+            } else {
+                2
+            })
         }
     }
 }
@@ -244,7 +270,7 @@ fn run_info(args: &InfoArgs) -> Result<Outcome, Error> {
             .then(|| {
                 let bar = indicatif::ProgressBar::new(capture.len() as u64);
                 if let Ok(style) = indicatif::ProgressStyle::with_template(
-                    "{spinner} {bytes_per_sec:>0} reading {pos}/{len} samples [{bar:30}] {eta}",
+                    "{spinner} reading {human_pos}/{human_len} samples [{bar:30}] {per_sec} {eta}",
                 ) {
                     bar.set_style(style.progress_chars("=> "));
                 }
@@ -259,7 +285,16 @@ fn run_info(args: &InfoArgs) -> Result<Outcome, Error> {
     if let Some(b) = &bar {
         b.finish_and_clear();
     }
-    let report = info_report(&capture, &stats, &stats_opts);
+    let mut report = info_report(&capture, &stats, &stats_opts);
+    if let Some(f) = args.center_freq {
+        report.center_freq_hz = Some(f);
+        report.views = iqaudit::capture::views::capture_views(
+            &stats,
+            report.sample_rate_hz,
+            Some(f),
+            stats_opts.obw_fraction,
+        );
+    }
     if let Some(dir) = &args.plots {
         iqaudit::report::capture_plots::write_info_plots(&report, &[], &[], dir)?;
     }
@@ -321,7 +356,13 @@ fn render_info(r: &InfoReport, capture: &Capture) -> String {
     line("format", capture.format_description());
     line("samples", r.samples.to_string());
     line("sample rate", hz(r.sample_rate_hz));
-    line("centre frequency", hz(r.center_freq_hz));
+    line(
+        "centre frequency",
+        match r.center_freq_hz {
+            Some(_) => hz(r.center_freq_hz),
+            None => "unknown (give --center-freq; the figures do not need it)".into(),
+        },
+    );
     if capture.segments().len() > 1 {
         let list: Vec<String> = capture
             .segments()

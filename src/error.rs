@@ -36,6 +36,15 @@ pub enum Error {
     /// excite every tap).
     #[error("channel and equaliser: {0}")]
     Equalise(#[from] crate::equalise::EqualiseError),
+    /// The capture was read but its analysis could not complete: the channel
+    /// fit or an equaliser design failed on it (exit class 4, "analysis failed").
+    #[error("{}: analysis failed: channel and equaliser: {source}", path.display())]
+    Analysis {
+        /// The capture.
+        path: PathBuf,
+        /// What failed.
+        source: crate::equalise::EqualiseError,
+    },
     /// An output file could not be written.
     #[error(transparent)]
     Write(#[from] crate::atomic::WriteError),

@@ -17,6 +17,8 @@ missing=()
 command -v jq >/dev/null 2>&1 || missing+=(jq)
 command -v python3 >/dev/null 2>&1 || missing+=(python3)
 command -v node >/dev/null 2>&1 || missing+=(nodejs)
+# groff renders the generated man pages in tests/integration/cli_conventions.rs (#19).
+command -v groff >/dev/null 2>&1 || missing+=(groff-base)
 if [ "${#missing[@]}" -gt 0 ]; then
   apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq "${missing[@]}"
 fi

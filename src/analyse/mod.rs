@@ -125,7 +125,24 @@ pub struct AnalyseOptions {
 /// Unreadable capture, unusable profile, or a failure of a stage that is not a
 /// per-burst problem. A capture without training is not an error: its report has
 /// no bursts and the verdict `no-training`.
+///
+/// A channel fit or equaliser design that fails on the capture's data is
+/// [`Error::Analysis`] naming the capture.
 pub fn analyse_capture(
+    path: &Path,
+    profile: &ResolvedProfile,
+    opts: &AnalyseOptions,
+) -> Result<Report, Error> {
+    analyse_capture_unnamed(path, profile, opts).map_err(|e| match e {
+        Error::Equalise(source) => Error::Analysis {
+            path: path.to_path_buf(),
+            source,
+        },
+        e => e,
+    })
+}
+
+fn analyse_capture_unnamed(
     path: &Path,
     profile: &ResolvedProfile,
     opts: &AnalyseOptions,

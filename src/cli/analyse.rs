@@ -1,7 +1,7 @@
 //! `iqaudit analyse` / `analyze` and `iqaudit recheck`: argument types and the
 //! thin glue that turns them into library calls and output files.
 
-use std::io::{IsTerminal, Write};
+use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use clap::Args;
@@ -29,7 +29,7 @@ pub struct AnalyseArgs {
     #[arg(long, short = 'p', value_name = "P")]
     pub profile: Option<PathBuf>,
 
-    /// Write the JSON report here (atomically; never over the capture).
+    /// Write the JSON report here (atomically; never over the capture); `-` prints it on stdout.
     #[arg(long, short = 'r', value_name = "R.json")]
     pub report: Option<PathBuf>,
 
@@ -45,7 +45,7 @@ pub struct AnalyseArgs {
     ///
     /// One of the SigMF datatype names: cf32_le, cf32_be, cf64_le, ci16_le,
     /// ci16_be, ci8, cu8.
-    #[arg(long, value_name = "F")]
+    #[arg(long, short = 'f', value_name = "F")]
     pub format: Option<String>,
 
     /// Sample rate in Hz, overriding the profile and the file.
@@ -161,7 +161,15 @@ pub(crate) fn checked_jobs(jobs: Option<usize>) -> Result<Option<usize>, Error> 
 }
 
 /// Run `iqaudit analyse`.
-pub fn run_analyse(args: &AnalyseArgs, argv: &[String]) -> Result<Outcome, Error> {
+pub fn run_analyse(
+    args: &AnalyseArgs,
+    argv: &[String],
+    color: super::conventions::ColorWhen,
+) -> Result<Outcome, Error> {
+    // `--report -` is the JSON on stdout (as `--json`), not a file named `-`.
+    let report_to_stdout = args.report.as_deref() == Some(Path::new("-"));
+    let report_file = args.report.as_deref().filter(|_| !report_to_stdout);
+    let json_out = args.json || report_to_stdout;
     let profile_path = args
         .profile
         .clone()
@@ -179,11 +187,11 @@ pub fn run_analyse(args: &AnalyseArgs, argv: &[String]) -> Result<Outcome, Error
     let format = super::parse_format_arg(args.format.as_deref(), &args.capture)?;
     let inputs = input_paths(&args.capture, &profile_path);
     let inputs: Vec<&Path> = inputs.iter().map(PathBuf::as_path).collect();
-    if let Some(r) = &args.report {
+    if let Some(r) = report_file {
         check_output(r, &inputs)?;
     }
     if let Some(d) = &args.plots {
-        let others: Vec<&Path> = args.report.iter().map(PathBuf::as_path).collect();
+        let others: Vec<&Path> = report_file.into_iter().collect();
         iqaudit::atomic::ensure_plots_dir_clear(d, &inputs, &others)?;
     }
     let jobs = checked_jobs(args.jobs)?;
@@ -196,7 +204,7 @@ pub fn run_analyse(args: &AnalyseArgs, argv: &[String]) -> Result<Outcome, Error
         traced_bursts: args.traced_bursts,
         // The digest appears in the JSON (file or stdout) and on the plots'
         // index page; the terminal summary does not show it.
-        skip_input_hash: args.report.is_none() && !args.json && args.plots.is_none(),
+        skip_input_hash: args.report.is_none() && !json_out && args.plots.is_none(),
     };
     let run = || analyse_capture(&args.capture, &profile, &opts);
     let report = match jobs {
@@ -211,12 +219,12 @@ pub fn run_analyse(args: &AnalyseArgs, argv: &[String]) -> Result<Outcome, Error
     };
     // Serialise only when a JSON form is asked for (a file or stdout): on a
     // capture with thousands of bursts it is a noticeable share of the run.
-    let json = if args.report.is_some() || args.json || args.plots.is_some() {
+    let json = if args.report.is_some() || json_out || args.plots.is_some() {
         iqaudit::report::provenance::report_json(&report).map_err(|e| stdout_err(e.into()))?
     } else {
         Vec::new()
     };
-    if let Some(r) = &args.report {
+    if let Some(r) = report_file {
         write_atomic(r, &json)?;
     }
     if let Some(d) = &args.plots {
@@ -229,14 +237,20 @@ pub fn run_analyse(args: &AnalyseArgs, argv: &[String]) -> Result<Outcome, Error
             &json,
         )?;
     }
+    // Warnings go to stderr in every mode (stdout carries only the data).
+    for w in iqaudit::report::text::warning_lines(&report) {
+        eprintln!(
+            "iqaudit: {}: {}",
+            iqaudit::text::escaped_path(&args.capture),
+            iqaudit::text::escape_controls(&w)
+        );
+    }
     let mut out = std::io::stdout().lock();
-    if args.json {
+    if json_out {
         out.write_all(&json).map_err(stdout_err)?;
     } else {
-        let colour = std::io::stdout().is_terminal()
-            && std::env::var_os("NO_COLOR").is_none()
-            && std::env::var("TERM").map(|t| t != "dumb").unwrap_or(true);
-        out.write_all(iqaudit::report::text::render(&report, colour).as_bytes())
+        let colour = super::conventions::colour_stdout(color);
+        out.write_all(iqaudit::report::text::render_without_warnings(&report, colour).as_bytes())
             .map_err(stdout_err)?;
     }
     out.flush().map_err(stdout_err)?;

@@ -73,7 +73,7 @@ pub struct BatchArgs {
     pub quiet: bool,
 
     /// Raw sample format for every capture, overriding the profile, sidecars and extensions.
-    #[arg(long, value_name = "F")]
+    #[arg(long, short = 'f', value_name = "F")]
     pub format: Option<String>,
 
     /// Sample rate in Hz for every capture, overriding the profile and the files.

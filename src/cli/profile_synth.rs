@@ -100,14 +100,14 @@ pub struct SynthArgs {
     ///
     /// The payload comes from the profile's `payload.known` rule when it has one,
     /// otherwise it is drawn at random from the seed and listed in the truth file.
-    #[arg(long, value_name = "P")]
+    #[arg(long, short = 'p', value_name = "P")]
     pub profile: PathBuf,
 
     /// Output capture file; FILE.truth.json is written beside it.
     ///
     /// Written atomically. A raw format also gets a SigMF sidecar
     /// (NAME.sigmf-meta) unless --no-sigmf is given.
-    #[arg(long, value_name = "FILE")]
+    #[arg(long, short = 'o', value_name = "FILE")]
     pub out: PathBuf,
 
     /// Output format: cf32_le, cf32_be, cf64_le, ci16_le, ci16_be, ci8, cu8, wav_pcm8, wav_pcm16, wav_pcm24, wav_pcm32, wav_float32.
@@ -116,7 +116,7 @@ pub struct SynthArgs {
     /// the format the reader infers from the extension, else cf32_le; an
     /// extension naming another raw format than the profile's is refused.
     /// Integer formats quantise and clip at full scale.
-    #[arg(long, value_name = "F")]
+    #[arg(long, short = 'f', value_name = "F")]
     pub format: Option<String>,
 
     /// Sample rate in Hz (default: the profile's capture.sample_rate_hz).

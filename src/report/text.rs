@@ -10,6 +10,8 @@ use std::fmt::Write as _;
 
 struct Style {
     on: bool,
+    /// Warnings are printed in place (else [`warning_lines`] gives them).
+    warnings: bool,
 }
 
 impl Style {
@@ -111,8 +113,10 @@ fn burst_lines(out: &mut String, b: &BurstReport, st: &Style) {
     if let Some(ml) = &m.mlse {
         let _ = writeln!(out, "       {}", mlse_line(ml));
     }
-    for w in &b.warnings {
-        let _ = writeln!(out, "       {}", st.note(&format!("! {w}")));
+    if st.warnings {
+        for w in &b.warnings {
+            let _ = writeln!(out, "       {}", st.note(&format!("! {w}")));
+        }
     }
 }
 
@@ -146,9 +150,42 @@ fn mlse_line(ml: &crate::report::metrics::MlseReport) -> String {
     }
 }
 
+/// Every warning of the report, capture-level first, then each burst's in
+/// burst order, one line each: `warning: [code] message` or
+/// `warning: burst 3: [code] message`. The CLI prints them on stderr.
+pub fn warning_lines(report: &Report) -> Vec<String> {
+    let capture = report.warnings.iter().map(|w| format!("warning: {w}"));
+    let bursts = report.bursts.iter().flat_map(|b| {
+        b.warnings
+            .iter()
+            .map(move |w| format!("warning: burst {}: {w}", b.index))
+    });
+    capture.chain(bursts).collect()
+}
+
+/// The summary without its warnings (for stdout, with [`warning_lines`] on stderr).
+pub fn render_without_warnings(report: &Report, colour: bool) -> String {
+    render_with(
+        report,
+        Style {
+            on: colour,
+            warnings: false,
+        },
+    )
+}
+
 /// Render the summary (see the module documentation).
 pub fn render(report: &Report, colour: bool) -> String {
-    let st = Style { on: colour };
+    render_with(
+        report,
+        Style {
+            on: colour,
+            warnings: true,
+        },
+    )
+}
+
+fn render_with(report: &Report, st: Style) -> String {
     let mut out = String::new();
     let i = &report.input;
     let _ = writeln!(out, "{}", st.head(&format!("── capture  {}", i.path)));
@@ -156,12 +193,14 @@ pub fn render(report: &Report, colour: bool) -> String {
         out,
         "  {} samples of {} at {:.0} Hz ({:.3} s)",
         i.samples,
-        i.format,
+        i.format_description(),
         i.sample_rate_hz,
         i.samples as f64 / i.sample_rate_hz
     );
-    for w in &report.warnings {
-        let _ = writeln!(out, "  {}", st.note(&format!("! {w}")));
+    if st.warnings {
+        for w in &report.warnings {
+            let _ = writeln!(out, "  {}", st.note(&format!("! {w}")));
+        }
     }
     let _ = writeln!(
         out,

@@ -13,6 +13,7 @@ mod batch_kill;
 mod bounded_memory;
 mod capture_formats;
 mod carrier;
+mod cli_conventions;
 mod fuzz_seeds;
 mod info_cli;
 mod large_capture;
