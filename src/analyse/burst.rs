@@ -461,12 +461,17 @@ fn lock_warnings(i: &LockInputs<'_>, warnings: &mut Vec<Warning>) {
             ),
         ));
     }
-    if i.cfo_hz.abs() > i.max_cfo_hz {
+    // The estimate scatters around the true offset by its Cramér–Rao σ, so a
+    // transmitter at the edge of the range (or a range of 0, no search) is
+    // outside only when beyond the range by more than the rejection allowance.
+    let allowance_hz =
+        i.plan.burst_cfg.carrier.max_sigmas * c.training_sigma_cycles_per_symbol * rs;
+    if i.cfo_hz.abs() > i.max_cfo_hz + allowance_hz {
         warnings.push(Warning::new(
             WarningCode::LossOfLock,
             format!(
-                "the CFO {:+.1} Hz lies outside the search range ±{:.1} Hz (search.max_cfo_hz): the carrier estimate ran away or the range is too narrow for this transmitter",
-                i.cfo_hz, i.max_cfo_hz
+                "the CFO {:+.1} Hz lies outside the search range ±{:.1} Hz (search.max_cfo_hz) by more than the estimate's {:.0}σ allowance ({:.1} Hz): the carrier estimate ran away or the range is too narrow for this transmitter",
+                i.cfo_hz, i.max_cfo_hz, i.plan.burst_cfg.carrier.max_sigmas, allowance_hz
             ),
         ));
     }

@@ -157,6 +157,26 @@ fn a_cfo_outside_the_search_range_warns_of_loss_of_lock() {
 }
 
 #[test]
+fn a_zero_search_range_is_not_loss_of_lock_for_an_on_frequency_transmitter() {
+    // Source: estimation theory (common practice): an unbiased estimate of a
+    // zero offset scatters by its Cramér–Rao σ (Rife & Boorstyn 1974), so with
+    // `search.max_cfo_hz = 0` (no search) and a transmitter on frequency the
+    // reported CFO is a few hertz either side of 0 and is not a lost lock.
+    let dir = tempdir();
+    let p = profile(dir.path(), "z", "16qam", |v| {
+        v["search"]["max_cfo_hz"] = Value::from(0.0)
+    });
+    let args = ["--esn0-db", "30", "--bursts", "8", "--seed", "3"];
+    let (r, _) = run(dir.path(), &p, "z.cf32", &args);
+    let bursts = r["bursts"].as_array().unwrap();
+    assert_eq!(bursts.len(), 8);
+    for b in bursts {
+        let c = codes(b);
+        assert!(!c.iter().any(|c| LOCK_CODES.contains(&c.as_str())), "{c:?}");
+    }
+}
+
+#[test]
 fn a_payload_in_the_wrong_modulation_warns_of_loss_of_lock() {
     // Source: the decision-region rule of the lock warning (RMS error beyond
     // half the minimum distance) and the carrier bound (6 Cramér–Rao σ, Rife &
