@@ -358,8 +358,13 @@ impl Run<'_> {
         det: &Detection,
         want_detail: &(dyn Fn(f64) -> bool + Sync),
     ) -> Result<BurstReport, Error> {
-        let bs = self.sync.refine(src, det)?;
         let (plan, profile, sync, capture) = (self.plan, self.profile, self.sync, self.capture);
+        let peak = sync.refine(src, det)?;
+        // Time the burst for the equaliser's tap window, not the correlation peak (#15).
+        let bs = match &plan.window {
+            Some(w) => sync.align(src, &peak, &|z| w.score(z).cost, w.tolerance())?,
+            None => peak,
+        };
         analyse_burst(k, &bs, plan, profile, sync, src, capture, want_detail)
     }
 

@@ -8,7 +8,7 @@
 
 use super::AnalyseOptions;
 use crate::capture::{Capture, OpenOptions, SampleFormat};
-use crate::channel::{ChannelFitConfig, TapSpan};
+use crate::channel::{ChannelFitConfig, TapSpan, WindowCost};
 use crate::equalise::mlse::MlseConfig;
 use crate::equalise::tracking::{AdaptMode, TrackingConfig};
 use crate::equalise::BurstConfig;
@@ -49,6 +49,9 @@ pub(super) struct Plan {
     pub(super) center_freq_hz: Option<f64>,
     /// The MLSE reference detector, when the profile turns it on.
     pub(super) mlse: Option<MlseConfig>,
+    /// Cost of a sampling instant for the channel fit's tap window (`None` when the
+    /// training cannot support the span; the fit then reports why).
+    pub(super) window: Option<WindowCost>,
 }
 
 pub(super) fn usage(message: impl Into<String>) -> Error {
@@ -224,7 +227,14 @@ impl Plan {
                 max_pre, max_post, ..
             } => max_pre + max_post + 1,
         };
+        let window = WindowCost::new(
+            &training,
+            burst_cfg.channel.span,
+            burst_cfg.channel.max_condition,
+        )
+        .ok();
         Ok(Plan {
+            window,
             training,
             known_before,
             known_after,

@@ -16,9 +16,11 @@
 
 mod ls;
 mod noise;
+mod window;
 
 pub use ls::{fit_channel, fit_taps};
 pub use noise::{noise_variance_from_rss, significant_tap_count, snr_db};
+pub use window::{WindowCost, WindowScore};
 
 use crate::Cf64;
 use serde::{Deserialize, Serialize};

@@ -176,6 +176,12 @@ pub struct BurstReport {
     pub start_sample: u64,
     /// Fractional timing in samples, in [−0.5, 0.5): instant = `start_sample + timing_frac_samples`.
     pub timing_frac_samples: f64,
+    /// Instant of the training-correlation peak, capture samples (fractional). The
+    /// burst is timed at the instant best for the channel fit's tap window
+    /// (`start_sample + timing_frac_samples`), which differs from the peak on an
+    /// asymmetric channel.
+    #[serde(default)]
+    pub correlation_peak_samples: f64,
     /// Peak of the normalised correlation metric, in [0, 1].
     pub sync_metric: f64,
     /// Carrier frequency offset in Hz (training estimate plus decision-directed refinement).
@@ -490,6 +496,9 @@ pub enum WarningCode {
     LossOfLock,
     /// The DFE made clearly more symbol errors than the MLSE on the same channel.
     DfeBelowMlse,
+    /// A significant part of the channel's energy lies outside the fitted tap
+    /// window at the chosen sampling instant (it acts as unmodelled noise).
+    EnergyOutsideWindow,
 }
 
 impl fmt::Display for WarningCode {

@@ -12,7 +12,8 @@
 use std::ops::Range;
 
 use super::timing::{
-    best_instant, interpolate_with, sinc_weights, sinc_weights_f64, training_correlation, SINC_HALF,
+    best_instant, golden_max, interpolate_with, sinc_weights, sinc_weights_f64,
+    training_correlation, SINC_HALF,
 };
 use super::{
     cfo, derotate_run, read_padded, BurstSync, Detection, SampleSource, SymbolSpan, SyncError,
@@ -181,6 +182,114 @@ impl Synchroniser {
             phase_rad: corr.arg(),
             training_gain: corr.norm() / t_energy,
             symbols_in_capture: k_lo..k_hi.max(k_lo),
+            peak_instant: t0,
+        })
+    }
+
+    /// Move a refined burst's instant to the one that minimises `cost` of the
+    /// training-rate samples taken there (#15): e.g. [`crate::channel::WindowCost`],
+    /// the description length of the channel fit over its tap window, so that the
+    /// window holds as much of the sampled response as it can rather than being
+    /// centred on the correlation peak (the channel's energy centroid).
+    ///
+    /// Candidates: for the peak's symbol and its two neighbours (a whole symbol moves
+    /// the window by one tap), the best fractional instant within half a symbol
+    /// (every whole-sample offset scored, then golden section over ±1 sample around
+    /// the best to 1e-3 samples, kept only if it scores no worse). Of the three, the
+    /// nearest to the peak scoring within `tolerance` of the least is kept: two
+    /// alignments that both hold the whole response differ by noise only, and the
+    /// burst then keeps the correlation's alignment. The samples are the
+    /// same matched-filtered, CFO-corrected, interpolated values
+    /// [`Synchroniser::extract_symbols`] gives; phase and gain are taken again at the
+    /// chosen instant, CFO and metric are kept, `peak_instant` is kept.
+    pub fn align<S: SampleSource + ?Sized>(
+        &self,
+        src: &S,
+        bs: &BurstSync,
+        cost: &dyn Fn(&[Cf32]) -> f64,
+        tolerance: f64,
+    ) -> Result<BurstSync, SyncError> {
+        let fs = self.cfg.sample_rate_hz;
+        let sps = self.cfg.sps;
+        let f = bs.cfo_hz / fs;
+        let t_peak = bs.instant();
+        let n = self.training.len();
+        let reach = (sps + sps.div_ceil(2)) as i64 + 2;
+        let margin = reach + SINC_HALF as i64;
+        let first = t_peak.floor() as i64 - margin;
+        let count = (n.max(1) - 1) * sps + 2 * margin as usize + 1;
+        let y = self.mf_region(src, first, count, f, t_peak)?;
+        let mut z = vec![Cf32::new(0.0, 0.0); n];
+        let eval = |t: f64| {
+            let pos = t - first as f64;
+            let (pn, w) = (pos.floor(), sinc_weights(pos - pos.floor()));
+            for (k, o) in z.iter_mut().enumerate() {
+                *o = interpolate_with(&y, pn as i64 + (k * sps) as i64, &w);
+            }
+            let c = cost(&z);
+            if c.is_nan() {
+                f64::INFINITY
+            } else {
+                c
+            }
+        };
+        // The best fractional instant within half a symbol of `c`: whole-sample grid,
+        // then golden section over ±1 sample (kept only if no worse).
+        let half = sps.div_ceil(2) as i64;
+        let eval = std::cell::RefCell::new(eval);
+        let fractional = |c: f64| {
+            let mut best = (c, (eval.borrow_mut())(c));
+            for d in 1..=half {
+                for j in [-d, d] {
+                    let v = (eval.borrow_mut())(c + j as f64);
+                    if v < best.1 {
+                        best = (c + j as f64, v);
+                    }
+                }
+            }
+            let g = golden_max(
+                |t| -(eval.borrow_mut())(t),
+                best.0 - 1.0,
+                best.0 + 1.0,
+                1e-3,
+            );
+            let v = (eval.borrow_mut())(g);
+            if v <= best.1 {
+                (g, v)
+            } else {
+                best
+            }
+        };
+        // The window's alignment: the peak's symbol and its two neighbours; the nearest
+        // to the peak of those within tolerance of the least cost.
+        let spsf = sps as f64;
+        let cands = [0.0, -spsf, spsf].map(|j| fractional(t_peak + j));
+        let least = cands.iter().map(|c| c.1).fold(f64::INFINITY, f64::min);
+        let tol = if tolerance.is_finite() {
+            tolerance.max(0.0)
+        } else {
+            0.0
+        };
+        let t0 = cands
+            .iter()
+            .find(|c| c.1 <= least + tol)
+            .map_or(t_peak, |c| c.0);
+        let pos = t0 - first as f64;
+        let corr = training_correlation(&y, &self.training, sps, pos)
+            * Cf64::from_polar(1.0, std::f64::consts::TAU * f * (t0 - t_peak));
+        let t_energy: f64 = self.training.iter().map(|t| f64::from(t.norm_sqr())).sum();
+        let start_sample = (t0 + 0.5).floor() as i64;
+        let len = src.len() as f64;
+        let k_lo = (-t0 / spsf).ceil() as i64;
+        let k_hi = ((len - 1.0 - t0) / spsf).floor() as i64 + 1;
+        Ok(BurstSync {
+            start_sample,
+            timing_frac: t0 - start_sample as f64,
+            phase_rad: corr.arg(),
+            training_gain: corr.norm() / t_energy.max(f64::MIN_POSITIVE),
+            symbols_in_capture: k_lo..k_hi.max(k_lo),
+            peak_instant: bs.peak_instant,
+            ..bs.clone()
         })
     }
 

@@ -219,6 +219,11 @@ pub struct BurstSync {
     pub training_gain: f64,
     /// Symbol indices whose instants lie inside the capture (`0` = first training symbol).
     pub symbols_in_capture: Range<i64>,
+    /// Instant of the training-correlation peak, samples. [`Synchroniser::refine`]
+    /// times the burst there; [`Synchroniser::align`] moves the instant to the one
+    /// best for the channel fit and keeps this.
+    #[serde(default)]
+    pub peak_instant: f64,
 }
 
 impl BurstSync {

@@ -27,5 +27,6 @@ mod sigmf_reference;
 mod signal;
 mod sync;
 mod synth;
+mod timing;
 mod util;
 mod wav_edges;
