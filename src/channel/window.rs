@@ -195,10 +195,8 @@ impl WindowCost {
             // L·u = (Xᴴz) restricted to the model's columns; RSS = ‖z‖² − ‖u‖².
             let mut captured = 0.0;
             for i in 0..k {
-                let mut v = rhs[a0 + i];
-                for p in 0..i {
-                    v -= md.chol[i * k + p] * u[p];
-                }
+                let row = &md.chol[i * k..i * k + i];
+                let v = rhs[a0 + i] - row.iter().zip(&u[..i]).map(|(l, x)| l * x).sum::<Cf64>();
                 u[i] = v / md.chol[i * k + i].re;
                 captured += u[i].norm_sqr();
             }

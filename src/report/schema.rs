@@ -31,7 +31,8 @@
 //! `iqaudit.report/N` (one scheme with `iqaudit.info/N`, `iqaudit.synth-truth/N`,
 //! `iqaudit.recheck/N`), split `input.format` (`"ci16_le (from SigMF sidecar)"`)
 //! into `format`, `format_source` and `swap_iq`, and dropped
-//! `provenance.tool_version` (it repeated `tool.version`); issue #19. `/3` added `capture` (the capture views),
+//! `provenance.tool_version` (it repeated `tool.version`); issue #19. Within `/4`, `bursts[].correlation_peak_samples` and the warning code
+//! `energy-outside-window` were added (issue #15; the key reads as 0 from an earlier `/4`). `/3` added `capture` (the capture views),
 //! `bursts[].received_power_dbfs`, `channel.training_symbols`,
 //! `equaliser.feedforward`/`feedback` (the coefficients), `trace.eye_matched`
 //! and `trace.eye_equalised`, and `verdict.checks[].margin` (issue #20); every
