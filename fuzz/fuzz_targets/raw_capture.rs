@@ -25,6 +25,9 @@ fn non_finite_reference(format: SampleFormat, bytes: &[u8]) -> u64 {
                 SampleFormat::Cf64Le => {
                     !(f64::from_le_bytes(b.try_into().unwrap()) as f32).is_finite()
                 }
+                SampleFormat::Cf64Be => {
+                    !(f64::from_be_bytes(b.try_into().unwrap()) as f32).is_finite()
+                }
                 _ => false,
             };
             bad(i) || bad(q)
@@ -48,10 +51,7 @@ fuzz_target!(|data: &[u8]| {
     let st = cap.read_into(0, &mut whole).expect("in-range read");
     assert_eq!(st.non_finite, non_finite_reference(format, &bytes));
     assert!(st.clipped + st.non_finite <= cap.len() as u64);
-    let integer = !matches!(
-        format,
-        SampleFormat::Cf32Le | SampleFormat::Cf32Be | SampleFormat::Cf64Le
-    );
+    let integer = !format.is_float();
     for s in &whole {
         assert!(s.re.is_finite() && s.im.is_finite(), "{s}");
         if integer {

@@ -32,6 +32,7 @@ fuzz_target!(|data: &[u8]| {
                     CaptureError::SigmfJson { .. }
                         | CaptureError::SigmfKey { .. }
                         | CaptureError::SigmfDatatype { .. }
+                        | CaptureError::SigmfRealDatatype { .. }
                 ),
                 "{e:?}"
             );
