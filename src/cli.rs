@@ -387,10 +387,13 @@ fn render_info(r: &InfoReport, capture: &Capture) -> String {
             opt(r.dc_relative_db, 1, "dB")
         ),
     );
-    line(
-        "clipped",
-        format!("{} ({:.4} %)", r.clipped_samples, r.clipped_percent),
-    );
+    match r.above_full_scale_samples {
+        Some(n) => line("above full scale (float)", n.to_string()),
+        None => line(
+            "clipped",
+            format!("{} ({:.4} %)", r.clipped_samples, r.clipped_percent),
+        ),
+    }
     line("non-finite", r.non_finite_samples.to_string());
     line(
         "IQ imbalance (blind)",

@@ -10,6 +10,7 @@
 //! response are computed only when `want_detail` says the burst may be traced.
 
 use super::detail::{channel_report, trace};
+use super::frontend::{correct_front_end, FrontEnd};
 use super::mlse::{burst_mlse, mlse_warning};
 use super::plan::{chosen_name, tracking_name, usage, Plan};
 use super::CONFIDENCE;
@@ -105,6 +106,10 @@ fn equalise_frame(
         known: frame.known.as_deref(),
     };
     let mut cfg = plan.burst_cfg;
+    // The receiver's DC and image were removed from the frame beforehand
+    // (`super::frontend`); the fits that follow model the channel only.
+    cfg.channel.dc_offset = false;
+    cfg.channel.iq_imbalance = false;
     let l = plan.training.len();
     let span = frame.offset - plan.before..frame.offset + l + plan.after;
     let start = span.start.max(frame.avail.start);
@@ -112,6 +117,50 @@ fn equalise_frame(
     // The ZF-DFE's pass is needed only when it is the choice.
     cfg.run_zf_dfe = chosen_name(profile) == "zf-dfe";
     Ok(process_burst(&view, &cfg)?)
+}
+
+/// The burst's symbols laid out like the frame — training, then the known
+/// payload or else the decisions of the profile's equaliser (the MMSE-DFE's if
+/// it refused) — and the DC/IQ fit over all of them
+/// ([`super::frontend::refine_front_end`]).
+#[allow(clippy::too_many_arguments)]
+fn refine_pass(
+    frame: &Frame,
+    raw: &[Cf32],
+    out: &BurstOutput,
+    first: &FrontEnd,
+    bs: &BurstSync,
+    plan: &Plan,
+    profile: &ResolvedProfile,
+    sync: &Synchroniser,
+) -> Option<(Vec<Cf32>, FrontEnd)> {
+    let l = plan.training.len();
+    let span = (frame.offset - plan.before).max(frame.avail.start)
+        ..(frame.offset + l + plan.after).min(frame.avail.end);
+    let symbols: Vec<Cf32> = match &frame.known {
+        Some(k) => k.clone(),
+        None => {
+            let (_, s) = pick(out, chosen_name(profile)).or_else(|| pick(out, "mmse-dfe"))?;
+            let points = plan.constellation.points();
+            let mut v: Vec<Cf32> = s.labels.iter().map(|&i| points[i]).collect();
+            v.resize(raw.len(), Cf32::new(0.0, 0.0));
+            v[frame.offset..frame.offset + l].copy_from_slice(&plan.training);
+            v
+        }
+    };
+    let delta = std::f64::consts::TAU * out.carrier.refined_cfo_cycles_per_symbol;
+    super::frontend::refine_front_end(
+        first,
+        raw,
+        &symbols,
+        span,
+        frame.avail.clone(),
+        frame.offset,
+        delta,
+        plan,
+        bs.cfo_hz,
+        sync.pulse(),
+    )
 }
 
 /// The reported equaliser: the profile's choice, or the MMSE-DFE if it refused
@@ -167,6 +216,27 @@ fn linear_evm(
     crate::report::metrics::evm(&z, &reference).map(|f| f.evm_rms_percent)
 }
 
+/// The receiver DC (full-scale units) the front-end fit sees in the burst timed
+/// at `bs`, if it stands above its estimation noise.
+pub(super) fn probe_dc<S: SampleSource + ?Sized>(
+    bs: &BurstSync,
+    plan: &Plan,
+    sync: &Synchroniser,
+    src: &S,
+) -> Result<Option<Cf64>, Error> {
+    let mut frame = extract_frame(bs, plan, sync, src)?;
+    let fe = correct_front_end(
+        &mut frame.y,
+        frame.offset,
+        frame.avail.clone(),
+        plan,
+        bs.cfo_hz,
+        sync.pulse(),
+        &mut Vec::new(),
+    );
+    Ok(fe.dc_seen)
+}
+
 /// Analyse one synchronised burst (see the module documentation).
 #[allow(clippy::too_many_arguments)]
 pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
@@ -180,7 +250,18 @@ pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
     want_detail: &(dyn Fn(f64) -> bool + Sync),
 ) -> Result<BurstReport, Error> {
     let mut warnings = Vec::new();
-    let frame = extract_frame(bs, plan, sync, src)?;
+    let mut frame = extract_frame(bs, plan, sync, src)?;
+    let ch = &plan.burst_cfg.channel;
+    let raw = (ch.dc_offset || ch.iq_imbalance).then(|| frame.y.clone());
+    let mut front_end = correct_front_end(
+        &mut frame.y,
+        frame.offset,
+        frame.avail.clone(),
+        plan,
+        bs.cfo_hz,
+        sync.pulse(),
+        &mut warnings,
+    );
     if frame.truncated {
         warnings.push(Warning::new(
             WarningCode::BurstTruncated,
@@ -191,7 +272,15 @@ pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
             ),
         ));
     }
-    let out = equalise_frame(&frame, plan, profile)?;
+    let mut out = equalise_frame(&frame, plan, profile)?;
+    if let Some(raw) = &raw {
+        // Decision-directed second pass of the DC/IQ fit over the whole burst.
+        if let Some((y, fe)) = refine_pass(&frame, raw, &out, &front_end, bs, plan, profile, sync) {
+            frame.y = y;
+            front_end = fe;
+            out = equalise_frame(&frame, plan, profile)?;
+        }
+    }
     let (name, filters, eq) = chosen_result(&out, profile, index, &mut warnings)?;
 
     // Figures of merit over the payload present.
@@ -252,9 +341,17 @@ pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
     let linear_evm = linear_evm(&out, &frame, known_payload.as_deref(), plan);
     let mut channel = channel_report(&out.channel, detail);
     channel.training_symbols = plan.training.len();
+    let received_power = region_warnings(bs, plan, capture, &front_end, &mut warnings)?;
+    channel.dc = front_end.dc.map(|d| [d.re, d.im]);
+    channel.dc_relative_db = front_end
+        .dc
+        .zip(received_power)
+        .map(|(d, p)| 10.0 * d.norm_sqr().max(1e-300).log10() - p);
+    channel.iq_gain_imbalance_db = front_end.iq.map(|(g, _)| g);
+    channel.iq_phase_imbalance_deg = front_end.iq.map(|(_, p)| p);
+    channel.image_level_db = front_end.image_db;
     channel_warnings(&out, bs, sync, &mut warnings);
     window_warning(&out, frame.offset, plan, &mut warnings);
-    let received_power = region_warnings(bs, plan, capture, &mut warnings)?;
 
     let refined_hz = out.carrier.refined_cfo_cycles_per_symbol * plan.symbol_rate_hz;
     let cfo_hz = bs.cfo_hz + refined_hz;
@@ -595,12 +692,15 @@ fn pick<'a>(out: &'a BurstOutput, name: &str) -> Option<(&'a DfeFilters, &'a Equ
     }
 }
 
-/// Clipping, non-finite samples and DC over the burst's own samples; returns
-/// their mean power in dBFS (`None` for zero power or no samples).
+/// Clipping (integer formats: samples at the extreme codes) or samples above
+/// full scale (float formats), non-finite samples, and the receiver DC the
+/// front-end fit saw, over the burst's own samples; returns their mean power
+/// in dBFS (`None` for zero power or no samples).
 fn region_warnings(
     bs: &BurstSync,
     plan: &Plan,
     capture: &Capture,
+    front_end: &FrontEnd,
     warnings: &mut Vec<Warning>,
 ) -> Result<Option<f64>, Error> {
     let sps = plan.sps as i64;
@@ -614,14 +714,25 @@ fn region_warnings(
     let mut buf = vec![Cf32::new(0.0, 0.0); hi - lo];
     let stats = capture.read_into(lo, &mut buf)?;
     if stats.clipped > 0 {
-        warnings.push(Warning::new(
-            WarningCode::Clipping,
-            format!(
-                "{} of the burst's {} samples sit at full scale; reduce the receiver gain",
-                stats.clipped,
-                buf.len()
-            ),
-        ));
+        if capture.container().is_float() {
+            warnings.push(Warning::new(
+                WarningCode::AboveFullScale,
+                format!(
+                    "{} of the burst's {} float samples have I or Q beyond ±1.0: nothing clipped in the file, but the level is above full scale",
+                    stats.clipped,
+                    buf.len()
+                ),
+            ));
+        } else {
+            warnings.push(Warning::new(
+                WarningCode::Clipping,
+                format!(
+                    "{} of the burst's {} samples sit at the format's extreme codes; reduce the receiver gain",
+                    stats.clipped,
+                    buf.len()
+                ),
+            ));
+        }
     }
     if stats.non_finite > 0 {
         warnings.push(Warning::new(
@@ -632,27 +743,19 @@ fn region_warnings(
             ),
         ));
     }
-    let n = buf.len() as f64;
-    let (mut sum, mut power) = (Cf64::new(0.0, 0.0), 0.0f64);
-    for s in &buf {
-        sum += Cf64::new(f64::from(s.re), f64::from(s.im));
-        power += f64::from(s.norm_sqr());
-    }
-    let dc = sum / n;
-    let mean_power = power / n;
-    if mean_power > 0.0 && dc.norm_sqr() / mean_power > 0.01 {
+    let power = buf.iter().map(|s| f64::from(s.norm_sqr())).sum::<f64>() / buf.len() as f64;
+    if let Some(dc) = front_end.dc_seen.filter(|d| power > 0.0 && d.norm_sqr() / power > 0.01) {
+        let rel = 10.0 * (dc.norm_sqr() / power).log10();
+        let what = format!(
+            "receiver DC I {:+.4}, Q {:+.4} ({rel:.1} dB relative to the burst power)",
+            dc.re, dc.im
+        );
         let advice = if plan.burst_cfg.channel.dc_offset {
-            "the channel fit removes it (channel_fit.dc_offset is on)"
+            "was removed before equalisation (channel_fit.dc_offset is on)".to_string()
         } else {
-            "enable channel_fit.dc_offset"
+            "costs MER; enable channel_fit.dc_offset to remove it".to_string()
         };
-        warnings.push(Warning::new(
-            WarningCode::StrongDc,
-            format!(
-                "DC offset {:.1} dB relative to the burst power; {advice}",
-                10.0 * (dc.norm_sqr() / mean_power).log10()
-            ),
-        ));
+        warnings.push(Warning::new(WarningCode::StrongDc, format!("{what} {advice}")));
     }
-    Ok((mean_power > 0.0).then(|| 10.0 * mean_power.log10()))
+    Ok((power > 0.0).then(|| 10.0 * power.log10()))
 }

@@ -64,10 +64,13 @@ pub(super) fn channel_report(ch: &ChannelEstimate, detail: bool) -> ChannelRepor
         noise_variance: ch.noise_var,
         snr_db: ch.snr_db,
         dc: ch.dc.map(|d| [d.re, d.im]),
+        dc_relative_db: None,
         image_level_db: ch.conj_taps.as_ref().map(|g| {
             let gp: f64 = g.iter().map(|v| v.norm_sqr()).sum();
             10.0 * (gp.max(1e-300) / total).log10()
         }),
+        iq_gain_imbalance_db: None,
+        iq_phase_imbalance_deg: None,
         training_symbols: 0,
         span_choice: match ch.span_choice {
             SpanChoice::Fixed => "fixed".into(),

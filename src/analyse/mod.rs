@@ -55,6 +55,7 @@
 
 mod burst;
 mod detail;
+mod frontend;
 mod mlse;
 mod plan;
 mod rate;
@@ -69,7 +70,7 @@ use crate::report::schema::{
     BurstReport, InputFormatSource, InputInfo, Provenance, Report, ToolInfo, Warning, WarningCode,
     SCHEMA,
 };
-use crate::sync::{ChunkReader, Detection, SampleSource, Synchroniser};
+use crate::sync::{BurstSync, ChunkReader, Detection, SampleSource, Synchroniser};
 use crate::{Cf32, Error};
 use burst::analyse_burst;
 pub use plan::open_capture;
@@ -359,12 +360,15 @@ impl Run<'_> {
         want_detail: &(dyn Fn(f64) -> bool + Sync),
     ) -> Result<BurstReport, Error> {
         let (plan, profile, sync, capture) = (self.plan, self.profile, self.sync, self.capture);
-        let peak = sync.refine(src, det)?;
-        // Time the burst for the equaliser's tap window, not the correlation peak (#15).
-        let bs = match &plan.window {
-            Some(w) => sync.align(src, &peak, &|z| w.score(z).cost, w.tolerance())?,
-            None => peak,
-        };
+        let mut bs = time_burst(sync, plan, src, det)?;
+        // A receiver DC the front-end fit sees pulls the timing: time the burst
+        // again on the samples less that DC (#17); the burst then fits and
+        // removes the DC itself.
+        if plan.burst_cfg.channel.dc_offset {
+            if let Some(dc) = burst::probe_dc(&bs, plan, sync, src)? {
+                bs = time_burst(sync, plan, &frontend::LessDc::new(src, dc), det)?;
+            }
+        }
         analyse_burst(k, &bs, plan, profile, sync, src, capture, want_detail)
     }
 
@@ -415,4 +419,19 @@ impl Run<'_> {
         }
         Ok(())
     }
+}
+
+/// Refine a detection and time the burst for the equaliser's tap window, not
+/// the correlation peak (#15).
+fn time_burst<S: SampleSource + ?Sized>(
+    sync: &Synchroniser,
+    plan: &Plan,
+    src: &S,
+    det: &Detection,
+) -> Result<BurstSync, Error> {
+    let peak = sync.refine(src, det)?;
+    Ok(match &plan.window {
+        Some(w) => sync.align(src, &peak, &|z| w.score(z).cost, w.tolerance())?,
+        None => peak,
+    })
 }

@@ -351,6 +351,15 @@ pub enum Container {
 }
 
 impl Container {
+    /// True for float samples (raw `cf32_*`/`cf64_*`, WAV float), which have no
+    /// extreme code: a value beyond ±1.0 is *above full scale*, not clipped.
+    pub fn is_float(self) -> bool {
+        match self {
+            Container::Raw(f) => f.is_float(),
+            Container::Wav(e) => matches!(e, WavEncoding::Float32 | WavEncoding::Float64),
+        }
+    }
+
     /// Bytes per complex sample.
     pub fn bytes_per_sample(self) -> usize {
         match self {
@@ -402,7 +411,8 @@ pub enum FormatSource {
 /// Clipped and non-finite counts over a decoded range (complex samples).
 #[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 pub struct ReadStats {
-    /// Samples with I or Q at the most negative/positive code (floats: `|x| ≥ 1`).
+    /// Samples with I or Q at the most negative/positive code (floats: `|x| ≥ 1`,
+    /// which callers report as *above full scale*, see [`Container::is_float`]).
     pub clipped: u64,
     /// Samples with a non-finite I or Q; they are replaced by 0 in the output.
     pub non_finite: u64,

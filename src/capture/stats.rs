@@ -33,7 +33,8 @@
 //! memory): with DC removed, for a circular signal `E[I²] = E[Q²]` and
 //! `E[IQ] = 0`. The receiver's gain imbalance is `g = sqrt(E[Q²]/E[I²])`
 //! (reported as `10·log10(E[Q²]/E[I²])` dB) and its phase imbalance
-//! `φ = asin(E[IQ]/sqrt(E[I²]E[Q²]))`. Meaningful only when the signal itself is
+//! `φ = −asin(E[IQ]/sqrt(E[I²]E[Q²]))`, in the crate's convention
+//! `Q' = g·(Q·cos φ − I·sin φ)` shared with `synth` and the report (`src/lib.rs`). Meaningful only when the signal itself is
 //! circular (noise, QAM/PSK with random data), not for a single real tone.
 
 use std::sync::Arc;
@@ -498,7 +499,9 @@ pub const INFO_SCHEMA: &str = "iqaudit.info/2";
 ///   (peak over mean power).
 /// * `dc_i`, `dc_q` (mean of I and Q, full-scale units), `dc_relative_db`
 ///   (`|mean|²` over mean power, dB).
-/// * `clipped_samples`, `clipped_percent`, `non_finite_samples`.
+/// * `clipped_samples`, `clipped_percent` (samples at the format's extreme
+///   codes; always 0 for float formats), `above_full_scale_samples` (float
+///   formats: I or Q beyond ±1.0), `non_finite_samples`.
 /// * `iq_gain_imbalance_db` (`10·log10(var Q / var I)`), `iq_phase_imbalance_deg`.
 /// * `psd_fft_len`, `psd_resolution_hz` (`fs/N`; `null` without a rate),
 ///   `psd_segments_averaged`, `psd_segments_available`.
@@ -554,6 +557,11 @@ pub struct InfoReport {
     pub clipped_samples: u64,
     /// Clipped samples, percent of all.
     pub clipped_percent: f64,
+    /// Float captures only: samples with I or Q beyond ±1.0 (they are not
+    /// clipped — a float has no extreme code — but lie above full scale);
+    /// `null` for integer formats.
+    #[serde(default)]
+    pub above_full_scale_samples: Option<u64>,
     /// Non-finite samples (counted as 0 in the figures).
     pub non_finite_samples: u64,
     /// IQ gain imbalance, dB.
@@ -603,7 +611,8 @@ pub fn info_report(capture: &Capture, stats: &CaptureStats, opts: &StatsOptions)
         let rho = (stats.cov_iq / (stats.var_i * stats.var_q).sqrt()).clamp(-1.0, 1.0);
         (
             Some(10.0 * (stats.var_q / stats.var_i).log10()),
-            Some(rho.asin().to_degrees()),
+            // Q' = g·(Q·cos φ − I·sin φ) gives E[I·Q'] = −g·sin φ·E[I²]: φ = −asin ρ.
+            Some(-rho.asin().to_degrees()),
         )
     } else {
         (None, None)
@@ -624,7 +633,22 @@ pub fn info_report(capture: &Capture, stats: &CaptureStats, opts: &StatsOptions)
             ),
         });
     }
-    if stats.read.clipped > 0 {
+    let float = capture.container().is_float();
+    let (clipped, above_full_scale) = if float {
+        (0, Some(stats.read.clipped))
+    } else {
+        (stats.read.clipped, None)
+    };
+    if let Some(n) = above_full_scale.filter(|n| *n > 0) {
+        warnings.push(InfoWarning {
+            kind: "above_full_scale",
+            message: format!(
+                "{n} float sample(s) have I or Q beyond ±1.0 ({:.4} %): nothing clipped in the file, but dBFS figures exceed 0 and a conversion to integers would clip",
+                100.0 * n as f64 / nonzero
+            ),
+        });
+    }
+    if clipped > 0 {
         warnings.push(InfoWarning {
             kind: "clipping",
             message: format!(
@@ -667,8 +691,9 @@ pub fn info_report(capture: &Capture, stats: &CaptureStats, opts: &StatsOptions)
         dc_relative_db: (stats.mean_power > 0.0)
             .then(|| db((stats.dc_i * stats.dc_i + stats.dc_q * stats.dc_q) / stats.mean_power))
             .flatten(),
-        clipped_samples: stats.read.clipped,
-        clipped_percent: 100.0 * stats.read.clipped as f64 / nonzero,
+        clipped_samples: clipped,
+        clipped_percent: 100.0 * clipped as f64 / nonzero,
+        above_full_scale_samples: above_full_scale,
         non_finite_samples: stats.read.non_finite,
         iq_gain_imbalance_db: gain,
         iq_phase_imbalance_deg: phase,
@@ -881,7 +906,8 @@ mod tests {
     }
 
     // Blind second-order IQ-imbalance estimate (common practice, from memory):
-    // apply I = x, Q = g·(y·cos φ + x·sin φ) to circular noise and recover g, φ.
+    // apply the crate's convention I = x, Q = g·(y·cos φ − x·sin φ) (as synth
+    // does) to circular noise and recover g, φ.
     // Tolerance: each variance has relative standard error sqrt(2/n), so the
     // ratio in dB has ≈ 4.34·sqrt(4/n) ≈ 0.0085 dB for n = 2^20; the correlation
     // ≈ 1/sqrt(n) rad ≈ 0.056°. 0.05 dB and 0.3° are about 6 standard errors.
@@ -893,7 +919,7 @@ mod tests {
             .into_iter()
             .map(|s| {
                 let (i, q) = (f64::from(s.re), f64::from(s.im));
-                Cf32::new(i as f32, (g * (q * phi.cos() + i * phi.sin())) as f32)
+                Cf32::new(i as f32, (g * (q * phi.cos() - i * phi.sin())) as f32)
             })
             .collect();
         let c = cap(&x);

@@ -14,10 +14,12 @@
 //! (1 for the crate's unit-power constellations) and `σ² = E|n|²`.
 //! All computation is in `f64`.
 
+mod front_end;
 mod ls;
 mod noise;
 mod window;
 
+pub use front_end::{beta_from_imbalance, fit_front_end, imbalance_from_beta, FrontEndFit};
 pub use ls::{fit_channel, fit_taps};
 pub use noise::{noise_variance_from_rss, significant_tap_count, snr_db};
 pub use window::{WindowCost, WindowScore};

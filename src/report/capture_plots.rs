@@ -435,10 +435,13 @@ pub fn info_index_html(r: &crate::capture::stats::InfoReport) -> String {
                 opt(r.dc_relative_db, 1, "dB")
             ),
         ),
-        (
-            "clipped",
-            format!("{} ({:.4} %)", r.clipped_samples, r.clipped_percent),
-        ),
+        match r.above_full_scale_samples {
+            Some(n) => ("above full scale (float)", n.to_string()),
+            None => (
+                "clipped",
+                format!("{} ({:.4} %)", r.clipped_samples, r.clipped_percent),
+            ),
+        },
         (
             "occupied bandwidth",
             match r.obw_hz {

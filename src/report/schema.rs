@@ -237,10 +237,24 @@ pub struct ChannelReport {
     pub noise_variance: f64,
     /// SNR at the symbol-rate matched-filter output, dB.
     pub snr_db: f64,
-    /// Fitted DC term `[re, im]`; `null` when not fitted.
+    /// Receiver DC removed from the burst, `[I, Q]` in full-scale units at the
+    /// capture's input (fitted as a phasor at −CFO after derotation, so it is
+    /// found at any CFO); `null` when `channel_fit.dc_offset` is off.
     pub dc: Option<Complex2>,
-    /// Power of the fitted conjugate (image, IQ-imbalance) taps relative to the direct taps, dB; `null` when not fitted.
+    /// Power of the removed DC relative to the burst's received power, dB;
+    /// `null` when not fitted.
+    #[serde(default)]
+    pub dc_relative_db: Option<f64>,
+    /// Power of the removed image relative to the signal, `20·log10|K2/K1*|` dB
+    /// (receiver IQ imbalance); `null` when `channel_fit.iq_imbalance` is off.
     pub image_level_db: Option<f64>,
+    /// Receiver gain imbalance removed, dB: `20·log10 g` in the model
+    /// `Q' = g·(Q·cos φ − I·sin φ)` shared with `synth` and `info`; `null` when not fitted.
+    #[serde(default)]
+    pub iq_gain_imbalance_db: Option<f64>,
+    /// Receiver phase imbalance removed, degrees: `φ` of the same model; `null` when not fitted.
+    #[serde(default)]
+    pub iq_phase_imbalance_deg: Option<f64>,
     /// How the tap counts were chosen: `fixed` or `mdl`.
     pub span_choice: String,
     /// Training symbols N the taps were fitted over. Each tap's estimation
@@ -469,8 +483,10 @@ pub struct Warning {
 #[serde(rename_all = "kebab-case")]
 #[non_exhaustive]
 pub enum WarningCode {
-    /// Samples at full scale.
+    /// Integer samples at the format's extreme codes.
     Clipping,
+    /// Float samples with I or Q beyond ±1.0 (above full scale; nothing clipped).
+    AboveFullScale,
     /// DC offset strong relative to the signal.
     StrongDc,
     /// The capture ends inside a burst.

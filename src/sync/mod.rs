@@ -507,6 +507,10 @@ impl Synchroniser {
     pub fn reference(&self) -> &[Cf32] {
         &self.reference
     }
+    /// Matched-filter pulse taps (odd length, centred) the extraction applies.
+    pub fn pulse(&self) -> &[f32] {
+        &self.pulse
+    }
     /// Index in [`Synchroniser::reference`] of the first training symbol's instant.
     pub fn reference_head(&self) -> usize {
         self.head
