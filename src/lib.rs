@@ -50,6 +50,12 @@
 //!   by `exp(−j·2π·cfo_hz·t)`. Carrier phase (`phase_rad`) is the residual phase of
 //!   the received training block relative to the reference, at the first training
 //!   symbol, after CFO correction.
+//! * **Receiver DC and IQ imbalance**: the receiver samples
+//!   `r = K1·s + K2·conj(s) + d` of the signal `s` it should see, with
+//!   `I' = I, Q' = g·(Q·cos φ − I·sin φ)`, i.e. `K1 = (1 + g·e^{−jφ})/2` and
+//!   `K2 = (1 − g·e^{jφ})/2`; gain imbalance is `20·log10 g` dB, phase imbalance
+//!   `φ` degrees. `synth` applies this model, `info` estimates it blind and the
+//!   report gives what the fit removed, all with this sign.
 //! * **Channel taps**: the symbol-spaced model is
 //!   `y[k] = Σ_{i=−P}^{Q} h[i]·x[k−i] + n[k]`. Taps are stored in the order
 //!   `h[−P], …, h[−1], h[0], h[1], …, h[Q]`; the *main tap* `h[0]` sits at index

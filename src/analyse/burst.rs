@@ -371,7 +371,7 @@ pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
         },
         &mut warnings,
     );
-    let mut metrics = burst_metrics(&fig, &numbers, known_payload.is_some());
+    let mut metrics = burst_metrics(&fig, &z, &numbers, known_payload.is_some());
     metrics.mlse = mlse;
     let trace = if detail {
         Some(trace(
@@ -431,8 +431,22 @@ pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
     })
 }
 
+/// RMS of `arg(z·conj(r))` over the symbols with a non-zero reference, degrees.
+fn phase_error_rms_deg(z: &[Cf32], reference: &[Cf32]) -> Option<f64> {
+    let (mut sum, mut n) = (0.0f64, 0usize);
+    for (a, r) in z.iter().zip(reference) {
+        if r.norm_sqr() > 0.0 && a.norm_sqr() > 0.0 {
+            let e = Cf64::new(f64::from(a.re), f64::from(a.im))
+                * Cf64::new(f64::from(r.re), -f64::from(r.im));
+            sum += e.arg().powi(2);
+            n += 1;
+        }
+    }
+    (n > 0).then(|| (sum / n as f64).sqrt().to_degrees())
+}
+
 /// The report's figures of the payload.
-fn burst_metrics(fig: &PayloadFigures, numbers: &[usize], known: bool) -> BurstMetrics {
+fn burst_metrics(fig: &PayloadFigures, z: &[Cf32], numbers: &[usize], known: bool) -> BurstMetrics {
     let evm = fig.evm;
     BurstMetrics {
         reference: if known {
@@ -448,6 +462,7 @@ fn burst_metrics(fig: &PayloadFigures, numbers: &[usize], known: bool) -> BurstM
             .map(|f| numbers.get(f.evm_peak_index).copied().unwrap_or(0))
             .unwrap_or(0),
         mer_db: evm.and_then(|f| f.mer_db),
+        phase_error_rms_deg: phase_error_rms_deg(z, &fig.reference),
         ser: fig.ser,
         ber: fig.ber,
         run_length_histogram: run_length_histogram(&fig.runs),
@@ -744,7 +759,10 @@ fn region_warnings(
         ));
     }
     let power = buf.iter().map(|s| f64::from(s.norm_sqr())).sum::<f64>() / buf.len() as f64;
-    if let Some(dc) = front_end.dc_seen.filter(|d| power > 0.0 && d.norm_sqr() / power > 0.01) {
+    if let Some(dc) = front_end
+        .dc_seen
+        .filter(|d| power > 0.0 && d.norm_sqr() / power > 0.01)
+    {
         let rel = 10.0 * (dc.norm_sqr() / power).log10();
         let what = format!(
             "receiver DC I {:+.4}, Q {:+.4} ({rel:.1} dB relative to the burst power)",
@@ -755,7 +773,10 @@ fn region_warnings(
         } else {
             "costs MER; enable channel_fit.dc_offset to remove it".to_string()
         };
-        warnings.push(Warning::new(WarningCode::StrongDc, format!("{what} {advice}")));
+        warnings.push(Warning::new(
+            WarningCode::StrongDc,
+            format!("{what} {advice}"),
+        ));
     }
     Ok((power > 0.0).then(|| 10.0 * power.log10()))
 }

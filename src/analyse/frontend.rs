@@ -154,9 +154,7 @@ fn figures(fit: &FrontEndFit, plan: &Plan, f: f64, pulse: &[f32]) -> FrontEnd {
     let to_input = |d: Cf64| if gain.abs() > 0.0 { d / gain } else { d };
     let dc_seen = fit
         .dc_symbol
-        .filter(|d| {
-            d.norm_sqr() > DC_SIGNIFICANCE * fit.noise_var / fit.observations.max(1) as f64
-        })
+        .filter(|d| d.norm_sqr() > DC_SIGNIFICANCE * fit.noise_var / fit.observations.max(1) as f64)
         .map(to_input);
     FrontEnd {
         dc: fit.dc_symbol.filter(|_| ch.dc_offset).map(to_input),

@@ -251,7 +251,11 @@ mod tests {
     #[test]
     fn a_noise_free_burst_gives_back_the_receivers_dc_and_imbalance() {
         let x = training(200, 3);
-        let c = [Cf64::new(0.2, 0.1), Cf64::new(1.0, 0.0), Cf64::new(0.3, -0.2)];
+        let c = [
+            Cf64::new(0.2, 0.1),
+            Cf64::new(1.0, 0.0),
+            Cf64::new(0.3, -0.2),
+        ];
         let (gain_db, phase_deg) = (0.9, 4.5);
         let beta = beta_from_imbalance(gain_db, phase_deg);
         let z = Cf64::from_polar(10f64.powf(gain_db / 20.0), phase_deg.to_radians());
@@ -270,7 +274,8 @@ mod tests {
             assert!((g - gain_db).abs() < 1e-3 && (p - phase_deg).abs() < 1e-2);
             // After the correction, a plain linear fit leaves no residual.
             let mut yc = y.clone();
-            fit.correct(&mut yc, 0, 0..yc.len());
+            let all = 0..yc.len();
+            fit.correct(&mut yc, 0, all);
             let plain = fit_front_end(&yc, &x, 0, 0.0, 1, 1, omega, false, false, 1e3).unwrap();
             assert!(plain.noise_var < 1e-10, "ω {omega}: {}", plain.noise_var);
         }

@@ -316,6 +316,11 @@ pub struct BurstMetrics {
     pub evm_peak_symbol: usize,
     /// MER, dB; `null` if the error is zero.
     pub mer_db: Option<f64>,
+    /// RMS phase error of the equalised symbols against their reference,
+    /// degrees: `√(mean(arg(z·conj(ref))²))` (the carrier's and the receiver's
+    /// phase noise as the payload sees it); `null` without symbols.
+    #[serde(default)]
+    pub phase_error_rms_deg: Option<f64>,
     /// Symbol error rate with 95 % Clopper–Pearson interval; `null` when the payload is unknown.
     pub ser: Option<ErrorRate>,
     /// Bit error rate with 95 % interval; `null` when the payload is unknown.

@@ -18,6 +18,7 @@ mod fuzz_seeds;
 mod info_cli;
 mod large_capture;
 mod profile;
+mod receiver;
 mod recheck_outputs;
 mod sample_captures;
 mod schemas;
