@@ -104,7 +104,7 @@ pub struct InfoArgs {
     ///
     /// Only labels the spectrum (absolute frequencies); the figures do not
     /// depend on it.
-    #[arg(long, value_name = "HZ", value_parser = parse_rate)]
+    #[arg(long, value_name = "HZ", value_parser = parse_center_freq)]
     pub center_freq: Option<f64>,
 
     /// Print one JSON object (schema iqaudit.info/2) instead of text.
@@ -130,8 +130,20 @@ pub(crate) fn parse_unsigned_zero(s: &str) -> Result<iqaudit::UnsignedZero, Stri
 
 fn parse_rate(s: &str) -> Result<f64, String> {
     match s.trim().parse::<f64>() {
-        Ok(v) if v.is_finite() && v > 0.0 => Ok(v),
-        _ => Err(format!("'{s}' is not a positive sample rate in Hz")),
+        Ok(v) if iqaudit::limits::check_rate_hz(v).is_ok() => Ok(v),
+        _ => Err(format!(
+            "'{s}' is not a sample rate in Hz (expected {})",
+            iqaudit::limits::check_rate_hz(f64::NAN).unwrap_err()
+        )),
+    }
+}
+
+fn parse_center_freq(s: &str) -> Result<f64, String> {
+    match s.trim().parse::<f64>() {
+        Ok(v) if v > 0.0 && iqaudit::limits::check_frequency_hz(v).is_ok() => Ok(v),
+        _ => Err(format!(
+            "'{s}' is not a centre frequency in Hz (expected a finite number in (0, 1e12])"
+        )),
     }
 }
 
@@ -167,6 +179,10 @@ pub fn recorded_argv() -> Vec<String> {
 /// Run one command.
 pub fn run(cli: Cli) -> Result<Outcome, Error> {
     let argv = recorded_argv;
+    // The worker pool is sized from the environment before any work: a huge
+    // RAYON_NUM_THREADS is refused like a huge --jobs.
+    iqaudit::limits::check_thread_env(std::env::var_os("RAYON_NUM_THREADS").as_deref())
+        .map_err(|message| Error::Usage { message })?;
     // Commands that write files delete their temporary files on SIGINT/SIGTERM
     // (batch installs its own, cooperative, handler).
     let plain_signals = || {

@@ -95,6 +95,7 @@ pub mod capture;
 pub mod channel;
 pub mod equalise;
 mod error;
+pub mod json;
 pub mod limits;
 pub mod profile;
 pub mod recheck;

@@ -85,6 +85,11 @@ fn not_regular() -> io::Error {
 /// it was opened.
 pub const MAX_CAPTURE_BYTES: u64 = 1 << 50;
 
+/// Most samples in the synchroniser's bank of frequency-shifted references:
+/// `hypotheses × reference length` (the product is capped, not only the
+/// hypothesis count: 2^24 complex f32 = 128 MiB, plus its transforms).
+pub const MAX_SYNC_BANK_SAMPLES: usize = 1 << 24;
+
 /// Most samples `synth` may be asked to write in one capture (2^27 = 134 M
 /// samples, 1 GiB of cf32): the product `lead_gap + bursts × (frame + largest
 /// gap)` is checked before anything is generated.
@@ -114,6 +119,71 @@ pub fn check_jobs(n: usize) -> Result<usize, String> {
         ));
     }
     Ok(n)
+}
+
+/// Lowest sample (or symbol) rate accepted from any input, Hz: a profile,
+/// a SigMF sidecar, a WAV header, a report given to `recheck`, `--sample-rate`.
+pub const MIN_RATE_HZ: f64 = 1.0;
+/// Highest sample (or symbol) rate accepted from any input, Hz (10^12: far
+/// beyond any converter; a larger number is a typo, and would make every
+/// figure in Hz meaningless).
+pub const MAX_RATE_HZ: f64 = 1e12;
+/// Largest |centre frequency| accepted from any input, Hz (10^12 = 1 THz).
+pub const MAX_ABS_FREQUENCY_HZ: f64 = 1e12;
+
+/// Check a rate in Hz: finite and in [`MIN_RATE_HZ`] ..= [`MAX_RATE_HZ`].
+///
+/// # Errors
+/// What was expected, for a message that names the key and the value.
+pub fn check_rate_hz(hz: f64) -> Result<f64, &'static str> {
+    if hz.is_finite() && (MIN_RATE_HZ..=MAX_RATE_HZ).contains(&hz) {
+        Ok(hz)
+    } else {
+        Err("a finite rate in [1, 1e12] Hz")
+    }
+}
+
+/// Check a centre frequency in Hz: finite, |f| ≤ [`MAX_ABS_FREQUENCY_HZ`].
+///
+/// # Errors
+/// What was expected, for a message that names the key and the value.
+pub fn check_frequency_hz(hz: f64) -> Result<f64, &'static str> {
+    if hz.is_finite() && hz.abs() <= MAX_ABS_FREQUENCY_HZ {
+        Ok(hz)
+    } else {
+        Err("a finite frequency in [-1e12, 1e12] Hz")
+    }
+}
+
+/// Format a number for an error message: short even when it is absurd
+/// (`1e300`, not three hundred digits).
+pub fn show_number(v: f64) -> String {
+    if v.is_finite() && v != 0.0 && !(1e-6..1e15).contains(&v.abs()) {
+        format!("{v:e}")
+    } else {
+        format!("{v}")
+    }
+}
+
+/// Check the `RAYON_NUM_THREADS` environment variable, which sizes the
+/// worker pool of every command that does not take `--jobs`: a number above
+/// [`max_jobs`] is refused like `--jobs` (it would spawn threads until the host
+/// starves). Anything else (unset, empty, not a number, 0) is left to the
+/// thread pool, which then uses one thread per core.
+///
+/// # Errors
+/// A one-line message naming the variable, its value and the allowed range.
+pub fn check_thread_env(value: Option<&std::ffi::OsStr>) -> Result<(), String> {
+    let Some(text) = value.and_then(|v| v.to_str()) else {
+        return Ok(());
+    };
+    match text.trim().parse::<u64>() {
+        Ok(n) if n > max_jobs() as u64 => Err(format!(
+            "environment RAYON_NUM_THREADS={n}: expected 1..={} ({MAX_JOBS_PER_CORE} per core on this machine)",
+            max_jobs()
+        )),
+        _ => Ok(()),
+    }
 }
 
 /// Read a small UTF-8 text input of at most `max_bytes` bytes.
@@ -155,6 +225,33 @@ fn too_large(len: u64, max: u64) -> io::Error {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn rates_and_frequencies_outside_the_physical_ranges_are_refused() {
+        // Bounds are this crate's documented choice (docs/robustness.md).
+        for ok in [1.0, 2.4e6, 1e12] {
+            assert!(check_rate_hz(ok).is_ok(), "{ok}");
+        }
+        for bad in [0.0, 0.5, -1.0, 1.000_001e12, 1e300, f64::NAN, f64::INFINITY] {
+            assert!(check_rate_hz(bad).is_err(), "{bad}");
+        }
+        assert!(check_frequency_hz(-433.92e6).is_ok() && check_frequency_hz(0.0).is_ok());
+        assert!(check_frequency_hz(1e300).is_err() && check_frequency_hz(f64::NAN).is_err());
+        assert_eq!(show_number(1e300), "1e300");
+        assert_eq!(show_number(-1e6), "-1000000");
+    }
+
+    #[test]
+    fn a_thread_count_in_the_environment_above_the_jobs_cap_is_refused() {
+        use std::ffi::OsStr;
+        let over = (max_jobs() + 1).to_string();
+        let e = check_thread_env(Some(OsStr::new(&over))).unwrap_err();
+        assert!(e.contains("RAYON_NUM_THREADS"), "{e}");
+        for fine in ["1", "0", "", "many", "-3"] {
+            assert!(check_thread_env(Some(OsStr::new(fine))).is_ok(), "{fine}");
+        }
+        assert!(check_thread_env(None).is_ok());
+    }
 
     #[test]
     fn a_directory_and_an_oversized_file_are_refused_without_reading() {

@@ -14,17 +14,101 @@ use crate::report::schema::{Report, SCHEMA};
 use crate::Error;
 use std::path::{Path, PathBuf};
 
-/// Where `recheck` finds the capture a report names: the recorded path as given
-/// (relative to the working directory), else relative to the report's folder.
+/// Where `recheck` finds the capture a report names. An absolute path is used
+/// as it is. A relative one is looked up first in the report's own folder
+/// (batch reports record the capture's path relative to the folder they are
+/// written in, see [`path_from_folder`], so they recheck from any working
+/// directory and after the capture and report folders are moved together),
+/// then relative to the working directory (`analyse` records the path as
+/// given on its command line).
 pub fn locate_input(report_path: &Path, recorded: &str) -> PathBuf {
     let p = PathBuf::from(recorded);
-    if p.exists() || p.is_absolute() {
-        return p;
+    let mut candidates = Vec::with_capacity(2);
+    if !p.is_absolute() {
+        if let Some(d) = report_path.parent().filter(|d| !d.as_os_str().is_empty()) {
+            candidates.push(d.join(&p));
+        }
     }
-    match report_path.parent() {
-        Some(dir) if dir.join(&p).exists() => dir.join(p),
-        _ => p,
+    candidates.push(p.clone());
+    // `symlink_metadata`: a FIFO or a dangling link there still counts as the
+    // file meant (and is then refused by name), rather than silently trying
+    // another place.
+    if let Some(c) = candidates.iter().find(|c| c.symlink_metadata().is_ok()) {
+        return c.clone();
     }
+    // A path that was not UTF-8 is recorded lossily (U+FFFD for each bad
+    // sequence): find the one file whose name reads the same.
+    if recorded.contains('\u{fffd}') {
+        if let Some(found) = candidates.iter().find_map(|c| resolve_lossy(c)) {
+            return found;
+        }
+    }
+    p
+}
+
+/// `p` with every component that holds U+FFFD replaced by the one entry of
+/// its folder whose lossy UTF-8 name equals it; `None` when a component has no
+/// such entry or more than one (ambiguous).
+fn resolve_lossy(p: &Path) -> Option<PathBuf> {
+    use std::path::Component;
+    let mut cur = PathBuf::new();
+    for comp in p.components() {
+        match comp {
+            Component::Normal(name) if name.to_string_lossy().contains('\u{fffd}') => {
+                let dir = if cur.as_os_str().is_empty() {
+                    PathBuf::from(".")
+                } else {
+                    cur.clone()
+                };
+                let want = name.to_string_lossy();
+                let mut found = None;
+                for e in std::fs::read_dir(&dir).ok()?.flatten() {
+                    if e.file_name().to_string_lossy() == want {
+                        if found.is_some() {
+                            return None;
+                        }
+                        found = Some(e.file_name());
+                    }
+                }
+                cur.push(found?);
+            }
+            other => cur.push(other.as_os_str()),
+        }
+    }
+    cur.symlink_metadata().is_ok().then_some(cur)
+}
+
+/// `target` (a path relative to the working directory) as a path relative to
+/// `folder`, for recording in a report written in `folder`: both folders are
+/// canonicalised (links resolved), the file name is kept as it is. `None` when
+/// `target` is absolute (it is recorded as it is) or either folder cannot be
+/// resolved.
+pub fn path_from_folder(folder: &Path, target: &Path) -> Option<PathBuf> {
+    if target.is_absolute() {
+        return None;
+    }
+    let name = target.file_name()?;
+    let non_empty = |p: &Path| -> PathBuf {
+        if p.as_os_str().is_empty() {
+            PathBuf::from(".")
+        } else {
+            p.to_path_buf()
+        }
+    };
+    let base = std::fs::canonicalize(non_empty(folder)).ok()?;
+    let dir = std::fs::canonicalize(non_empty(target.parent()?)).ok()?;
+    let b: Vec<_> = base.components().collect();
+    let d: Vec<_> = dir.components().collect();
+    let common = b.iter().zip(&d).take_while(|(x, y)| x == y).count();
+    let mut out = PathBuf::new();
+    for _ in common..b.len() {
+        out.push("..");
+    }
+    for c in &d[common..] {
+        out.push(c);
+    }
+    out.push(name);
+    Some(out)
 }
 
 /// Whether the recorded report says its format came from a SigMF sidecar.
@@ -165,8 +249,9 @@ pub fn parse_recorded_report(text: &str, report_path: &Path) -> Result<RecordedR
         path: report_path.to_path_buf(),
         message,
     };
+    // Strict: a key given twice is refused (a plain Value would keep the last).
     let recorded: serde_json::Value =
-        serde_json::from_str(text).map_err(|e| bad(format!("not valid JSON ({e})")))?;
+        crate::json::parse_strict(text).map_err(|e| bad(format!("not valid JSON ({e})")))?;
     let schema = recorded
         .get("schema")
         .and_then(|s| s.as_str())
@@ -179,7 +264,8 @@ pub fn parse_recorded_report(text: &str, report_path: &Path) -> Result<RecordedR
             "not an iqaudit report?"
         };
         return Err(bad(format!(
-            "schema is '{schema}', expected '{SCHEMA}' ({why})"
+            "schema is '{}', expected '{SCHEMA}' ({why})",
+            crate::text::excerpt(schema, 40)
         )));
     }
     // From a borrow: cloning the tree first would hold it twice.
@@ -188,7 +274,7 @@ pub fn parse_recorded_report(text: &str, report_path: &Path) -> Result<RecordedR
     if !crate::report::provenance::is_sha256_hex(&report.input.sha256) {
         return Err(bad(format!(
             "input.sha256 '{}' is not a 64-digit hex SHA-256",
-            report.input.sha256
+            crate::text::excerpt(&report.input.sha256, 70)
         )));
     }
     let profile: ResolvedProfile = serde_json::from_value(report.profile.clone())
@@ -199,7 +285,8 @@ pub fn parse_recorded_report(text: &str, report_path: &Path) -> Result<RecordedR
     let format = match &report.provenance.format_override {
         Some(name) => Some(name.parse::<SampleFormat>().map_err(|_| {
             bad(format!(
-                "provenance.format_override '{name}' is not a format"
+                "provenance.format_override '{}' is not a format",
+                crate::text::excerpt(name, 40)
             ))
         })?),
         None => None,
@@ -211,9 +298,10 @@ pub fn parse_recorded_report(text: &str, report_path: &Path) -> Result<RecordedR
         )));
     }
     if let Some(r) = report.provenance.sample_rate_override_hz {
-        if !(r.is_finite() && r > 0.0) {
+        if let Err(expected) = crate::limits::check_rate_hz(r) {
             return Err(bad(format!(
-                "provenance.sample_rate_override_hz {r} is not a positive rate"
+                "provenance.sample_rate_override_hz {} is not a usable rate (expected {expected})",
+                crate::limits::show_number(r)
             )));
         }
     }
@@ -320,4 +408,57 @@ pub fn recheck_with(
         differences,
         figures: count_numbers(&recorded),
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_path_from_a_folder_climbs_to_the_common_ancestor() {
+        // cargo runs unit tests in the package root, where both folders exist.
+        let rel = path_from_folder(Path::new("tests/integration"), Path::new("src/lib.rs"));
+        assert_eq!(rel, Some(PathBuf::from("../../src/lib.rs")));
+        let beside = path_from_folder(Path::new("src"), Path::new("src/lib.rs"));
+        assert_eq!(beside, Some(PathBuf::from("lib.rs")));
+        let abs = std::env::current_dir().unwrap().join("src/lib.rs");
+        assert_eq!(
+            path_from_folder(Path::new("src"), &abs),
+            None,
+            "absolute stays"
+        );
+    }
+
+    #[test]
+    fn a_relative_capture_path_is_found_beside_the_report_first() {
+        let dir = tempfile::tempdir().unwrap();
+        let d = dir.path();
+        std::fs::create_dir_all(d.join("out")).unwrap();
+        std::fs::write(d.join("c.ci16"), b"").unwrap();
+        let found = locate_input(&d.join("out/r.json"), "../c.ci16");
+        assert_eq!(found, d.join("out/../c.ci16"));
+        // Not beside the report: left relative to the working directory.
+        assert_eq!(
+            locate_input(&d.join("out/r.json"), "nowhere.ci16"),
+            PathBuf::from("nowhere.ci16")
+        );
+    }
+
+    #[cfg(unix)]
+    #[test]
+    fn a_lossily_recorded_name_finds_the_one_file_it_stands_for() {
+        use std::os::unix::ffi::OsStrExt;
+        let dir = tempfile::tempdir().unwrap();
+        let d = dir.path();
+        let name = std::ffi::OsStr::from_bytes(b"c\xff.ci16");
+        std::fs::write(d.join(name), b"").unwrap();
+        let recorded = d.join(name).to_string_lossy().into_owned();
+        assert_eq!(locate_input(&d.join("r.json"), &recorded), d.join(name));
+        // Two names that read the same: ambiguous, not guessed.
+        std::fs::write(d.join(std::ffi::OsStr::from_bytes(b"c\xfe.ci16")), b"").unwrap();
+        assert_eq!(
+            locate_input(&d.join("r.json"), &recorded),
+            PathBuf::from(&recorded)
+        );
+    }
 }

@@ -558,15 +558,21 @@ where
             );
         }
     };
-    let written = report_json(&report)
-        .map_err(|e| e.to_string())
-        .and_then(|bytes| {
-            if let Some(parent) = report_path.parent() {
-                fs::create_dir_all(parent)
-                    .map_err(|err| format!("{}: cannot create folder: {err}", parent.display()))?;
+    let mut report = report;
+    let written = report_path
+        .parent()
+        .map_or(Ok(()), |parent| {
+            fs::create_dir_all(parent)
+                .map_err(|err| format!("{}: cannot create folder: {err}", parent.display()))?;
+            // Recorded relative to the report's own folder, so `recheck`
+            // finds the capture from any working directory.
+            if let Some(rel) = crate::recheck::path_from_folder(parent, &e.full) {
+                report.input.path = rel.to_string_lossy().into_owned();
             }
-            write_atomic(&report_path, &bytes).map_err(|err| err.to_string())
-        });
+            Ok(())
+        })
+        .and_then(|()| report_json(&report).map_err(|e| e.to_string()))
+        .and_then(|bytes| write_atomic(&report_path, &bytes).map_err(|err| err.to_string()));
     match written {
         Ok(()) => (
             SummaryRow::from_report(&e.rel, e.bytes, &report_rel, &report),

@@ -335,6 +335,11 @@ pub fn read_summary_jsonl(path: &Path) -> Result<Vec<SummaryRow>, MergeError> {
 /// `out_dir/summary.csv` (sorted by path, atomically); a capture present in two
 /// inputs is an error. Returns the merged rows.
 pub fn merge_summaries(inputs: &[PathBuf], out_dir: &Path) -> Result<Vec<SummaryRow>, MergeError> {
+    // Outputs are checked against every input before anything is read.
+    let input_refs: Vec<&Path> = inputs.iter().map(PathBuf::as_path).collect();
+    for name in ["summary.jsonl", "summary.csv"] {
+        crate::atomic::ensure_not_an_input(&out_dir.join(name), &input_refs)?;
+    }
     let mut all: Vec<(SummaryRow, usize)> = Vec::new();
     for (k, p) in inputs.iter().enumerate() {
         all.extend(read_summary_jsonl(p)?.into_iter().map(|r| (r, k)));

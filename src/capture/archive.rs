@@ -41,6 +41,12 @@ struct Entry {
     regular: bool,
 }
 
+/// An error of the tar reader as quoted in a message: it can hold raw bytes
+/// of the archive's headers, so at most 60 characters, escaped.
+fn short(e: &impl std::fmt::Display) -> String {
+    crate::text::excerpt(&e.to_string(), 60)
+}
+
 /// Find the one recording in the archive `file` (at `path`, for messages).
 pub(crate) fn locate(file: &mut File, path: &Path) -> Result<ArchiveMember, CaptureError> {
     let bad = |problem: String| CaptureError::Archive {
@@ -54,12 +60,12 @@ pub(crate) fn locate(file: &mut File, path: &Path) -> Result<ArchiveMember, Capt
         let mut ar = tar::Archive::new(&mut *file);
         let iter = ar
             .entries_with_seek()
-            .map_err(|e| bad(format!("not a tar archive: {e}")))?;
+            .map_err(|e| bad(format!("not a tar archive: {}", short(&e))))?;
         for e in iter {
-            let mut e = e.map_err(|e| bad(format!("not a readable tar archive: {e}")))?;
+            let mut e = e.map_err(|e| bad(format!("not a readable tar archive: {}", short(&e))))?;
             let name = e
                 .path()
-                .map_err(|e| bad(format!("bad member name: {e}")))?
+                .map_err(|e| bad(format!("bad member name: {}", short(&e))))?
                 .into_owned();
             let regular = e.header().entry_type().is_file();
             let len = e.size();

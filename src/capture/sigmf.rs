@@ -219,7 +219,10 @@ pub(crate) fn find_sidecar(
         vec![long_sidecar_path(data_path), sidecar_path(data_path)]
     };
     for c in candidates {
-        if c == data_path || !c.is_file() {
+        // Absent: not a sidecar. Present but not a regular file (a FIFO, a
+        // folder, a device): refused by `read_sidecar`, naming it, rather than
+        // silently reading the capture without the metadata meant for it.
+        if c == data_path || c.symlink_metadata().is_err() {
             continue;
         }
         let meta = read_sidecar(&c)?;
@@ -283,14 +286,21 @@ pub(crate) fn read_sidecar(path: &Path) -> Result<SigmfMeta, CaptureError> {
         path: path.to_path_buf(),
         source,
     };
-    let len = std::fs::metadata(path).map_err(open_err)?.len();
+    // A regular file only, checked on the open descriptor (never blocks on
+    // a FIFO, never reads a device), and never more than the cap.
+    let (file, len) = crate::limits::open_regular(path).map_err(open_err)?;
     if len > MAX_SIDECAR_BYTES {
         return Err(CaptureError::SigmfJson {
             path: path.to_path_buf(),
             problem: format!("{len} bytes is too large for a metadata file"),
         });
     }
-    let bytes = std::fs::read(path).map_err(open_err)?;
+    let mut bytes = Vec::new();
+    std::io::Read::read_to_end(
+        &mut std::io::Read::take(file, MAX_SIDECAR_BYTES),
+        &mut bytes,
+    )
+    .map_err(open_err)?;
     parse_sidecar_bytes(&bytes, path)
 }
 
@@ -324,9 +334,16 @@ fn u64_key(
         Some(v) => v.as_u64().map(Some).ok_or_else(|| CaptureError::SigmfKey {
             path: path.to_path_buf(),
             key: full.to_string(),
-            problem: format!("{v} is not a non-negative integer"),
+            problem: format!("{} is not a non-negative integer", short(v)),
         }),
     }
+}
+
+/// A value from the sidecar as quoted in an error: at most 40 characters,
+/// escaped (a sidecar is not a file the user wrote; a 1 MB string in it must
+/// not become a 1 MB message).
+fn short(v: &(impl std::fmt::Display + ?Sized)) -> String {
+    crate::text::excerpt(&v.to_string(), 40)
 }
 
 /// Interpret sidecar text; `path` is only used in errors. Guarantees: a
@@ -334,7 +351,9 @@ fn u64_key(
 /// segments start in non-decreasing order, the first one at or after
 /// `core:offset`; only the first segment has header bytes.
 pub fn parse_sidecar(text: &str, path: &Path) -> Result<SigmfMeta, CaptureError> {
-    let root: Value = serde_json::from_str(text).map_err(|e| CaptureError::SigmfJson {
+    // Strict JSON (no key given twice); keys SigMF does not define are still
+    // ignored, as the standard requires of a compliant reader.
+    let root: Value = crate::json::parse_strict(text).map_err(|e| CaptureError::SigmfJson {
         path: path.to_path_buf(),
         problem: e.to_string(),
     })?;
@@ -357,13 +376,13 @@ pub fn parse_sidecar(text: &str, path: &Path) -> Result<SigmfMeta, CaptureError>
         Err(_) if is_real_datatype(dt) => {
             return Err(CaptureError::SigmfRealDatatype {
                 path: path.to_path_buf(),
-                found: dt.to_string(),
+                found: short(dt),
             })
         }
         Err(_) => {
             return Err(CaptureError::SigmfDatatype {
                 path: path.to_path_buf(),
-                found: dt.to_string(),
+                found: short(dt),
                 supported: SampleFormat::accepted_names(),
             })
         }
@@ -372,18 +391,24 @@ pub fn parse_sidecar(text: &str, path: &Path) -> Result<SigmfMeta, CaptureError>
         if ch.as_u64() != Some(1) {
             return Err(key_err(
                 "global.core:num_channels",
-                &format!("{ch} channels; only single-channel complex recordings are supported"),
+                &format!(
+                    "{} channels; only single-channel complex recordings are supported",
+                    short(ch)
+                ),
             ));
         }
     }
     let sample_rate_hz = match global.get("core:sample_rate") {
         None | Some(Value::Null) => None,
         Some(v) => match v.as_f64() {
-            Some(r) if r.is_finite() && r > 0.0 => Some(r),
+            Some(r) if crate::limits::check_rate_hz(r).is_ok() => Some(r),
             _ => {
                 return Err(key_err(
                     "global.core:sample_rate",
-                    &format!("{v} is not a positive number of samples per second"),
+                    &format!(
+                        "{} is not a positive number of samples per second (expected a finite rate in [1, 1e12] Hz)",
+                        short(v)
+                    ),
                 ))
             }
         },
@@ -393,10 +418,13 @@ pub fn parse_sidecar(text: &str, path: &Path) -> Result<SigmfMeta, CaptureError>
         Some(Value::String(s)) => {
             let name = Path::new(s).file_name().map(|n| n.to_string_lossy());
             // A file name in the sidecar's own folder (SigMF: "the full filename").
-            if s.is_empty() || name.as_deref() != Some(s.as_str()) {
+            if s.is_empty() || s.len() > 255 || name.as_deref() != Some(s.as_str()) {
                 return Err(key_err(
                     "global.core:dataset",
-                    &format!("'{s}' is not a plain file name in the sidecar's folder"),
+                    &format!(
+                        "'{}' is not a plain file name in the sidecar's folder",
+                        short(s)
+                    ),
                 ));
             }
             Some(s.clone())
@@ -404,7 +432,7 @@ pub fn parse_sidecar(text: &str, path: &Path) -> Result<SigmfMeta, CaptureError>
         Some(v) => {
             return Err(key_err(
                 "global.core:dataset",
-                &format!("{v} is not a string"),
+                &format!("{} is not a string", short(v)),
             ))
         }
     };
@@ -453,11 +481,14 @@ pub fn parse_sidecar(text: &str, path: &Path) -> Result<SigmfMeta, CaptureError>
                 let center_freq_hz = match obj.get("core:frequency") {
                     None | Some(Value::Null) => None,
                     Some(v) => match v.as_f64() {
-                        Some(f) if f.is_finite() => Some(f),
+                        Some(f) if crate::limits::check_frequency_hz(f).is_ok() => Some(f),
                         _ => {
                             return Err(key_err(
                                 &k("core:frequency"),
-                                &format!("{v} is not a frequency in Hz"),
+                                &format!(
+                                    "{} is not a frequency in Hz (expected a finite number in [-1e12, 1e12])",
+                                    short(v)
+                                ),
                             ))
                         }
                     },

@@ -249,8 +249,11 @@ fn parse_finite(s: &str) -> Result<f64, String> {
 
 fn parse_positive(s: &str) -> Result<f64, String> {
     match parse_finite(s) {
-        Ok(v) if v > 0.0 => Ok(v),
-        _ => Err(format!("'{s}' is not a positive number")),
+        Ok(v) if iqaudit::limits::check_rate_hz(v).is_ok() => Ok(v),
+        _ => Err(format!(
+            "'{s}' is not a sample rate in Hz (expected {})",
+            iqaudit::limits::check_rate_hz(f64::NAN).unwrap_err()
+        )),
     }
 }
 
@@ -354,6 +357,66 @@ fn check_synth_size(args: &SynthArgs, profile: &iqaudit::ResolvedProfile) -> Res
     Ok(())
 }
 
+/// Physically meaningful ranges of `synth`'s impairment options, checked
+/// before anything is generated (each is finite already): outside them the
+/// generator would write infinite or NaN samples, or a capture that is all
+/// noise or all clipping. `fs` is the sample rate the capture will have.
+fn check_synth_ranges(args: &SynthArgs, fs: Option<f64>) -> Result<(), Error> {
+    let out_of = |opt: &str, range: &str, v: String| Error::Usage {
+        message: format!("{opt}: expected {range}, found {v}"),
+    };
+    let show = iqaudit::limits::show_number;
+    let within = |opt: &str, v: f64, lo: f64, hi: f64, unit: &str| {
+        if (lo..=hi).contains(&v) {
+            Ok(())
+        } else {
+            Err(out_of(
+                opt,
+                &format!("a number in [{lo}, {hi}]{unit}"),
+                show(v),
+            ))
+        }
+    };
+    within("--level-dbfs", args.level_dbfs, -200.0, 40.0, " dBFS")?;
+    if let Some(e) = args.esn0_db {
+        within("--esn0-db", e, -100.0, 200.0, " dB")?;
+    }
+    within("--iq-gain-db", args.iq_gain_db, -40.0, 40.0, " dB")?;
+    if args.iq_phase_deg.abs() >= 90.0 {
+        return Err(out_of(
+            "--iq-phase-deg",
+            "a number in (-90, 90) degrees",
+            show(args.iq_phase_deg),
+        ));
+    }
+    within("--phase-deg", args.phase_deg, -360.0, 360.0, " degrees")?;
+    if let Some([i, q]) = args.dc {
+        within("--dc", i, -1.0, 1.0, " of full scale")?;
+        within("--dc", q, -1.0, 1.0, " of full scale")?;
+    }
+    if let Some(fs) = fs {
+        if args.drift_hz.abs() >= fs / 2.0 {
+            return Err(out_of(
+                "--drift-hz",
+                &format!("|drift| below fs/2 = {} Hz", fs / 2.0),
+                show(args.drift_hz),
+            ));
+        }
+    }
+    if let Some(text) = &args.channel {
+        let taps = parse_taps(text)?;
+        let largest = taps.iter().map(|t| t.norm()).fold(0.0, f64::max);
+        if !(1e-6..=1e6).contains(&largest) {
+            return Err(out_of(
+                "--channel",
+                "taps whose largest magnitude is in [1e-6, 1e6]",
+                show(largest),
+            ));
+        }
+    }
+    Ok(())
+}
+
 /// Run `iqaudit synth …`; `argv` is recorded in the truth file.
 pub fn run_synth(args: &SynthArgs, argv: &[String]) -> Result<Outcome, Error> {
     // The outputs (capture, its sidecar, the truth file) never replace the
@@ -374,6 +437,7 @@ pub fn run_synth(args: &SynthArgs, argv: &[String]) -> Result<Outcome, Error> {
     iqaudit::atomic::ensure_replaceable(&args.out)?;
     let profile = load_profile(&args.profile)?;
     check_synth_size(args, &profile)?;
+    check_synth_ranges(args, args.sample_rate.or(profile.capture.sample_rate_hz))?;
     let channel = match &args.channel {
         None => None,
         Some(text) => {
@@ -425,6 +489,17 @@ pub fn run_synth(args: &SynthArgs, argv: &[String]) -> Result<Outcome, Error> {
         sigmf_sidecar: !args.no_sigmf && matches!(container, iqaudit::Container::Raw(_)),
         center_freq_hz: None,
     };
+    // Every output name is checked before anything is generated: a planted
+    // link at the truth or sidecar name must not leave a capture written and
+    // the run failed half-way.
+    let checked: &[PathBuf] = if output.sigmf_sidecar {
+        &outputs[1..]
+    } else {
+        &outputs[1..2]
+    };
+    for o in checked {
+        iqaudit::atomic::ensure_replaceable(o)?;
+    }
     let truth = write_outputs(&spec, &args.out, &output, Some(argv.join(" ")))?;
     let clipped = truth.capture.as_ref().map_or(0, |c| c.clipped);
     eprintln!(

@@ -318,11 +318,15 @@ impl ResolvedProfile {
     pub fn validate(&self) -> Result<(), ProfileError> {
         let c = &self.capture;
         if let Some(r) = c.sample_rate_hz {
-            positive("capture.sample_rate_hz", r)?;
+            rate("capture.sample_rate_hz", r)?;
         }
         if let Some(f) = c.center_freq_hz {
-            if !f.is_finite() {
-                return Err(invalid("capture.center_freq_hz", "a finite number", f));
+            if crate::limits::check_frequency_hz(f).is_err() {
+                return Err(invalid(
+                    "capture.center_freq_hz",
+                    "a finite frequency in [-1e12, 1e12] Hz",
+                    crate::limits::show_number(f),
+                ));
             }
         }
         bounded(
@@ -331,10 +335,10 @@ impl ResolvedProfile {
             MAX_SAMPLES_PER_SYMBOL as usize,
         )?;
         if let Some(r) = self.symbol_rate_hz {
-            positive("symbol_rate_hz", r)?;
+            rate("symbol_rate_hz", r)?;
         }
         if let Some(r) = self.resample_to_symbol_rate_hz {
-            positive("resample_to_symbol_rate_hz", r)?;
+            rate("resample_to_symbol_rate_hz", r)?;
         }
         let p = &self.pulse;
         if !(p.rolloff.is_finite() && p.rolloff > 0.0 && p.rolloff <= 1.0) {
@@ -539,6 +543,13 @@ fn invalid(key: &str, expected: impl Into<String>, found: impl std::fmt::Display
     }
 }
 
+/// A sample or symbol rate: finite, in `crate::limits::MIN_RATE_HZ ..=
+/// MAX_RATE_HZ`.
+fn rate(key: &str, v: f64) -> Result<f64, ProfileError> {
+    crate::limits::check_rate_hz(v)
+        .map_err(|expected| invalid(key, expected, crate::limits::show_number(v)))
+}
+
 /// An integer in `1..=max` (the caps of `crate::limits`, so that no size read
 /// from a profile can ask for an unbounded allocation).
 fn bounded(key: &str, v: usize, max: usize) -> Result<usize, ProfileError> {
@@ -634,11 +645,15 @@ impl Profile {
         // capture
         let c = &self.capture;
         if let Some(r) = c.sample_rate_hz {
-            positive("capture.sample_rate_hz", r)?;
+            rate("capture.sample_rate_hz", r)?;
         }
         if let Some(f) = c.center_freq_hz {
-            if !f.is_finite() {
-                return Err(invalid("capture.center_freq_hz", "a finite number", f));
+            if crate::limits::check_frequency_hz(f).is_err() {
+                return Err(invalid(
+                    "capture.center_freq_hz",
+                    "a finite frequency in [-1e12, 1e12] Hz",
+                    crate::limits::show_number(f),
+                ));
             }
         }
         let capture = ResolvedCapture {
@@ -648,7 +663,7 @@ impl Profile {
             swap_iq: c.swap_iq,
         };
         if let Some(r) = self.symbol_rate_hz {
-            positive("symbol_rate_hz", r)?;
+            rate("symbol_rate_hz", r)?;
         }
         let sps = match (self.samples_per_symbol, self.symbol_rate_hz) {
             (Some(s), _) => s as usize,

@@ -453,10 +453,12 @@ impl Synchroniser {
         let f_max = cfg.max_cfo_hz / cfg.sample_rate_hz;
         let delta = 0.5 / ref_len as f64;
         let k = ((f_max / delta - 0.5).ceil()).max(0.0) as i64;
-        if k > 2048 {
+        if k > 2048
+            || (2 * k as usize + 1).saturating_mul(ref_len) > crate::limits::MAX_SYNC_BANK_SAMPLES
+        {
             return bad(
                 "max_cfo_hz",
-                "at most 4097 frequency hypotheses for this training",
+                "at most 4097 frequency hypotheses for this training, and at most 2^24 samples in the hypothesis bank (hypotheses × reference length)",
                 format!("{}", 2 * k + 1),
             );
         }
