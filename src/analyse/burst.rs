@@ -353,6 +353,7 @@ pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
     channel_warnings(&out, bs, sync, &mut warnings);
     window_warning(&out, frame.offset, plan, &mut warnings);
 
+    let center_freq_hz = segment_frequency(bs, plan, capture, &mut warnings);
     let refined_hz = out.carrier.refined_cfo_cycles_per_symbol * plan.symbol_rate_hz;
     let cfo_hz = bs.cfo_hz + refined_hz;
     lock_warnings(
@@ -396,10 +397,10 @@ pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
         sync_metric: bs.metric,
         cfo_hz,
         cfo_training_hz: bs.cfo_hz,
-        cfo_ppm: plan
-            .center_freq_hz
+        cfo_ppm: center_freq_hz
             .filter(|f| *f > 0.0)
             .map(|f| cfo_hz / f * 1e6),
+        center_freq_hz,
         phase_rad: bs.phase_rad,
         received_power_dbfs: received_power,
         truncated: frame.truncated,
@@ -707,6 +708,47 @@ fn pick<'a>(out: &'a BurstOutput, name: &str) -> Option<(&'a DfeFilters, &'a Equ
     }
 }
 
+/// The capture's own sample range under the burst (payload and training).
+fn burst_range(bs: &BurstSync, plan: &Plan, capture: &Capture) -> (usize, usize) {
+    let sps = plan.sps as i64;
+    let lo = (bs.start_sample - plan.before as i64 * sps).max(0) as usize;
+    let hi = (bs.start_sample + (plan.training.len() + plan.after) as i64 * sps).max(0) as usize;
+    // The capture's own samples under the burst (#17: the analysis stream may be resampled).
+    plan.capture_range(lo, hi, capture)
+}
+
+/// Centre frequency of the SigMF capture segment the burst starts in (else the
+/// capture's or the profile's, [`Plan::center_freq_hz`]); a burst that runs
+/// into another segment is flagged (#18).
+fn segment_frequency(
+    bs: &BurstSync,
+    plan: &Plan,
+    capture: &Capture,
+    warnings: &mut Vec<Warning>,
+) -> Option<f64> {
+    let segments = capture.segments();
+    let (lo, hi) = burst_range(bs, plan, capture);
+    let first = capture.segment_index_at(lo as u64);
+    let last = capture.segment_index_at(hi.saturating_sub(1).max(lo) as u64);
+    if last != first {
+        let at = segments.get(first + 1).map_or(0, |s| s.sample_start);
+        warnings.push(Warning::new(
+            WarningCode::SpansSegments,
+            format!(
+                "the burst (samples {lo}..{hi}) runs across the capture-segment boundary at sample {at}; its figures mix two segments (frequency {} there)",
+                segments
+                    .get(first + 1)
+                    .and_then(|s| s.center_freq_hz)
+                    .map_or_else(|| "not given".to_string(), |f| format!("{f} Hz"))
+            ),
+        ));
+    }
+    segments
+        .get(first)
+        .and_then(|s| s.center_freq_hz)
+        .or(plan.center_freq_hz)
+}
+
 /// Clipping (integer formats: samples at the extreme codes) or samples above
 /// full scale (float formats), non-finite samples, and the receiver DC the
 /// front-end fit saw, over the burst's own samples; returns their mean power
@@ -718,11 +760,7 @@ fn region_warnings(
     front_end: &FrontEnd,
     warnings: &mut Vec<Warning>,
 ) -> Result<Option<f64>, Error> {
-    let sps = plan.sps as i64;
-    let lo = (bs.start_sample - plan.before as i64 * sps).max(0) as usize;
-    let hi = (bs.start_sample + (plan.training.len() + plan.after) as i64 * sps).max(0) as usize;
-    // The capture's own samples under the burst (#17: the analysis stream may be resampled).
-    let (lo, hi) = plan.capture_range(lo, hi, capture);
+    let (lo, hi) = burst_range(bs, plan, capture);
     if hi <= lo {
         return Ok(None);
     }

@@ -53,6 +53,7 @@
 //!
 //! `recheck` (re-running a recorded report) lives in [`crate::recheck`].
 
+mod annotate;
 mod burst;
 mod detail;
 mod frontend;
@@ -72,6 +73,7 @@ use crate::report::schema::{
 };
 use crate::sync::{BurstSync, ChunkReader, Detection, SampleSource, Synchroniser};
 use crate::{Cf32, Error};
+pub use annotate::write_burst_annotations;
 use burst::analyse_burst;
 pub use plan::open_capture;
 use plan::{synchroniser, usage, Plan};
@@ -179,6 +181,7 @@ fn analyse_capture_unnamed(
             ),
         ));
     }
+    metadata_warnings(&capture, profile, opts, &mut warnings);
     let run = Run {
         plan: &plan,
         profile,
@@ -434,4 +437,49 @@ fn time_burst<S: SampleSource + ?Sized>(
         Some(w) => sync.align(src, &peak, &|z| w.score(z).cost, w.tolerance())?,
         None => peak,
     })
+}
+
+/// Two values closer than this (relative) are the same frequency or rate.
+const SAME_VALUE: f64 = 1e-9;
+
+/// What the capture's metadata sources said against each other (#18): the
+/// notes made while opening (extension against sidecar datatype, a sidecar for
+/// another file, …), and the profile's centre frequency and sample rate against
+/// the ones the file gave (the file's are used; a command-line rate overrides
+/// both and is not compared).
+fn metadata_warnings(
+    capture: &Capture,
+    profile: &ResolvedProfile,
+    opts: &AnalyseOptions,
+    warnings: &mut Vec<Warning>,
+) {
+    for note in capture.notes() {
+        warnings.push(Warning::new(
+            WarningCode::MetadataDisagrees,
+            note.to_string(),
+        ));
+    }
+    let differ = |a: f64, b: f64| (a - b).abs() > SAME_VALUE * a.abs().max(b.abs());
+    if let (Some(p), Some(c)) = (profile.capture.center_freq_hz, capture.center_freq_hz()) {
+        if differ(p, c) {
+            warnings.push(Warning::new(
+                WarningCode::MetadataDisagrees,
+                format!(
+                    "centre frequency: the SigMF sidecar says {c} Hz (used), the profile's capture.center_freq_hz says {p} Hz"
+                ),
+            ));
+        }
+    }
+    if opts.sample_rate_hz.is_none() {
+        if let (Some(p), Some(c)) = (profile.capture.sample_rate_hz, capture.sample_rate_hz()) {
+            if differ(p, c) {
+                warnings.push(Warning::new(
+                    WarningCode::MetadataDisagrees,
+                    format!(
+                        "sample rate: the file says {c} S/s (used), the profile's capture.sample_rate_hz says {p} S/s"
+                    ),
+                ));
+            }
+        }
+    }
 }

@@ -248,7 +248,9 @@ impl Plan {
             symbol_rate_hz: sample_rate_hz / sps as f64,
             input_rate_hz,
             resampler,
-            center_freq_hz: profile.capture.center_freq_hz.or(capture.center_freq_hz()),
+            // Sidecar over profile, as for the rate (#18); per burst the
+            // segment's own frequency comes first (`burst.rs`).
+            center_freq_hz: capture.center_freq_hz().or(profile.capture.center_freq_hz),
             mlse: profile.equaliser.mlse.enabled.then_some(MlseConfig {
                 max_states: profile.equaliser.mlse.max_states,
                 reduced_state: profile.equaliser.mlse.reduced_state,

@@ -596,8 +596,11 @@ pub(crate) fn sidecar_document(spec: &SidecarSpec<'_>) -> Value {
 }
 
 /// Replace the annotations this crate wrote earlier (those with a key of its
-/// namespace) by `annotations` (sample indices from the first sample in the
-/// file; `offset` = `core:offset` is added), keep every other annotation, sort
+/// namespace) of the kinds being written (`iqaudit:kind`: `detected` bursts
+/// replace earlier detected ones and leave `synth`'s `truth`; an annotation of
+/// ours without a kind is always replaced) by `annotations` (sample indices
+/// from the first sample in the file; `offset` = `core:offset` is added), keep
+/// every other annotation, sort
 /// by `core:sample_start` and declare the namespace in `core:extensions` when
 /// any annotation uses it.
 pub(crate) fn set_annotations(doc: &mut Value, annotations: &[SigmfAnnotation], offset: u64) {
@@ -606,11 +609,23 @@ pub(crate) fn set_annotations(doc: &mut Value, annotations: &[SigmfAnnotation], 
         a.as_object()
             .is_some_and(|o| o.keys().any(|k| k.starts_with(&prefix)))
     };
+    let kinds: std::collections::BTreeSet<&str> = annotations
+        .iter()
+        .filter_map(|a| a.extension.get("kind").and_then(Value::as_str))
+        .collect();
+    let kind_key = format!("{prefix}kind");
+    let replaced = |a: &Value| {
+        ours(a)
+            && match a.get(&kind_key).and_then(Value::as_str) {
+                Some(k) => kinds.is_empty() || kinds.contains(k),
+                None => true,
+            }
+    };
     let Some(root) = doc.as_object_mut() else {
         return;
     };
     let mut list: Vec<Value> = match root.remove("annotations") {
-        Some(Value::Array(a)) => a.into_iter().filter(|a| !ours(a)).collect(),
+        Some(Value::Array(a)) => a.into_iter().filter(|a| !replaced(a)).collect(),
         _ => Vec::new(),
     };
     list.extend(annotations.iter().map(|a| a.to_json(offset)));

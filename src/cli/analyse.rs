@@ -65,10 +65,40 @@ pub struct AnalyseArgs {
     #[arg(long)]
     pub allow_outside_symbols: bool,
 
+    /// Write the detected bursts as SigMF annotations (start, length, label,
+    /// band edges from the CFO and roll-off, and the burst's EVM/MER/SER/verdict
+    /// under the `iqaudit:` extension).
+    ///
+    /// `new` (the default when no value is given) writes them, atomically, to a
+    /// new sidecar CAPTURE.annotations.sigmf-meta beside the data file, which names
+    /// the data in `core:dataset`; `sidecar` adds them to the input's own SigMF
+    /// sidecar (annotations of other programs are kept). See docs/sigmf.md.
+    #[arg(long, value_name = "WHERE", num_args = 0..=1, default_missing_value = "new")]
+    pub annotate: Option<AnnotateTo>,
+
     /// Keep plot traces for the first K bursts and the K worst by RMS EVM
     /// (default 8, at most 1000; 0 keeps none). Other bursts report `trace: null`.
     #[arg(long, value_name = "K")]
     pub traced_bursts: Option<usize>,
+}
+
+/// Where `--annotate` writes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum AnnotateTo {
+    /// A new sidecar CAPTURE.annotations.sigmf-meta (the input is not touched).
+    New,
+    /// The input's own SigMF sidecar.
+    Sidecar,
+}
+
+impl AnnotateTo {
+    /// The library's target.
+    pub fn target(self) -> iqaudit::capture::AnnotationTarget {
+        match self {
+            AnnotateTo::New => iqaudit::capture::AnnotationTarget::NewSidecar,
+            AnnotateTo::Sidecar => iqaudit::capture::AnnotationTarget::InputSidecar,
+        }
+    }
 }
 
 /// Arguments of `iqaudit recheck`.
@@ -236,6 +266,20 @@ pub fn run_analyse(
             d,
             &json,
         )?;
+    }
+    if let Some(to) = args.annotate {
+        let written = iqaudit::analyse::write_burst_annotations(
+            &args.capture,
+            &profile,
+            &opts,
+            &report,
+            to.target(),
+        )?;
+        eprintln!(
+            "iqaudit: {} burst annotation(s) written to {}",
+            report.bursts.len(),
+            iqaudit::text::escaped_path(&written)
+        );
     }
     // Warnings go to stderr in every mode (stdout carries only the data).
     for w in iqaudit::report::text::warning_lines(&report) {

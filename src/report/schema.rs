@@ -191,6 +191,11 @@ pub struct BurstReport {
     pub cfo_training_hz: f64,
     /// CFO in parts per million of the centre frequency; `null` when it is unknown.
     pub cfo_ppm: Option<f64>,
+    /// Centre frequency the burst was recorded at, Hz: the SigMF capture
+    /// segment's `core:frequency` where the burst starts, else the capture's,
+    /// else the profile's; `null` when none says.
+    #[serde(default)]
+    pub center_freq_hz: Option<f64>,
     /// Carrier phase at the first training symbol, radians.
     pub phase_rad: f64,
     /// Mean received power over the burst's samples (payload and training), dBFS;
@@ -518,6 +523,12 @@ pub enum WarningCode {
     LossOfLock,
     /// The DFE made clearly more symbol errors than the MLSE on the same channel.
     DfeBelowMlse,
+    /// The burst runs across a SigMF capture-segment boundary (the recording's
+    /// frequency or gain may change inside it).
+    SpansSegments,
+    /// Two sources of the capture's metadata disagree (sidecar against profile,
+    /// extension or WAV header), or a sidecar was passed over; the message names both.
+    MetadataDisagrees,
     /// A significant part of the channel's energy lies outside the fitted tap
     /// window at the chosen sampling instant (it acts as unmodelled noise).
     EnergyOutsideWindow,

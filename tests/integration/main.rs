@@ -22,6 +22,7 @@ mod receiver;
 mod recheck_outputs;
 mod sample_captures;
 mod schemas;
+mod segments;
 mod sidecars;
 mod sigmf_library;
 mod sigmf_reference;

@@ -1,0 +1,213 @@
+//! SigMF capture segments and burst annotations through `analyse` (#18).
+//!
+//! Sources: the SigMF specification v1.2 (`captures` segments with
+//! `core:sample_start` and `core:frequency`; `annotations` with
+//! `core:sample_start`, `core:sample_count`, `core:label`,
+//! `core:freq_lower_edge`/`core:freq_upper_edge`; extension namespaces declared
+//! in `core:extensions`) and the SigMF project's reference library (Python
+//! `sigmf`), which validates and reads the sidecar `--annotate` writes.
+
+use std::path::{Path, PathBuf};
+
+use iqaudit::UnsignedZero;
+use serde_json::{json, Value};
+
+use crate::sigmf_library::{manifest_entry, reference_library_available, run_checker};
+use crate::util::{iqaudit, stderr_of, tempdir};
+
+/// A QPSK profile as cf32 at 1 MS/s, centre 458.5 MHz (the example's).
+fn profile(dir: &Path) -> PathBuf {
+    let out = iqaudit()
+        .args(["profile", "new", "--modulation", "qpsk"])
+        .output()
+        .unwrap();
+    assert!(out.status.success(), "{}", stderr_of(&out));
+    let mut p: Value = serde_json::from_slice(&out.stdout).unwrap();
+    p["capture"]["format"] = "cf32_le".into();
+    let path = dir.join("link.profile.json");
+    std::fs::write(&path, serde_json::to_vec_pretty(&p).unwrap()).unwrap();
+    path
+}
+
+/// Four bursts with a SigMF sidecar; the truth file's bursts.
+fn synth(dir: &Path, prof: &Path, cfo: &str) -> (PathBuf, Vec<Value>) {
+    let cap = dir.join("seg.cf32");
+    let out = iqaudit()
+        .args(["synth", "--profile"])
+        .arg(prof)
+        .args(["--bursts", "4", "--esn0-db", "25", "--seed", "5"])
+        .args(["--cfo-hz", cfo, "--out"])
+        .arg(&cap)
+        .output()
+        .unwrap();
+    assert!(out.status.success(), "{}", stderr_of(&out));
+    let truth: Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("seg.cf32.truth.json")).unwrap())
+            .unwrap();
+    (cap, truth["bursts"].as_array().unwrap().clone())
+}
+
+fn analyse(cap: &Path, prof: &Path, extra: &[&str]) -> (Value, String) {
+    let out = iqaudit()
+        .args(["analyse", "--json", "--profile"])
+        .arg(prof)
+        .arg(cap)
+        .args(extra)
+        .output()
+        .unwrap();
+    let rep: Value =
+        serde_json::from_slice(&out.stdout).unwrap_or_else(|e| panic!("{e}: {}", stderr_of(&out)));
+    (rep, stderr_of(&out))
+}
+
+#[test]
+fn each_burst_reports_the_centre_frequency_of_its_capture_segment() {
+    let dir = tempdir();
+    let prof = profile(dir.path());
+    let (cap, truth) = synth(dir.path(), &prof, "1200");
+    let meta_path = dir.path().join("seg.sigmf-meta");
+    let mut meta: Value =
+        serde_json::from_str(&std::fs::read_to_string(&meta_path).unwrap()).unwrap();
+    // Segment 2 starts in the gap between bursts 1 and 2; segment 3 inside
+    // burst 3's payload.
+    let gap =
+        (truth[1]["end_sample"].as_u64().unwrap() + truth[2]["first_sample"].as_u64().unwrap()) / 2;
+    let inside = truth[3]["start_sample"].as_u64().unwrap() + 2000;
+    let (f1, f2, f3) = (458.5e6, 458.6e6, 458.7e6);
+    meta["captures"] = json!([
+        {"core:sample_start": 0, "core:frequency": f1},
+        {"core:sample_start": gap, "core:frequency": f2},
+        {"core:sample_start": inside, "core:frequency": f3},
+    ]);
+    std::fs::write(&meta_path, serde_json::to_vec_pretty(&meta).unwrap()).unwrap();
+    let (rep, _) = analyse(&cap, &prof, &[]);
+    let b = rep["bursts"].as_array().unwrap();
+    assert_eq!(b.len(), 4);
+    for (i, want) in [(0, f1), (1, f1), (2, f2), (3, f2)] {
+        assert_eq!(b[i]["center_freq_hz"].as_f64(), Some(want), "burst {i}");
+        let ppm = b[i]["cfo_hz"].as_f64().unwrap() / want * 1e6;
+        let got = b[i]["cfo_ppm"].as_f64().unwrap();
+        assert!(
+            (got - ppm).abs() < 1e-9,
+            "burst {i}: {got} ppm against {ppm}"
+        );
+    }
+    let spans = |i: usize| {
+        b[i]["warnings"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|w| w["code"] == "spans-segments")
+    };
+    assert!(spans(3), "{}", b[3]["warnings"]);
+    assert!(!(0..3).any(spans));
+}
+
+#[test]
+fn a_profile_frequency_that_contradicts_the_sidecar_is_named_in_a_warning() {
+    let dir = tempdir();
+    let prof = profile(dir.path());
+    let (cap, _) = synth(dir.path(), &prof, "0");
+    let mut p: Value = serde_json::from_str(&std::fs::read_to_string(&prof).unwrap()).unwrap();
+    p["capture"]["center_freq_hz"] = json!(869.525e6);
+    let other = dir.path().join("other.profile.json");
+    std::fs::write(&other, serde_json::to_vec_pretty(&p).unwrap()).unwrap();
+    let (rep, err) = analyse(&cap, &other, &[]);
+    // The sidecar wins (the precedence of docs/sigmf.md), and both are named.
+    assert_eq!(rep["input"]["center_freq_hz"].as_f64(), Some(458.5e6));
+    let w: Vec<&str> = rep["warnings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|w| w["code"] == "metadata-disagrees")
+        .map(|w| w["message"].as_str().unwrap())
+        .collect();
+    assert!(
+        w.iter()
+            .any(|m| m.contains("458500000") && m.contains("869525000")),
+        "{w:?}"
+    );
+    assert!(err.contains("869525000"), "{err}");
+}
+
+#[test]
+fn annotate_writes_the_bursts_to_a_new_sidecar_the_reference_library_accepts() {
+    let dir = tempdir();
+    let prof = profile(dir.path());
+    let (cap, truth) = synth(dir.path(), &prof, "-700");
+    let input_meta = dir.path().join("seg.sigmf-meta");
+    let before = std::fs::read(&input_meta).unwrap();
+    let (rep, err) = analyse(&cap, &prof, &["--annotate"]);
+    let new_meta = dir.path().join("seg.cf32.annotations.sigmf-meta");
+    assert!(err.contains("4 burst annotation(s) written"), "{err}");
+    assert_eq!(
+        std::fs::read(&input_meta).unwrap(),
+        before,
+        "the input sidecar changed"
+    );
+    let meta: Value = serde_json::from_str(&std::fs::read_to_string(&new_meta).unwrap()).unwrap();
+    let ours: Vec<&Value> = meta["annotations"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|a| a["iqaudit:kind"] == "detected")
+        .collect();
+    assert_eq!(ours.len(), 4);
+    for (i, a) in ours.iter().enumerate() {
+        // The burst's first symbol instant (the training's: the payload follows it) within a sample of the truth's.
+        let start = a["core:sample_start"].as_i64().unwrap();
+        let first = truth[i]["start_sample"].as_i64().unwrap();
+        assert!(
+            (start - first).abs() <= 1,
+            "burst {i}: {start} against {first}"
+        );
+        assert_eq!(
+            a["iqaudit:evm_rms_percent"].as_f64(),
+            rep["bursts"][i]["metrics"]["evm_rms_percent"].as_f64()
+        );
+        let lo = a["core:freq_lower_edge"].as_f64().unwrap();
+        let hi = a["core:freq_upper_edge"].as_f64().unwrap();
+        // Band edges: carrier ± (1 + roll-off)·Rs/2 = 458.5 MHz − 700 Hz ± 156.25 kHz.
+        let carrier = 458.5e6 + rep["bursts"][i]["cfo_hz"].as_f64().unwrap();
+        assert!(
+            (lo - (carrier - 156_250.0)).abs() < 1e-3 && (hi - (carrier + 156_250.0)).abs() < 1e-3
+        );
+    }
+    assert!(
+        meta["global"]["core:extensions"]
+            .as_array()
+            .is_some_and(|e| e.iter().any(|x| x["name"] == "iqaudit")),
+        "{}",
+        meta["global"]
+    );
+    // `--annotate sidecar` updates the input's own sidecar; running it twice
+    // replaces this crate's annotations and keeps synth's truth ones.
+    for _ in 0..2 {
+        let (_, err) = analyse(&cap, &prof, &["--annotate", "sidecar"]);
+        assert!(err.contains("written to"), "{err}");
+    }
+    let meta: Value = serde_json::from_str(&std::fs::read_to_string(&input_meta).unwrap()).unwrap();
+    let kinds: Vec<&str> = meta["annotations"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter_map(|a| a["iqaudit:kind"].as_str())
+        .collect();
+    assert_eq!(
+        kinds.iter().filter(|k| **k == "detected").count(),
+        4,
+        "{kinds:?}"
+    );
+    assert_eq!(
+        kinds.iter().filter(|k| **k == "truth").count(),
+        4,
+        "{kinds:?}"
+    );
+    if reference_library_available() {
+        let entries = vec![
+            manifest_entry(dir.path(), &new_meta, UnsignedZero::Symmetric),
+            manifest_entry(dir.path(), &input_meta, UnsignedZero::Symmetric),
+        ];
+        run_checker(dir.path(), &entries);
+    }
+}
