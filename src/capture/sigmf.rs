@@ -758,7 +758,8 @@ mod tests {
         let mut doc: Value = serde_json::from_str(
             r#"{"global":{"core:datatype":"cf32_le","core:offset":100},"captures":[],
                 "annotations":[{"core:sample_start":150,"core:label":"theirs"},
-                               {"core:sample_start":120,"iqaudit:kind":"old"}]}"#,
+                               {"core:sample_start":120,"iqaudit:kind":"detected"},
+                               {"core:sample_start":130,"iqaudit:kind":"truth"}]}"#,
         )
         .unwrap();
         let ann = SigmfAnnotation {
@@ -768,14 +769,17 @@ mod tests {
             freq_lower_edge_hz: None,
             freq_upper_edge_hz: None,
             comment: None,
-            extension: BTreeMap::from([("kind".to_string(), json!("new"))]),
+            extension: BTreeMap::from([("kind".to_string(), json!("detected"))]),
         };
         set_annotations(&mut doc, &[ann], 100);
         let a = doc["annotations"].as_array().unwrap();
-        assert_eq!(a.len(), 2);
+        // The old detected one is replaced; synth's truth and the other
+        // program's annotation stay.
+        assert_eq!(a.len(), 3);
         assert_eq!(a[0]["core:sample_start"], 105);
-        assert_eq!(a[0]["iqaudit:kind"], "new");
-        assert_eq!(a[1]["core:label"], "theirs");
+        assert_eq!(a[0]["iqaudit:kind"], "detected");
+        assert_eq!(a[1]["iqaudit:kind"], "truth");
+        assert_eq!(a[2]["core:label"], "theirs");
     }
 
     // SigMF v1.2.5: core:sample_start is absolute (from core:offset on); only

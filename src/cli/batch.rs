@@ -89,6 +89,14 @@ pub struct BatchArgs {
 
     #[arg(long, value_name = "SUMMARY.jsonl", num_args = 1.., conflicts_with_all = ["dir", "profile", "shard", "force", "globs", "format", "sample_rate", "jobs"])]
     pub merge: Vec<PathBuf>,
+
+    /// Also write each analysed capture's bursts as SigMF annotations, as
+    /// `analyse --annotate` does: `new` (default) to CAPTURE.annotations.sigmf-meta
+    /// beside the capture in the input folder, `sidecar` into its own sidecar.
+    /// A capture whose report is reused (up to date) keeps the annotations
+    /// written when it was analysed; --force writes them again.
+    #[arg(long, value_name = "WHERE", num_args = 0..=1, default_missing_value = "new")]
+    pub annotate: Option<super::analyse::AnnotateTo>,
 }
 
 fn parse_shard(s: &str) -> Result<Shard, String> {
@@ -176,7 +184,12 @@ pub fn run_batch_cmd(args: &BatchArgs, argv: &[String]) -> Result<Outcome, Error
                 &with_digest
             }
         };
-        analyse_capture(p, &profile, aopts).map_err(|e| to_failure(p, e))
+        let report = analyse_capture(p, &profile, aopts).map_err(|e| to_failure(p, e))?;
+        if let Some(to) = args.annotate {
+            iqaudit::analyse::write_burst_annotations(p, &profile, aopts, &report, to.target())
+                .map_err(|e| to_failure(p, e))?;
+        }
+        Ok(report)
     })?;
     Ok(Outcome::Exit(outcome.exit_code()))
 }

@@ -211,3 +211,45 @@ fn annotate_writes_the_bursts_to_a_new_sidecar_the_reference_library_accepts() {
         run_checker(dir.path(), &entries);
     }
 }
+
+#[test]
+fn batch_annotate_writes_a_sidecar_for_every_capture_it_analyses() {
+    let dir = tempdir();
+    let prof = profile(dir.path());
+    let input = dir.path().join("field");
+    std::fs::create_dir(&input).unwrap();
+    for (name, seed) in [("north.cf32", "1"), ("south.cf32", "2")] {
+        let out = iqaudit()
+            .args(["synth", "--profile"])
+            .arg(&prof)
+            .args(["--bursts", "3", "--esn0-db", "25", "--seed", seed, "--out"])
+            .arg(input.join(name))
+            .output()
+            .unwrap();
+        assert!(out.status.success(), "{}", stderr_of(&out));
+    }
+    let out = iqaudit()
+        .arg("batch")
+        .arg(&input)
+        .arg("--profile")
+        .arg(&prof)
+        .arg("--out")
+        .arg(dir.path().join("reports"))
+        .args(["--annotate", "--quiet"])
+        .output()
+        .unwrap();
+    assert!(out.status.success(), "{}", stderr_of(&out));
+    for name in ["north.cf32", "south.cf32"] {
+        let meta: Value = serde_json::from_str(
+            &std::fs::read_to_string(input.join(format!("{name}.annotations.sigmf-meta"))).unwrap(),
+        )
+        .unwrap();
+        let detected = meta["annotations"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .filter(|a| a["iqaudit:kind"] == "detected")
+            .count();
+        assert_eq!(detected, 3, "{name}");
+    }
+}
