@@ -56,6 +56,12 @@
 //!   `K2 = (1 − g·e^{jφ})/2`; gain imbalance is `20·log10 g` dB, phase imbalance
 //!   `φ` degrees. `synth` applies this model, `info` estimates it blind and the
 //!   report gives what the fit removed, all with this sign.
+//! * **Sample-clock offset** (`sco_ppm`, ε = `sco_ppm`·10⁻⁶): positive when the
+//!   receiver's sample clock runs fast. Received sample `n` is taken at transmit
+//!   time `n/(fs·(1 + ε))`, so symbol `k` of a burst (0 = first training symbol)
+//!   lies at capture sample `t₀ + k·sps·(1 + ε)` and a burst of `N` symbols
+//!   spans `N·sps·ε` samples more than nominal (`synth --sco-ppm` makes such
+//!   captures; the report's `bursts[].sco_ppm` estimates ε per burst).
 //! * **Channel taps**: the symbol-spaced model is
 //!   `y[k] = Σ_{i=−P}^{Q} h[i]·x[k−i] + n[k]`. Taps are stored in the order
 //!   `h[−P], …, h[−1], h[0], h[1], …, h[Q]`; the *main tap* `h[0]` sits at index

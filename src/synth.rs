@@ -41,6 +41,13 @@
 //!    `K1 = (1 + g·e^{−jφ})/2`, `K2 = (1 − g·e^{jφ})/2`; then a **DC offset** is added.
 //! 8. **Quantisation/clipping** to the output format happen in
 //!    `capture::write_capture`.
+//! 9. **Sample-clock offset** (`sco_ppm = ε·10⁶`, #17): the finished capture
+//!    (noise included) is resampled with [`crate::signal::Resampler`] at the
+//!    ratio `1/(1 + ε)`, so output sample `n` is the generated signal at
+//!    generation sample `n/(1 + ε)`: the receiver's clock is `ε` fast (crate
+//!    convention). The truth's burst instants are in the resampled capture; a
+//!    CFO given in Hz is then seen at `cfo_hz/(1 + ε)` (0.3 Hz less for 3.4 kHz
+//!    at 100 ppm).
 //!
 //! Bursts are separated by noise-only gaps drawn uniformly from
 //! `[gap_min, gap_max]` samples, with `lead_gap_samples` before the first burst
@@ -79,6 +86,10 @@ use crate::{Cf32, Cf64};
 
 /// Output samples made per block inside a burst (bounds the working memory).
 const BLOCK: usize = 1 << 14;
+
+/// Largest `|sco_ppm|` [`run`] accepts (1 %: far beyond any crystal, small enough
+/// that a burst's layout is unchanged to first order).
+pub const MAX_SCO_PPM: f64 = 10_000.0;
 
 /// Schema name written in every truth file.
 /// (`/2`: `tool` became `{name, version}` like the other documents', #19.)
@@ -184,6 +195,10 @@ pub struct SynthSpec {
     pub gap_samples: (usize, usize),
     /// Noise-only samples before the first burst.
     pub lead_gap_samples: usize,
+    /// Sample-clock offset of the receiver, ppm: its clock runs this much fast,
+    /// so received sample `n` is taken at transmit time `n/(fs·(1 + sco_ppm·1e-6))`
+    /// (crate convention, see the crate docs). 0 = no offset.
+    pub sco_ppm: f64,
 }
 
 impl SynthSpec {
@@ -206,6 +221,7 @@ impl SynthSpec {
             level_dbfs: -12.0,
             gap_samples: (1000, 3000),
             lead_gap_samples: 0,
+            sco_ppm: 0.0,
         }
     }
 }
@@ -286,6 +302,11 @@ pub struct TruthReceiver {
     pub gap_samples: [usize; 2],
     /// Lead gap, samples.
     pub lead_gap_samples: usize,
+    /// Sample-clock offset of the receiver, ppm (positive: its clock is fast;
+    /// sample `n` is taken at transmit time `n/(fs·(1 + sco_ppm·1e-6))`); 0 in
+    /// truth files that predate it.
+    #[serde(default)]
+    pub sco_ppm: f64,
 }
 
 /// The output file written beside the truth (filled by [`write_outputs`]).
@@ -429,6 +450,7 @@ impl SynthSpec {
             ("--iq-gain-db", self.iq_gain_db),
             ("--iq-phase-deg", self.iq_phase_deg),
             ("--level-dbfs", self.level_dbfs),
+            ("--sco-ppm", self.sco_ppm),
         ];
         for (opt, v) in finite {
             if !v.is_finite() {
@@ -440,6 +462,13 @@ impl SynthSpec {
                 "--cfo-hz",
                 format!("|CFO| below fs/2 = {} Hz", fs / 2.0),
                 self.cfo_hz,
+            ));
+        }
+        if self.sco_ppm.abs() > MAX_SCO_PPM {
+            return Err(bad(
+                "--sco-ppm",
+                format!("|offset| at most {MAX_SCO_PPM} ppm"),
+                self.sco_ppm,
             ));
         }
         if let Some(e) = self.esn0_db {
@@ -496,12 +525,18 @@ impl SynthSpec {
 pub fn run(spec: &SynthSpec) -> Result<Synthesised, SynthError> {
     let fs = spec.validate()?;
     let prof = &spec.profile;
-    let Some(rs) = prof.resample_to_symbol_rate_hz else {
-        return run_integer_rate(spec);
+    // Input (generation-rate) samples per output sample. A receiver clock fast by
+    // ε takes output sample `n` at transmit time `n/(fs·(1 + ε))`, i.e. at
+    // generation sample `n·ratio/(1 + ε)`.
+    let sco = spec.sco_ppm * 1e-6;
+    let gen_rate = match prof.resample_to_symbol_rate_hz {
+        Some(rs) => rs * prof.samples_per_symbol as f64,
+        None => fs,
     };
-    let gen_rate = rs * prof.samples_per_symbol as f64;
-    let ratio = gen_rate / fs;
-    if (ratio - 1.0).abs() < 1e-12 {
+    let ratio = gen_rate / fs / (1.0 + sco);
+    if spec.sco_ppm == 0.0
+        && (prof.resample_to_symbol_rate_hz.is_none() || (ratio - 1.0).abs() < 1e-12)
+    {
         return run_integer_rate(spec);
     }
     let resampler = crate::signal::Resampler::new(ratio).ok_or_else(|| {
@@ -530,6 +565,7 @@ pub fn run(spec: &SynthSpec) -> Result<Synthesised, SynthError> {
     truth.receiver.noise_variance_per_sample *= (1.0 / ratio).min(1.0);
     truth.receiver.gap_samples = [spec.gap_samples.0, spec.gap_samples.1];
     truth.receiver.lead_gap_samples = spec.lead_gap_samples;
+    truth.receiver.sco_ppm = spec.sco_ppm;
     for b in &mut truth.bursts {
         let instant = (b.start_sample as f64 + b.timing_frac) / ratio;
         let start = instant.round();
@@ -766,6 +802,7 @@ fn run_integer_rate(spec: &SynthSpec) -> Result<Synthesised, SynthError> {
             level_dbfs: spec.level_dbfs,
             gap_samples: [spec.gap_samples.0, spec.gap_samples.1],
             lead_gap_samples: spec.lead_gap_samples,
+            sco_ppm: 0.0,
         },
         profile: prof.clone(),
         bursts,

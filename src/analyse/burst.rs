@@ -9,6 +9,7 @@
 //! Viterbi MLSE runs beside it ([`super::mlse`]). The trace and the channel
 //! response are computed only when `want_detail` says the burst may be traced.
 
+use super::clock::follow_clock;
 use super::detail::{channel_report, trace};
 use super::frontend::{correct_front_end, FrontEnd};
 use super::mlse::{burst_mlse, mlse_warning};
@@ -26,20 +27,20 @@ use crate::sync::{BurstSync, SampleSource, Synchroniser};
 use crate::{Cf32, Cf64, Error};
 
 /// A burst's symbol-rate samples cut out around its frame, and what is in them.
-struct Frame {
+pub(super) struct Frame {
     /// Matched-filtered, timing- and CFO-corrected samples at the symbol rate:
     /// the frame with `plan.margin` symbols of padding either side.
-    y: Vec<Cf32>,
+    pub(super) y: Vec<Cf32>,
     /// Index in `y` of the first training symbol.
-    offset: usize,
+    pub(super) offset: usize,
     /// Indices in `y` that lie inside the capture.
-    avail: std::ops::Range<usize>,
+    pub(super) avail: std::ops::Range<usize>,
     /// `(payload symbol number, index in y)` of every payload symbol present.
-    present: Vec<(usize, usize)>,
+    pub(super) present: Vec<(usize, usize)>,
     /// The capture cuts the payload.
-    truncated: bool,
+    pub(super) truncated: bool,
     /// The known frame laid out like `y` (zeros in the margins), if known.
-    known: Option<Vec<Cf32>>,
+    pub(super) known: Option<Vec<Cf32>>,
 }
 
 /// Indices (into the extracted vector) of the payload symbols, in payload order.
@@ -49,17 +50,22 @@ fn payload_indices(plan: &Plan, offset: usize) -> impl Iterator<Item = usize> + 
     before.chain(t_end..t_end + plan.after)
 }
 
-/// Cut the frame out of the capture and lay the known symbols beside it.
-fn extract_frame<S: SampleSource + ?Sized>(
+/// Cut the frame out of the capture and lay the known symbols beside it; with
+/// `limit`, only its first `limit` symbols (`y` indices) are cut out.
+pub(super) fn extract_frame<S: SampleSource + ?Sized>(
     bs: &BurstSync,
     plan: &Plan,
     sync: &Synchroniser,
     src: &S,
+    limit: Option<usize>,
 ) -> Result<Frame, Error> {
     let l = plan.training.len();
     let offset = plan.margin + plan.before;
     let first = -((plan.before + plan.margin) as i64);
-    let last = (l + plan.after + plan.margin) as i64;
+    let mut last = (l + plan.after + plan.margin) as i64;
+    if let Some(n) = limit {
+        last = last.min(first + n.max(offset + l) as i64);
+    }
     let mut y = vec![Cf32::new(0.0, 0.0); (last - first) as usize];
     let span = sync.extract_symbols(src, bs, first..last, &mut y)?;
     let avail = (span.available.start - first) as usize..(span.available.end - first) as usize;
@@ -73,10 +79,11 @@ fn extract_frame<S: SampleSource + ?Sized>(
     let truncated = present.len() < all_payload.len();
     let known = match (&plan.known_before, &plan.known_after) {
         (Some(b), Some(a)) => {
-            let mut k = vec![Cf32::new(0.0, 0.0); y.len()];
+            let mut k = vec![Cf32::new(0.0, 0.0); offset + l + a.len() + plan.margin];
             k[offset - b.len()..offset].copy_from_slice(b);
             k[offset..offset + l].copy_from_slice(&plan.training);
             k[offset + l..offset + l + a.len()].copy_from_slice(a);
+            k.truncate(y.len());
             Some(k)
         }
         _ => None,
@@ -93,7 +100,7 @@ fn extract_frame<S: SampleSource + ?Sized>(
 
 /// Run every equaliser on the frame; the carrier-frequency fit uses only the
 /// frame's symbols present in the capture, not the padding around it.
-fn equalise_frame(
+pub(super) fn equalise_frame(
     frame: &Frame,
     plan: &Plan,
     profile: &ResolvedProfile,
@@ -224,7 +231,7 @@ pub(super) fn probe_dc<S: SampleSource + ?Sized>(
     sync: &Synchroniser,
     src: &S,
 ) -> Result<Option<Cf64>, Error> {
-    let mut frame = extract_frame(bs, plan, sync, src)?;
+    let mut frame = extract_frame(bs, plan, sync, src, None)?;
     let fe = correct_front_end(
         &mut frame.y,
         frame.offset,
@@ -250,18 +257,63 @@ pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
     want_detail: &(dyn Fn(f64) -> bool + Sync),
 ) -> Result<BurstReport, Error> {
     let mut warnings = Vec::new();
-    let mut frame = extract_frame(bs, plan, sync, src)?;
     let ch = &plan.burst_cfg.channel;
-    let raw = (ch.dc_offset || ch.iq_imbalance).then(|| frame.y.clone());
-    let mut front_end = correct_front_end(
-        &mut frame.y,
-        frame.offset,
-        frame.avail.clone(),
+    let front_on = ch.dc_offset || ch.iq_imbalance;
+    // The burst timed at `b` (its first `limit` symbols): extracted, the receiver
+    // front end corrected (with the decision-directed second pass when the fit
+    // has DC/IQ terms), equalised.
+    let prepare = |b: &BurstSync,
+                   limit: Option<usize>,
+                   warnings: &mut Vec<Warning>|
+     -> Result<(Frame, BurstOutput, FrontEnd), Error> {
+        let mut frame = extract_frame(b, plan, sync, src, limit)?;
+        let raw = front_on.then(|| frame.y.clone());
+        let mut front_end = correct_front_end(
+            &mut frame.y,
+            frame.offset,
+            frame.avail.clone(),
+            plan,
+            b.cfo_hz,
+            sync.pulse(),
+            warnings,
+        );
+        let mut out = equalise_frame(&frame, plan, profile)?;
+        if let Some(raw) = &raw {
+            // Decision-directed second pass of the DC/IQ fit over the whole burst.
+            if let Some((y, fe)) =
+                refine_pass(&frame, raw, &out, &front_end, b, plan, profile, sync)
+            {
+                frame.y = y;
+                front_end = fe;
+                out = equalise_frame(&frame, plan, profile)?;
+            }
+        }
+        Ok((frame, out, front_end))
+    };
+    let (mut frame, mut out, mut front_end) = prepare(bs, None, &mut warnings)?;
+    // The sample clock: when it is followed, the burst is prepared again and the
+    // last preparation's front end and warnings replace the first's.
+    let mut again: Option<(FrontEnd, Vec<Warning>)> = None;
+    let clock = follow_clock(
+        bs,
         plan,
-        bs.cfo_hz,
-        sync.pulse(),
-        &mut warnings,
-    );
+        profile,
+        sync,
+        src,
+        &mut frame,
+        &mut out,
+        &mut |b, limit| {
+            let mut w = Vec::new();
+            let (f, o, fe) = prepare(b, limit, &mut w)?;
+            again = Some((fe, w));
+            Ok((f, o))
+        },
+    )?;
+    if let Some((fe, w)) = again {
+        front_end = fe;
+        warnings = w;
+    }
+    let bs = &clock.burst;
     if frame.truncated {
         warnings.push(Warning::new(
             WarningCode::BurstTruncated,
@@ -271,15 +323,6 @@ pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
                 plan.before + plan.after
             ),
         ));
-    }
-    let mut out = equalise_frame(&frame, plan, profile)?;
-    if let Some(raw) = &raw {
-        // Decision-directed second pass of the DC/IQ fit over the whole burst.
-        if let Some((y, fe)) = refine_pass(&frame, raw, &out, &front_end, bs, plan, profile, sync) {
-            frame.y = y;
-            front_end = fe;
-            out = equalise_frame(&frame, plan, profile)?;
-        }
     }
     let (name, filters, eq) = chosen_result(&out, profile, index, &mut warnings)?;
 
@@ -403,6 +446,7 @@ pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
         center_freq_hz,
         phase_rad: bs.phase_rad,
         received_power_dbfs: received_power,
+        sco_ppm: clock.sco_ppm,
         truncated: frame.truncated,
         payload_symbols: present.len(),
         channel,

@@ -55,6 +55,7 @@
 
 mod annotate;
 mod burst;
+mod clock;
 mod detail;
 mod frontend;
 mod mlse;

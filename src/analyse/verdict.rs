@@ -61,6 +61,11 @@ pub(super) fn summarise(bursts: &[BurstReport]) -> Summary {
     s.ser = total(&|b| b.metrics.ser);
     s.ber = total(&|b| b.metrics.ber);
     s.cfo_abs_max_hz = bursts.iter().map(|b| b.cfo_hz.abs()).reduce(f64::max);
+    let sco: Vec<f64> = bursts.iter().filter_map(|b| b.sco_ppm).collect();
+    if !sco.is_empty() {
+        s.sco_mean_ppm = Some(sco.iter().sum::<f64>() / sco.len() as f64);
+        s.sco_abs_max_ppm = sco.iter().map(|v| v.abs()).reduce(f64::max);
+    }
     s.longest_error_run = bursts
         .iter()
         .map(|b| b.metrics.longest_error_run())

@@ -210,6 +210,14 @@ pub struct SynthArgs {
     #[arg(long, value_name = "DEG", default_value_t = 0.0, allow_hyphen_values = true, value_parser = parse_finite)]
     pub iq_phase_deg: f64,
 
+    /// Receiver sample-clock offset, ppm (positive: the receiver's clock is fast).
+    ///
+    /// Received sample n is taken at transmit time n/(fs·(1 + PPM·1e-6)): a burst
+    /// of N symbols spans N·sps·(1 + PPM·1e-6) samples. Made by resampling the
+    /// finished capture.
+    #[arg(long, value_name = "PPM", default_value_t = 0.0, allow_hyphen_values = true, value_parser = parse_finite)]
+    pub sco_ppm: f64,
+
     /// Mean power of the noise-free transmitted burst, dBFS.
     ///
     /// Leave headroom for the peak-to-average ratio of the pulse-shaped signal;
@@ -482,6 +490,7 @@ pub fn run_synth(args: &SynthArgs, argv: &[String]) -> Result<Outcome, Error> {
         level_dbfs: args.level_dbfs,
         gap_samples: args.gap,
         lead_gap_samples: args.lead_gap,
+        sco_ppm: args.sco_ppm,
         profile,
     };
     let output = OutputSpec {

@@ -104,6 +104,7 @@ pub fn example_profile(opts: &ExampleOptions) -> Profile {
             delay: Some(Delay::Auto),
             carrier_refinement: Some(true),
             tracking: Some(Tracking::Off),
+            clock_tracking: Some(true),
             mlse: Some(MlseSection {
                 enabled: Some(false),
                 max_states: Some(crate::equalise::mlse::DEFAULT_MAX_STATES),

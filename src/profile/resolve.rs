@@ -222,10 +222,19 @@ pub struct ResolvedEqualiser {
     pub carrier_refinement: bool,
     /// Tracking.
     pub tracking: Tracking,
+    /// Per-burst sample-clock offset estimate and tracking (absent in profiles
+    /// recorded before it existed: on).
+    #[serde(default = "default_true")]
+    pub clock_tracking: bool,
     /// The Viterbi MLSE reference detector (absent in profiles recorded
     /// before it existed: off).
     #[serde(default)]
     pub mlse: ResolvedMlse,
+}
+
+/// Serde default of flags that are on unless a profile says otherwise.
+fn default_true() -> bool {
+    true
 }
 
 /// Largest `equaliser.mlse.max_states` accepted (the survivor memory is
@@ -1125,6 +1134,7 @@ impl Profile {
             delay,
             carrier_refinement: e.carrier_refinement.unwrap_or(true),
             tracking,
+            clock_tracking: e.clock_tracking.unwrap_or(true),
             mlse: {
                 let m = e.mlse.clone().unwrap_or_default();
                 let d = ResolvedMlse::default();

@@ -404,6 +404,10 @@ pub struct EqualiserSection {
     /// Tracking (default `{"kind": "off"}`).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub tracking: Option<Tracking>,
+    /// Estimate each burst's sample-clock offset and follow it (default true;
+    /// bursts shorter than 1024 training and payload symbols are never estimated).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub clock_tracking: Option<bool>,
     /// The Viterbi MLSE reference detector (default off).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub mlse: Option<MlseSection>,

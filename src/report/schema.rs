@@ -32,7 +32,9 @@
 //! `iqaudit.recheck/N`), split `input.format` (`"ci16_le (from SigMF sidecar)"`)
 //! into `format`, `format_source` and `swap_iq`, and dropped
 //! `provenance.tool_version` (it repeated `tool.version`); issue #19. Within `/4`, `bursts[].correlation_peak_samples` and the warning code
-//! `energy-outside-window` were added (issue #15; the key reads as 0 from an earlier `/4`). `/3` added `capture` (the capture views),
+//! `energy-outside-window` were added (issue #15; the key reads as 0 from an earlier `/4`), then
+//! `bursts[].sco_ppm`, `summary.sco_mean_ppm` and `summary.sco_abs_max_ppm` (issue #17; null from
+//! an earlier `/4`). `/3` added `capture` (the capture views),
 //! `bursts[].received_power_dbfs`, `channel.training_symbols`,
 //! `equaliser.feedforward`/`feedback` (the coefficients), `trace.eye_matched`
 //! and `trace.eye_equalised`, and `verdict.checks[].margin` (issue #20); every
@@ -202,6 +204,12 @@ pub struct BurstReport {
     /// `null` for zero power.
     #[serde(default)]
     pub received_power_dbfs: Option<f64>,
+    /// Sample-clock offset estimated from the burst, ppm (positive: the
+    /// receiver's clock is fast; crate convention); `null` for a burst too short
+    /// to estimate it (fewer than 4 blocks of 256 training and payload symbols)
+    /// or with `sync.clock_tracking` off.
+    #[serde(default)]
+    pub sco_ppm: Option<f64>,
     /// True when the capture ends before the burst does.
     pub truncated: bool,
     /// Payload symbols present in the capture (fewer than the profile says when truncated).
@@ -413,6 +421,12 @@ pub struct Summary {
     pub ber: Option<ErrorRate>,
     /// Largest |CFO| over bursts, Hz.
     pub cfo_abs_max_hz: Option<f64>,
+    /// Mean of the bursts' `sco_ppm` (those that have one), ppm; `null` when none has.
+    #[serde(default)]
+    pub sco_mean_ppm: Option<f64>,
+    /// Largest |`sco_ppm`| over bursts, ppm; `null` when none has one.
+    #[serde(default)]
+    pub sco_abs_max_ppm: Option<f64>,
     /// Longest decision-error run over bursts, symbols.
     pub longest_error_run: usize,
 }

@@ -47,12 +47,15 @@ fn burst_lines(out: &mut String, b: &BurstReport, st: &Style) {
     let m = &b.metrics;
     let _ = writeln!(
         out,
-        "  #{:<3} at sample {:>11}{:+.2}  metric {:.3}  CFO {:+.1} Hz  {}",
+        "  #{:<3} at sample {:>11}{:+.2}  metric {:.3}  CFO {:+.1} Hz{}  {}",
         b.index,
         b.start_sample,
         b.timing_frac_samples,
         b.sync_metric,
         b.cfo_hz,
+        b.sco_ppm
+            .map(|v| format!("  clock {v:+.2} ppm"))
+            .unwrap_or_default(),
         if b.truncated {
             st.note("(cut short)")
         } else {
@@ -241,6 +244,12 @@ fn render_with(report: &Report, st: Style) -> String {
         opt(s.cfo_abs_max_hz, 1, " Hz"),
         s.longest_error_run
     );
+    if let (Some(mean), Some(max)) = (s.sco_mean_ppm, s.sco_abs_max_ppm) {
+        let _ = writeln!(
+            out,
+            "  sample-clock offset: mean {mean:+.2} ppm, largest |offset| {max:.2} ppm"
+        );
+    }
     let v = &report.verdict;
     let label = match v.result {
         VerdictResult::Pass => st.good("WITHIN LIMITS"),

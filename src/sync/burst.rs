@@ -6,7 +6,7 @@
 //! (0 = first training symbol, negative before it).
 //!
 //! A symbol is *available* when its instant lies inside the capture
-//! (`0 ≤ t₀ + k·sps ≤ len − 1`). Samples the matched filter or the interpolator need
+//! (`0 ≤ t₀ + k·sps·(1 + ε) ≤ len − 1`, ε the burst's clock offset, 0 unless set). Samples the matched filter or the interpolator need
 //! beyond either end of the capture are taken as zero, so the outermost symbols of a
 //! burst that touches a capture edge are computed with part of their pulse missing.
 use std::ops::Range;
@@ -36,7 +36,7 @@ const FOLD_LANES: usize = 4;
 /// The folded extraction filter `g = w ∗ p` (interpolator weights `w`, pulse `p`),
 /// computed in f64, rounded to f32 and written twice per tap (`g2[2q] = g2[2q+1] = g_q`,
 /// one copy for the real and one for the imaginary part); the tail of `g2` is zero.
-fn folded_taps(pulse: &[f32], w: &[f64; 2 * SINC_HALF], g2: &mut [f32]) {
+fn folded_taps(pulse: &[f32], w: &[f64], g2: &mut [f32]) {
     let mut g = vec![0.0f64; g2.len() / 2];
     for (i, wi) in w.iter().enumerate() {
         for (m, pm) in pulse.iter().enumerate() {
@@ -46,6 +46,25 @@ fn folded_taps(pulse: &[f32], w: &[f64; 2 * SINC_HALF], g2: &mut [f32]) {
     for (pair, gq) in g2.chunks_exact_mut(2).zip(&g) {
         pair.fill(*gq as f32);
     }
+}
+
+/// Taps of the slope kernel ([`Synchroniser::extract_slopes`]).
+const SLOPE_TAPS: usize = 2 * SINC_HALF + 2;
+
+/// Weights of `(v(n + μ + δ) − v(n + μ − δ))/(2δ)` for a signal `v` interpolated by
+/// [`sinc_weights_f64`] at both instants (`0 ≤ μ < 1`, `0 < δ < 1`): weight `j`
+/// multiplies sample `n − SINC_HALF + j`.
+fn slope_weights(mu: f64, delta: f64) -> [f64; SLOPE_TAPS] {
+    let mut w = [0.0f64; SLOPE_TAPS];
+    for (sign, s) in [(1.0, mu + delta), (-1.0, mu - delta)] {
+        let ns = s.floor();
+        // Sample `n + ns − SINC_HALF + 1 + i` is index `ns + 1 + i` from `n − SINC_HALF`.
+        let off = (ns as i64 + 1).clamp(0, 2) as usize;
+        for (slot, v) in w[off..].iter_mut().zip(sinc_weights_f64(s - ns)) {
+            *slot += sign * v / (2.0 * delta);
+        }
+    }
+    w
 }
 
 /// `Σ_q g_q·x_q` for complex `x` and real taps given as [`folded_taps`] writes them;
@@ -183,6 +202,7 @@ impl Synchroniser {
             training_gain: corr.norm() / t_energy,
             symbols_in_capture: k_lo..k_hi.max(k_lo),
             peak_instant: t0,
+            sco_ppm: 0.0,
         })
     }
 
@@ -339,7 +359,11 @@ impl Synchroniser {
 
     /// Matched-filtered, timing- and CFO-corrected symbol-rate samples for symbol indices
     /// `symbols` (0 = first training symbol): `out[i]` is symbol `symbols.start + i`,
-    /// sampled at `t₀ + k·sps` after multiplying the capture by `exp(−j2π·cfo·(n−t₀)/fs)`.
+    /// sampled at `t₀ + k·sps` (`t₀ + k·sps·(1 + ε)` with a clock offset
+    /// `ε = burst.sco_ppm·1e-6`, see [`BurstSync::symbol_instant`]) after multiplying
+    /// the capture by `exp(−j2π·cfo·(n−t₀)/fs)`. With `ε = 0` a piece of symbols
+    /// shares one fractional instant and one folded filter; with `ε ≠ 0` each symbol
+    /// is interpolated on its own.
     /// Symbols outside the capture are written as 0 and excluded from the returned
     /// [`SymbolSpan::available`] (a truncated burst is processed as far as it goes).
     ///
@@ -369,6 +393,13 @@ impl Synchroniser {
         // instant of a piece shares one fractional part): value at `n + μ` =
         // `Σ_i w_i(μ)·Σ_m p_m·x[n − SINC_HALF + 1 + i + m − d] = Σ_q g_q·x[n − SINC_HALF + 1 − d + q]`
         // with `g = w ∗ p` — only the symbol instants are filtered, not every sample.
+        if burst.sco_ppm != 0.0 {
+            self.extract_drifting(src, burst, a..b, &mut out[(a - symbols.start) as usize..])?;
+            return Ok(SymbolSpan {
+                requested: symbols,
+                available: a..b,
+            });
+        }
         let d = (self.pulse.len() - 1) / 2;
         let taps = self.pulse.len() + 2 * SINC_HALF - 1;
         let padded = taps.div_ceil(FOLD_LANES) * FOLD_LANES;
@@ -394,6 +425,157 @@ impl Synchroniser {
                 *o = dot_real_taps(&x[j * sps..j * sps + padded], &g2);
             }
             k = k_end;
+        }
+        Ok(SymbolSpan {
+            requested: symbols,
+            available: a..b,
+        })
+    }
+
+    /// [`Synchroniser::extract_symbols`] with a clock offset: symbol `k` of `range`
+    /// (all inside the capture) at `t₀ + k·sps·(1 + ε)`, written to `out[k − range.start]`.
+    /// Every instant has its own fractional part, so the matched filter is run at
+    /// every capture sample of a piece (`mf` below, tap by tap as in `mf_region`)
+    /// and each symbol is interpolated from it with its own windowed-sinc weights.
+    fn extract_drifting<S: SampleSource + ?Sized>(
+        &self,
+        src: &S,
+        burst: &BurstSync,
+        range: Range<i64>,
+        out: &mut [Cf32],
+    ) -> Result<(), SyncError> {
+        let t0 = burst.instant();
+        let f = burst.cfo_hz / self.cfg.sample_rate_hz;
+        let sps = self.cfg.sps;
+        let d = (self.pulse.len() - 1) / 2;
+        let h = SINC_HALF as i64;
+        let mut x: Vec<Cf32> = Vec::new();
+        let mut mf: Vec<Cf32> = Vec::new();
+        let mut k = range.start;
+        while k < range.end {
+            let k_end = (k + EXTRACT_PIECE_SYMBOLS).min(range.end);
+            // Matched-filter outputs at capture samples `lo ..= hi` cover every
+            // interpolator of the piece.
+            let lo = burst.symbol_instant(k, sps).floor() as i64 - h + 1;
+            let hi = burst.symbol_instant(k_end - 1, sps).floor() as i64 + h;
+            let count = (hi - lo + 1) as usize;
+            let start = lo - d as i64;
+            x.clear();
+            x.resize(count + self.pulse.len() - 1, Cf32::new(0.0, 0.0));
+            read_padded(src, start, &mut x)?;
+            derotate_run(&mut x, -f, |i| (start + i as i64) as f64 - t0);
+            mf.clear();
+            mf.resize(count, Cf32::new(0.0, 0.0));
+            for (m, &p) in self.pulse.iter().enumerate() {
+                for (o, &v) in mf.iter_mut().zip(&x[m..m + count]) {
+                    *o += v * p;
+                }
+            }
+            for (kk, o) in (k..k_end).zip(&mut out[(k - range.start) as usize..]) {
+                let t = burst.symbol_instant(kk, sps);
+                let n = t.floor();
+                *o = interpolate_with(&mf, n as i64 - lo, &sinc_weights(t - n));
+            }
+            k = k_end;
+        }
+        Ok(())
+    }
+
+    /// Timing derivative of [`Synchroniser::extract_symbols`]'s values, per sample:
+    /// `out[i] ≈ (v(t_k + δ) − v(t_k − δ))/(2δ)` for symbol `k = symbols.start + i`
+    /// at its instant `t_k` (drifted by the burst's clock offset), with `v` the same
+    /// de-rotated (about `t₀`), matched-filtered, interpolated signal. One folded
+    /// filter per piece (`ε = 0`) or per-symbol interpolation of the matched filter
+    /// (`ε ≠ 0`), as for the values. `delta` is clamped to `[1e-3, 0.5]` samples.
+    ///
+    /// # Panics
+    /// If `out.len()` differs from the length of `symbols` (or `symbols` is reversed).
+    pub fn extract_slopes<S: SampleSource + ?Sized>(
+        &self,
+        src: &S,
+        burst: &BurstSync,
+        symbols: Range<i64>,
+        delta: f64,
+        out: &mut [Cf32],
+    ) -> Result<SymbolSpan, SyncError> {
+        assert!(symbols.start <= symbols.end, "reversed symbol range");
+        assert_eq!(
+            out.len() as i64,
+            symbols.end - symbols.start,
+            "output length must match the symbol range"
+        );
+        let delta = if delta.is_finite() {
+            delta.clamp(1e-3, 0.5)
+        } else {
+            0.1
+        };
+        out.fill(Cf32::new(0.0, 0.0));
+        let a = symbols.start.max(burst.symbols_in_capture.start);
+        let b = symbols.end.min(burst.symbols_in_capture.end).max(a);
+        let t0 = burst.instant();
+        let f = burst.cfo_hz / self.cfg.sample_rate_hz;
+        let sps = self.cfg.sps;
+        let d = (self.pulse.len() - 1) / 2;
+        let h = SINC_HALF as i64;
+        let mut x: Vec<Cf32> = Vec::new();
+        if burst.sco_ppm == 0.0 {
+            let taps = self.pulse.len() + SLOPE_TAPS - 1;
+            let padded = taps.div_ceil(FOLD_LANES) * FOLD_LANES;
+            let mut g2 = vec![0.0f32; 2 * padded];
+            let mut k = a;
+            while k < b {
+                let k_end = (k + EXTRACT_PIECE_SYMBOLS).min(b);
+                let t = burst.symbol_instant(k, sps);
+                let n = t.floor();
+                g2.fill(0.0);
+                folded_taps(&self.pulse, &slope_weights(t - n, delta), &mut g2);
+                let start = n as i64 - h - d as i64;
+                let len = (k_end - 1 - k) as usize * sps + taps;
+                x.clear();
+                x.resize(len + padded - taps, Cf32::new(0.0, 0.0));
+                read_padded(src, start, &mut x[..len])?;
+                derotate_run(&mut x[..len], -f, |i| (start + i as i64) as f64 - t0);
+                for (j, o) in out[(k - symbols.start) as usize..(k_end - symbols.start) as usize]
+                    .iter_mut()
+                    .enumerate()
+                {
+                    *o = dot_real_taps(&x[j * sps..j * sps + padded], &g2);
+                }
+                k = k_end;
+            }
+        } else {
+            let mut mf: Vec<Cf32> = Vec::new();
+            let mut k = a;
+            while k < b {
+                let k_end = (k + EXTRACT_PIECE_SYMBOLS).min(b);
+                let lo = burst.symbol_instant(k, sps).floor() as i64 - h;
+                let hi = burst.symbol_instant(k_end - 1, sps).floor() as i64 + h + 1;
+                let count = (hi - lo + 1) as usize;
+                let start = lo - d as i64;
+                x.clear();
+                x.resize(count + self.pulse.len() - 1, Cf32::new(0.0, 0.0));
+                read_padded(src, start, &mut x)?;
+                derotate_run(&mut x, -f, |i| (start + i as i64) as f64 - t0);
+                mf.clear();
+                mf.resize(count, Cf32::new(0.0, 0.0));
+                for (m, &p) in self.pulse.iter().enumerate() {
+                    for (o, &v) in mf.iter_mut().zip(&x[m..m + count]) {
+                        *o += v * p;
+                    }
+                }
+                for (kk, o) in (k..k_end).zip(&mut out[(k - symbols.start) as usize..]) {
+                    let t = burst.symbol_instant(kk, sps);
+                    let n = t.floor();
+                    let w = slope_weights(t - n, delta);
+                    let base = (n as i64 - h - lo) as usize;
+                    let mut acc = Cf32::new(0.0, 0.0);
+                    for (v, wj) in mf[base..base + SLOPE_TAPS].iter().zip(&w) {
+                        acc += *v * *wj as f32;
+                    }
+                    *o = acc;
+                }
+                k = k_end;
+            }
         }
         Ok(SymbolSpan {
             requested: symbols,

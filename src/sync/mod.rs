@@ -224,6 +224,11 @@ pub struct BurstSync {
     /// best for the channel fit and keeps this.
     #[serde(default)]
     pub peak_instant: f64,
+    /// Sample-clock offset applied by [`Synchroniser::extract_symbols`], ppm
+    /// (crate convention: symbol `k` at `instant() + k·sps·(1 + sco_ppm·1e-6)`);
+    /// 0 from [`Synchroniser::refine`] and [`Synchroniser::align`].
+    #[serde(default)]
+    pub sco_ppm: f64,
 }
 
 impl BurstSync {
@@ -231,6 +236,45 @@ impl BurstSync {
     pub fn instant(&self) -> f64 {
         self.start_sample as f64 + self.timing_frac
     }
+
+    /// Samples per symbol on the capture's clock: `sps·(1 + sco_ppm·1e-6)`.
+    pub fn symbol_spacing(&self, sps: usize) -> f64 {
+        let spsf = sps as f64;
+        if self.sco_ppm == 0.0 {
+            spsf
+        } else {
+            spsf * (1.0 + self.sco_ppm * 1e-6)
+        }
+    }
+
+    /// Instant of symbol `k` (0 = first training symbol), capture samples.
+    pub fn symbol_instant(&self, k: i64, sps: usize) -> f64 {
+        self.instant() + k as f64 * self.symbol_spacing(sps)
+    }
+
+    /// The same burst with its instant moved by `shift` samples and the clock
+    /// offset set to `sco_ppm`; `symbols_in_capture` follows for a capture of
+    /// `capture_len` samples (the other fields are kept).
+    pub fn retimed(&self, shift: f64, sco_ppm: f64, sps: usize, capture_len: u64) -> BurstSync {
+        let t0 = self.instant() + shift;
+        let start_sample = (t0 + 0.5).floor() as i64;
+        let mut b = BurstSync {
+            start_sample,
+            timing_frac: t0 - start_sample as f64,
+            sco_ppm,
+            ..self.clone()
+        };
+        b.symbols_in_capture = symbols_inside(t0, b.symbol_spacing(sps), capture_len);
+        b
+    }
+}
+
+/// Symbol indices `k` whose instants `t0 + k·spacing` lie in `[0, len − 1]`.
+pub(crate) fn symbols_inside(t0: f64, spacing: f64, len: u64) -> Range<i64> {
+    let len = len as f64;
+    let k_lo = (-t0 / spacing).ceil() as i64;
+    let k_hi = ((len - 1.0 - t0) / spacing).floor() as i64 + 1;
+    k_lo..k_hi.max(k_lo)
 }
 
 /// Which symbols of a requested range [`Synchroniser::extract_symbols`] produced.

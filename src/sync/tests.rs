@@ -790,9 +790,21 @@ fn anchored_phasor_derotation_matches_a_sin_cos_per_sample() {
 
 /// Slow twin of [`Synchroniser::extract_symbols`]: de-rotate every capture sample with
 /// its own `sin_cos` (f64), matched-filter the whole capture sample by sample (f64,
-/// zeros outside), then interpolate each symbol instant with the kernel weights of its
-/// own fractional part (f64).
+/// zeros outside), then interpolate each symbol instant (`t₀ + k·sps·(1 + ε)` with the
+/// burst's clock offset ε) with the kernel weights of its own fractional part (f64).
 fn extract_slow(x: &[Cf32], p: &[f32], bs: &BurstSync, range: std::ops::Range<i64>) -> Vec<Cf64> {
+    extract_slow_at(x, p, bs, range, 0.0)
+}
+
+/// [`extract_slow`] at every instant moved by `shift` samples (de-rotation still
+/// about the burst's instant).
+fn extract_slow_at(
+    x: &[Cf32],
+    p: &[f32],
+    bs: &BurstSync,
+    range: std::ops::Range<i64>,
+    shift: f64,
+) -> Vec<Cf64> {
     let f = bs.cfo_hz / FS;
     let t0 = bs.instant();
     let d = (p.len() - 1) as i64 / 2;
@@ -823,7 +835,13 @@ fn extract_slow(x: &[Cf32], p: &[f32], bs: &BurstSync, range: std::ops::Range<i6
             if !in_capture {
                 return Cf64::new(0.0, 0.0);
             }
-            let t = t0 + k as f64 * SPS as f64;
+            // t₀ + k·sps·(1 + ε) (ε = 0: t₀ + k·sps exactly).
+            let t = shift
+                + if bs.sco_ppm == 0.0 {
+                    t0 + k as f64 * SPS as f64
+                } else {
+                    t0 + k as f64 * SPS as f64 * (1.0 + bs.sco_ppm * 1e-6)
+                };
             let n = t.floor();
             let w = timing::sinc_weights_f64(t - n);
             w.iter()
@@ -881,6 +899,188 @@ fn folded_symbol_extraction_matches_filtering_every_sample_then_interpolating() 
         assert!(
             worst <= 2e-6 * rms,
             "len {len}: worst {worst:.3e}, rms {rms:.3}"
+        );
+    }
+}
+
+#[test]
+fn drifting_symbol_extraction_matches_the_slow_twin_at_every_drifted_instant() {
+    // Reference: extract_slow, which evaluates the matched filter (f64, sample by
+    // sample) at each instant t₀ + k·sps·(1 + ε) by windowed-sinc interpolation with
+    // that instant's own weights (f64). The fast path filters each piece at every
+    // capture sample in f32 and interpolates with f32 weights: agreement to 2e-6 of
+    // the symbol rms amplitude (f32 sums of ≈ 50 terms, as for the folded path;
+    // common practice). Offsets 24, −100 and 1000 ppm (1000 ppm drifts 20 samples
+    // over the 5000-symbol case, so every fractional part is visited), a burst cut by
+    // the capture start, ranges reaching outside the capture and one longer than an
+    // extraction piece (4096 symbols).
+    let p = pulse();
+    let s = sync(MAX_CFO_HZ);
+    let train = training(7);
+    let mut rng = ChaCha8Rng::seed_from_u64(22);
+    for (len, t0, cfo, pre, post, range, ppm) in [
+        (
+            3000usize,
+            1200.37f64,
+            0.0f64,
+            100usize,
+            300usize,
+            -120i64..450,
+            24.0f64,
+        ),
+        (2400, 2.6, -900.0, 0, 600, -10..700, -100.0),
+        (20_000, 300.12, 1234.5, 20, 4800, -30..4990, 1000.0),
+    ] {
+        let mut x = vec![Cf32::new(0.0, 0.0); len];
+        let b = burst(&train, pre, post, t0, cfo, &mut rng);
+        add_burst(&mut x, &b, SPS, BETA, 8.0);
+        add_noise(&mut x, esn0_var(25.0), &mut rng);
+        let d = s.search(&x).unwrap();
+        assert_eq!(d.len(), 1, "len {len}");
+        let bs = s
+            .refine(&x[..], &d[0])
+            .unwrap()
+            .retimed(0.0, ppm, SPS, len as u64);
+        // The symbols inside the capture follow the drifted grid (definition).
+        let spacing = SPS as f64 * (1.0 + ppm * 1e-6);
+        for k in [bs.symbols_in_capture.start, bs.symbols_in_capture.end - 1] {
+            let t = bs.instant() + k as f64 * spacing;
+            assert!(
+                (0.0..=(len - 1) as f64).contains(&t),
+                "len {len}: k {k} at {t}"
+            );
+        }
+        for k in [bs.symbols_in_capture.start - 1, bs.symbols_in_capture.end] {
+            let t = bs.instant() + k as f64 * spacing;
+            assert!(
+                !(0.0..=(len - 1) as f64).contains(&t),
+                "len {len}: k {k} at {t}"
+            );
+        }
+        let mut z = vec![Cf32::new(7.0, 7.0); (range.end - range.start) as usize];
+        let span = s
+            .extract_symbols(&x[..], &bs, range.clone(), &mut z)
+            .unwrap();
+        assert_eq!(
+            span.available.start,
+            range.start.max(bs.symbols_in_capture.start)
+        );
+        let want = extract_slow(&x, &p, &bs, range.clone());
+        let rms = (want.iter().map(|v| v.norm_sqr()).sum::<f64>() / want.len() as f64).sqrt();
+        let worst = z
+            .iter()
+            .zip(&want)
+            .map(|(a, b)| (Cf64::new(f64::from(a.re), f64::from(a.im)) - b).norm())
+            .fold(0.0f64, f64::max);
+        eprintln!("len {len}, {ppm} ppm: worst {worst:.2e} of rms {rms:.3}");
+        assert!(
+            worst <= 2e-6 * rms,
+            "len {len}, {ppm} ppm: worst {worst:.3e}, rms {rms:.3}"
+        );
+    }
+}
+
+#[test]
+fn a_zero_clock_offset_leaves_extraction_bit_identical() {
+    // Definition: ε = 0 keeps the folded path (one filter per piece), so a burst
+    // re-timed to ε = 0 gives exactly the values of the burst as refined, while a
+    // tiny nonzero offset takes the per-symbol path and agrees only to rounding
+    // (2e-6 of the rms, the tolerance of the slow-twin tests).
+    let s = sync(MAX_CFO_HZ);
+    let train = training(7);
+    let mut rng = ChaCha8Rng::seed_from_u64(23);
+    let len = 6000;
+    let mut x = vec![Cf32::new(0.0, 0.0); len];
+    let b = burst(&train, 50, 1000, 900.4, 700.0, &mut rng);
+    add_burst(&mut x, &b, SPS, BETA, 8.0);
+    add_noise(&mut x, esn0_var(25.0), &mut rng);
+    let d = s.search(&x).unwrap();
+    let bs = s.refine(&x[..], &d[0]).unwrap();
+    let range = -60i64..1200;
+    let n = (range.end - range.start) as usize;
+    let (mut a, mut z, mut t) = (
+        vec![Cf32::default(); n],
+        vec![Cf32::default(); n],
+        vec![Cf32::default(); n],
+    );
+    s.extract_symbols(&x[..], &bs, range.clone(), &mut a)
+        .unwrap();
+    let zero = bs.retimed(0.0, 0.0, SPS, len as u64);
+    assert_eq!(zero.symbols_in_capture, bs.symbols_in_capture);
+    s.extract_symbols(&x[..], &zero, range.clone(), &mut z)
+        .unwrap();
+    assert_eq!(a, z);
+    s.extract_symbols(
+        &x[..],
+        &bs.retimed(0.0, 1e-9, SPS, len as u64),
+        range,
+        &mut t,
+    )
+    .unwrap();
+    let rms = (a.iter().map(|v| v.norm_sqr() as f64).sum::<f64>() / n as f64).sqrt();
+    let worst = a
+        .iter()
+        .zip(&t)
+        .map(|(p, q)| (p - q).norm() as f64)
+        .fold(0.0, f64::max);
+    assert!(
+        worst > 0.0 && worst <= 2e-6 * rms,
+        "worst {worst:.3e} of rms {rms:.3}"
+    );
+}
+
+#[test]
+fn slope_extraction_is_the_central_difference_of_the_slow_twin_with_and_without_drift() {
+    // Reference: (extract_slow_at(+δ) − extract_slow_at(−δ))/(2δ), each evaluated
+    // from its definition in f64 (matched filter sample by sample, windowed-sinc
+    // weights of each moved instant's own fractional part). The fast path folds the
+    // two kernels into one f32 filter (ε = 0) or applies them to an f32 matched
+    // filter (ε ≠ 0). Agreement to 1e-5 of the slopes' rms: the f32 rounding of the
+    // 2e-6 value tests, multiplied by up to 1/(2δ) = 5 for the difference (common
+    // practice). δ = 0.1 and 0.4 (μ ± δ crossing a whole sample either way), ε = 0,
+    // 24 and −300 ppm, a range reaching outside the capture.
+    let p = pulse();
+    let s = sync(MAX_CFO_HZ);
+    let train = training(7);
+    let mut rng = ChaCha8Rng::seed_from_u64(24);
+    for (t0, cfo, ppm, delta) in [
+        (1200.37f64, 0.0f64, 0.0f64, 0.1f64),
+        (1000.95, 1700.0, 0.0, 0.4),
+        (1100.02, -900.0, 24.0, 0.1),
+        (1000.5, 400.0, -300.0, 0.4),
+    ] {
+        let len = 7000;
+        let mut x = vec![Cf32::new(0.0, 0.0); len];
+        let b = burst(&train, 100, 1300, t0, cfo, &mut rng);
+        add_burst(&mut x, &b, SPS, BETA, 8.0);
+        add_noise(&mut x, esn0_var(25.0), &mut rng);
+        let d = s.search(&x).unwrap();
+        let bs = s
+            .refine(&x[..], &d[0])
+            .unwrap()
+            .retimed(0.0, ppm, SPS, len as u64);
+        let range = -150i64..1700;
+        let mut z = vec![Cf32::new(7.0, 7.0); (range.end - range.start) as usize];
+        s.extract_slopes(&x[..], &bs, range.clone(), delta, &mut z)
+            .unwrap();
+        let hi = extract_slow_at(&x, &p, &bs, range.clone(), delta);
+        let lo = extract_slow_at(&x, &p, &bs, range.clone(), -delta);
+        let want: Vec<Cf64> = hi
+            .iter()
+            .zip(&lo)
+            .map(|(a, b)| (a - b) / (2.0 * delta))
+            .collect();
+        let rms = (want.iter().map(|v| v.norm_sqr()).sum::<f64>() / want.len() as f64).sqrt();
+        let worst = z
+            .iter()
+            .zip(&want)
+            .map(|(a, b)| (Cf64::new(f64::from(a.re), f64::from(a.im)) - b).norm())
+            .fold(0.0f64, f64::max);
+        eprintln!("{ppm} ppm, δ {delta}: worst {worst:.2e} of rms {rms:.3}");
+        assert!(rms > 0.1, "slopes vanish");
+        assert!(
+            worst <= 1e-5 * rms,
+            "{ppm} ppm, δ {delta}: worst {worst:.3e}, rms {rms:.3}"
         );
     }
 }

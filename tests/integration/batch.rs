@@ -61,6 +61,8 @@ fn minimal_report(path: &Path, result: VerdictResult, profile_sha: &str) -> Repo
             ser: ErrorRate::new(sum % 5, 1000, 0.95),
             ber: None,
             cfo_abs_max_hz: evm.map(|_| 120.5),
+            sco_mean_ppm: None,
+            sco_abs_max_ppm: None,
             longest_error_run: (sum % 4) as usize,
         },
         verdict: Verdict {

@@ -14,6 +14,7 @@ mod bounded_memory;
 mod capture_formats;
 mod carrier;
 mod cli_conventions;
+mod clock;
 mod fuzz_seeds;
 mod info_cli;
 mod large_capture;
