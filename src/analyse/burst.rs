@@ -22,7 +22,10 @@ use crate::profile::ResolvedProfile;
 use crate::report::metrics::{
     payload_figures, run_length_histogram, PayloadDecisions, PayloadFigures,
 };
-use crate::report::schema::{BurstMetrics, BurstReport, EqualiserReport, Warning, WarningCode};
+use crate::report::metrics::RunAwareRate;
+use crate::report::schema::{
+    BurstMetrics, BurstReport, EqualiserReport, TheoryReport, Warning, WarningCode,
+};
 use crate::sync::{BurstSync, SampleSource, Synchroniser};
 use crate::{Cf32, Cf64, Error};
 
@@ -458,6 +461,7 @@ pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
             predicted_snr_db: finite(filters.predicted_snr_unbiased_db),
             achieved_snr_db: metrics.mer_db,
             linear_mmse_evm_percent: linear_evm,
+            theory: Some(theory_report(&out.channel)),
             tracking: tracking_name(profile.equaliser.tracking).to_string(),
             feedforward: filters
                 .ff
@@ -474,6 +478,20 @@ pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
         trace,
         warnings,
     })
+}
+
+/// The infinite-length bounds of the fitted channel at its fitted noise level.
+fn theory_report(ch: &crate::channel::ChannelEstimate) -> TheoryReport {
+    let energy: f64 = ch.taps.iter().map(|t| t.norm_sqr()).sum();
+    let snr = ch.snr_linear() / energy.max(1e-300);
+    let b = crate::equalise::theory::bounds(&ch.taps, snr, crate::equalise::theory::DEFAULT_GRID);
+    TheoryReport {
+        input_snr_db: finite(b.input_snr_db),
+        matched_filter_bound_db: finite(b.matched_filter_bound_db),
+        mmse_dfe_unbiased_db: finite(b.mmse_dfe_unbiased_db),
+        zf_dfe_db: finite(b.zf_dfe_db),
+        mmse_le_unbiased_db: finite(b.mmse_le_unbiased_db),
+    }
 }
 
 /// RMS of `arg(z·conj(r))` over the symbols with a non-zero reference, degrees.
@@ -509,6 +527,10 @@ fn burst_metrics(fig: &PayloadFigures, z: &[Cf32], numbers: &[usize], known: boo
         mer_db: evm.and_then(|f| f.mer_db),
         phase_error_rms_deg: phase_error_rms_deg(z, &fig.reference),
         ser: fig.ser,
+        ser_run_aware: fig.ser.and_then(|r| {
+            let events: u64 = run_length_histogram(&fig.runs).iter().sum();
+            RunAwareRate::new(r.errors, events, r.trials, r.confidence)
+        }),
         ber: fig.ber,
         run_length_histogram: run_length_histogram(&fig.runs),
         error_runs: fig.runs.clone(),

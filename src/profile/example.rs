@@ -119,6 +119,7 @@ pub fn example_profile(opts: &ExampleOptions) -> Profile {
             evm_rms_percent_max: Some(evm_percent),
             mer_db_min: Some(mer_db_min),
             ser_max: Some(1e-3),
+            ser_max_on_upper_bound: None,
             cfo_hz_abs_max: Some(0.01 * opts.symbol_rate_hz),
             spectral_mask: Vec::new(),
         },

@@ -297,6 +297,9 @@ pub struct ResolvedLimits {
     pub mer_db_min: Option<f64>,
     /// Largest SER.
     pub ser_max: Option<f64>,
+    /// Judge `ser_max` on the run-aware interval's upper end (absent when false).
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub ser_max_on_upper_bound: bool,
     /// Largest |CFO|, Hz.
     pub cfo_hz_abs_max: Option<f64>,
     /// Spectral mask segments (absent when empty).
@@ -785,6 +788,7 @@ impl Profile {
             evm_rms_percent_max: l.evm_rms_percent_max,
             mer_db_min: l.mer_db_min,
             ser_max: l.ser_max,
+            ser_max_on_upper_bound: l.ser_max_on_upper_bound.unwrap_or(false),
             cfo_hz_abs_max: l.cfo_hz_abs_max,
             spectral_mask: l.spectral_mask.clone(),
         };

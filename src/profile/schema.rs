@@ -455,6 +455,10 @@ pub struct LimitsSection {
     /// Largest allowed symbol error rate (needs a known payload).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub ser_max: Option<f64>,
+    /// Judge `ser_max` on the upper end of the 95 % run-aware interval
+    /// (`summary.ser_run_aware.ci_high`) instead of the point estimate.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub ser_max_on_upper_bound: Option<bool>,
     /// Largest allowed |CFO| in Hz.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub cfo_hz_abs_max: Option<f64>,

@@ -147,6 +147,54 @@ impl ErrorRate {
     }
 }
 
+/// An interval for the symbol error rate that holds when errors come in runs
+/// (decision-feedback error propagation): the Clopper–Pearson interval is
+/// taken over error *events* — each run of consecutive wrong decisions counts
+/// once, as error-event analyses of DFE error propagation count them (Jeruchim,
+/// Balaban & Shanmugan, *Simulation of Communication Systems*, 2nd ed., §11.2
+/// on dependent errors — from memory) — and scaled by the mean run length:
+/// `[CP_low(E, N), CP_high(E, N)]·L̄` with `E` events in `N` symbols and
+/// `L̄ = errors/E` (1 when there are none). Independent errors (all runs of
+/// length 1) give exactly the Clopper–Pearson interval; runs of length `L`
+/// widen it by about `√L`. The mean run length is taken as known, so the
+/// spread of the run lengths is not in the interval.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
+pub struct RunAwareRate {
+    /// Error events (runs of consecutive wrong decisions).
+    pub events: u64,
+    /// Mean run length `errors / events` (1 when there are no errors).
+    pub mean_run_length: f64,
+    /// Lower end of the interval.
+    pub ci_low: f64,
+    /// Upper end of the interval.
+    pub ci_high: f64,
+    /// Confidence level (as the Clopper–Pearson interval beside it).
+    pub confidence: f64,
+}
+
+impl RunAwareRate {
+    /// The interval for `errors` in `trials` symbols grouped into `events` runs;
+    /// `None` when `trials == 0` or the counts are inconsistent.
+    pub fn new(errors: u64, events: u64, trials: u64, confidence: f64) -> Option<RunAwareRate> {
+        if trials == 0 || errors > trials || events > errors || (errors > 0 && events == 0) {
+            return None;
+        }
+        let l = if events > 0 {
+            errors as f64 / events as f64
+        } else {
+            1.0
+        };
+        let (lo, hi) = clopper_pearson(events, trials, confidence);
+        Some(RunAwareRate {
+            events,
+            mean_run_length: l,
+            ci_low: (lo * l).min(1.0),
+            ci_high: (hi * l).min(1.0),
+            confidence,
+        })
+    }
+}
+
 /// Exact two-sided Clopper–Pearson interval for `k` successes in `n` trials:
 /// `[B(α/2; k, n−k+1), B(1−α/2; k+1, n−k)]` with `B` the beta quantile and
 /// `α = 1 − confidence`; the lower end is 0 when `k = 0`, the upper 1 when `k = n`.
@@ -571,6 +619,27 @@ impl MlseReport {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    // The run-aware interval reduces to Clopper–Pearson when every error is a
+    // run of its own, and for runs of length L is L times the Clopper–Pearson
+    // interval of the events (its definition); Clopper–Pearson itself is checked
+    // against scipy below. 0 errors in 1024: 1 − 0.025^(1/1024) = 3.596e-3
+    // (closed form of the Beta(1, n) quantile).
+    #[test]
+    fn the_run_aware_interval_counts_runs_once() {
+        let cp = ErrorRate::new(12, 10_000, 0.95).unwrap();
+        let same = RunAwareRate::new(12, 12, 10_000, 0.95).unwrap();
+        assert_eq!((same.ci_low, same.ci_high), (cp.ci_low, cp.ci_high));
+        let runs = RunAwareRate::new(12, 3, 10_000, 0.95).unwrap();
+        let (lo, hi) = clopper_pearson(3, 10_000, 0.95);
+        assert_eq!(runs.mean_run_length, 4.0);
+        assert!((runs.ci_low - 4.0 * lo).abs() < 1e-15 && (runs.ci_high - 4.0 * hi).abs() < 1e-15);
+        assert!(runs.ci_high > cp.ci_high && runs.ci_low < cp.ci_low);
+        let none = RunAwareRate::new(0, 0, 1024, 0.95).unwrap();
+        assert!((none.ci_high - 3.596e-3).abs() < 1e-6, "{}", none.ci_high);
+        assert!(RunAwareRate::new(3, 0, 100, 0.95).is_none());
+        assert!(RunAwareRate::new(3, 4, 100, 0.95).is_none());
+    }
 
     #[test]
     fn payload_figures_count_symbol_and_bit_errors_runs_and_propagation_by_their_definitions() {

@@ -44,7 +44,7 @@
 //! object (absent unless the profile turns the MLSE on, so reports without it
 //! are unchanged) and the `dfe-below-mlse` warning (issue #21).
 
-use super::metrics::{ErrorPropagation, ErrorRate, ErrorRun, MlseReport};
+use super::metrics::{ErrorPropagation, ErrorRate, ErrorRun, MlseReport, RunAwareRate};
 pub use crate::capture::views::CaptureViews;
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
@@ -281,6 +281,25 @@ pub struct ChannelReport {
     pub response_db: Option<Vec<[f64; 2]>>,
 }
 
+/// What an ideal receiver could achieve on the burst's fitted channel at its
+/// fitted noise level (infinite-length equalisers; formulas and sources in
+/// `equalise::theory`: Salz, BSTJ 52(8) 1973 for the MMSE-DFE). dB; `null`
+/// where a figure is not finite (a ZF-DFE on a channel with a spectral zero).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct TheoryReport {
+    /// Input SNR `Es/σ²` (the fit's SNR less the channel's energy), dB.
+    pub input_snr_db: Option<f64>,
+    /// Matched-filter bound `SNR·Σ|h|²`, dB: no equaliser does better.
+    pub matched_filter_bound_db: Option<f64>,
+    /// Salz's infinite-length MMSE-DFE, unbiased, dB (correct decisions fed back).
+    pub mmse_dfe_unbiased_db: Option<f64>,
+    /// Infinite-length ZF-DFE, dB.
+    pub zf_dfe_db: Option<f64>,
+    /// Infinite-length linear MMSE equaliser, unbiased, dB.
+    pub mmse_le_unbiased_db: Option<f64>,
+}
+
 /// Which equaliser ran and what it was expected to achieve.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
@@ -299,6 +318,10 @@ pub struct EqualiserReport {
     pub achieved_snr_db: Option<f64>,
     /// The EVM the linear MMSE equaliser of the same span gives on the same burst, %.
     pub linear_mmse_evm_percent: Option<f64>,
+    /// Infinite-length bounds from the fitted channel and noise, beside
+    /// `achieved_snr_db` ([`TheoryReport`]).
+    #[serde(default)]
+    pub theory: Option<TheoryReport>,
     /// Tracking mode (`off`, `lms`, `rls`).
     pub tracking: String,
     /// Feedforward coefficients `ff[0..Nf]` as designed (before tracking), in
@@ -336,6 +359,11 @@ pub struct BurstMetrics {
     pub phase_error_rms_deg: Option<f64>,
     /// Symbol error rate with 95 % Clopper–Pearson interval; `null` when the payload is unknown.
     pub ser: Option<ErrorRate>,
+    /// The SER interval over error events (runs counted once), which holds
+    /// when decision feedback makes errors come in runs
+    /// ([`RunAwareRate`]); `null` when the payload is unknown.
+    #[serde(default)]
+    pub ser_run_aware: Option<RunAwareRate>,
     /// Bit error rate with 95 % interval; `null` when the payload is unknown.
     pub ber: Option<ErrorRate>,
     /// Runs of consecutive decision errors (payload symbol index, length), the
@@ -417,6 +445,10 @@ pub struct Summary {
     pub mer_db: Option<f64>,
     /// SER over all bursts with 95 % interval; `null` when the payload is unknown.
     pub ser: Option<ErrorRate>,
+    /// The run-aware SER interval over all bursts (error events and errors
+    /// summed); `null` when the payload is unknown.
+    #[serde(default)]
+    pub ser_run_aware: Option<RunAwareRate>,
     /// BER over all bursts with 95 % interval; `null` when the payload is unknown.
     pub ber: Option<ErrorRate>,
     /// Largest |CFO| over bursts, Hz.

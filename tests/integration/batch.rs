@@ -59,6 +59,7 @@ fn minimal_report(path: &Path, result: VerdictResult, profile_sha: &str) -> Repo
             evm_worst_percent: evm.map(|e| e * 1.5),
             mer_db: evm.map(|e| -20.0 * (e / 100.0).log10()),
             ser: ErrorRate::new(sum % 5, 1000, 0.95),
+            ser_run_aware: None,
             ber: None,
             cfo_abs_max_hz: evm.map(|_| 120.5),
             sco_mean_ppm: None,

@@ -11,6 +11,7 @@ mod batch;
 mod batch_cli;
 mod batch_kill;
 mod bounded_memory;
+mod bounds;
 mod capture_formats;
 mod carrier;
 mod cli_conventions;
