@@ -19,10 +19,10 @@ use crate::capture::Capture;
 use crate::channel::{fit_channel, ChannelFitConfig, TapSpan};
 use crate::equalise::{process_burst, BurstOutput, BurstView, DfeFilters, EqualisedSymbols};
 use crate::profile::ResolvedProfile;
+use crate::report::metrics::RunAwareRate;
 use crate::report::metrics::{
     payload_figures, run_length_histogram, PayloadDecisions, PayloadFigures,
 };
-use crate::report::metrics::RunAwareRate;
 use crate::report::schema::{
     BurstMetrics, BurstReport, EqualiserReport, TheoryReport, Warning, WarningCode,
 };

@@ -125,6 +125,18 @@ pub struct AnalyseOptions {
 
 /// Analyse one capture (see the module documentation).
 ///
+/// ```
+/// use iqaudit::analyse::{analyse_capture, AnalyseOptions};
+/// use std::path::Path;
+///
+/// let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-captures");
+/// let profile = iqaudit::profile::load_profile(&dir.join("crane-bench-cable.ci16.profile.json"))?;
+/// let report = analyse_capture(&dir.join("crane-bench-cable.ci16"), &profile, &AnalyseOptions::default())?;
+/// assert_eq!(report.summary.bursts, 4);
+/// assert!(report.summary.evm_rms_percent.is_some_and(|e| e < 5.0));
+/// # Ok::<(), Box<dyn std::error::Error>>(())
+/// ```
+///
 /// # Errors
 /// Unreadable capture, unusable profile, or a failure of a stage that is not a
 /// per-burst problem. A capture without training is not an error: its report has

@@ -782,6 +782,21 @@ pub const RELEASE_MIN_READ_BYTES: usize = 256 << 10;
 impl Capture {
     /// Open the capture at `path`, memory-mapping it (falls back to buffered reads
     /// when mapping fails). See the module doc for how the format is resolved.
+    ///
+    /// ```
+    /// use iqaudit::{Capture, Cf32, OpenOptions};
+    /// use std::path::Path;
+    ///
+    /// // The SigMF sidecar beside the file gives format and rate.
+    /// let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-captures/bench-noise-floor.cf32");
+    /// let cap = Capture::open(&path, &OpenOptions::default())?;
+    /// assert_eq!(cap.len(), 65_536);
+    /// assert_eq!(cap.sample_rate_hz(), Some(1e6));
+    /// let mut first = vec![Cf32::new(0.0, 0.0); 1024];
+    /// let stats = cap.read_into(0, &mut first)?;
+    /// assert_eq!(stats.clipped, 0);
+    /// # Ok::<(), iqaudit::CaptureError>(())
+    /// ```
     pub fn open(path: &Path, opts: &OpenOptions) -> Result<Capture, CaptureError> {
         // Positioned reads: a file truncated while it is read gives a read
         // error ("the file shrank …"), never SIGBUS (issue 16).

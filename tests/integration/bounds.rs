@@ -72,7 +72,10 @@ fn a_flat_channel_has_every_bound_at_the_matched_filter_bound_and_a_dispersive_o
     assert!(f("mmse_dfe_unbiased_db") >= f("zf_dfe_db"));
     assert!(f("mmse_dfe_unbiased_db") >= f("mmse_le_unbiased_db"));
     let achieved = b["equaliser"]["achieved_snr_db"].as_f64().unwrap();
-    assert!(achieved <= f("matched_filter_bound_db") + 0.5, "{achieved} against {t}");
+    assert!(
+        achieved <= f("matched_filter_bound_db") + 0.5,
+        "{achieved} against {t}"
+    );
 }
 
 #[test]
