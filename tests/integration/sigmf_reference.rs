@@ -238,3 +238,48 @@ fn bursts_are_found_at_their_true_starts_behind_any_header_and_inside_an_archive
             .collect::<Vec<_>>()
     );
 }
+
+// Source: the SigMF reference library wrote bursts.sigmf-meta with three
+// capture segments at 433.92, 434.02 and 434.12 MHz (make_sigmf_vectors.py),
+// segments starting at 0, 969 and 2097; burst 2 (true start 2057) runs across
+// the last boundary (expected.json `spanning_burst`). SigMF v1.2 `captures`: a
+// segment's `core:frequency` holds from its `core:sample_start` on. Each burst
+// reports the frequency of the segment it starts in and its CFO in ppm of it,
+// and the spanning one is flagged (#18).
+#[test]
+fn each_burst_of_the_reference_librarys_recording_reports_its_segments_frequency() {
+    let out = iqaudit()
+        .arg("analyse")
+        .arg(test_data("vectors/sigmf/bursts.sigmf-meta"))
+        .arg("--profile")
+        .arg(test_data("vectors/sigmf/link.profile.json"))
+        .arg("--json")
+        .output()
+        .unwrap();
+    let v: Value =
+        serde_json::from_slice(&out.stdout).unwrap_or_else(|e| panic!("{e}: {}", stderr_of(&out)));
+    let got: Vec<f64> = v["bursts"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|b| b["center_freq_hz"].as_f64().unwrap())
+        .collect();
+    assert_eq!(got, [433.92e6, 434.02e6, 434.02e6]);
+    let spans: Vec<bool> = v["bursts"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|b| {
+            b["warnings"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .any(|w| w["code"] == "spans-segments")
+        })
+        .collect();
+    assert_eq!(spans, [false, false, true]);
+    for b in v["bursts"].as_array().unwrap() {
+        let want = b["cfo_hz"].as_f64().unwrap() / b["center_freq_hz"].as_f64().unwrap() * 1e6;
+        assert!((b["cfo_ppm"].as_f64().unwrap() - want).abs() < 1e-9);
+    }
+}
