@@ -85,7 +85,9 @@ fn open_options(profile: &ResolvedProfile, opts: &AnalyseOptions) -> Result<Open
         },
         sample_rate_hz: opts.sample_rate_hz.or(profile.capture.sample_rate_hz),
         swap_iq: profile.capture.swap_iq,
-        ..OpenOptions::default()
+        // The profile's (recorded with it in the report, so `recheck` reads
+        // the samples the same way).
+        unsigned_zero: profile.capture.unsigned_zero.unwrap_or_default(),
     })
 }
 
@@ -108,7 +110,7 @@ pub fn open_capture(
         format: opts.format,
         sample_rate_hz: opts.sample_rate_hz,
         swap_iq: profile.capture.swap_iq,
-        ..OpenOptions::default()
+        unsigned_zero: with_profile.unsigned_zero,
     };
     if let Ok(c) = Capture::open(path, &explicit) {
         let file_says = opts.format.is_some()

@@ -60,6 +60,7 @@ pub fn example_profile(opts: &ExampleOptions) -> Profile {
             sample_rate_hz: Some(sample_rate_hz),
             center_freq_hz: Some(458_500_000.0),
             swap_iq: false,
+            unsigned_zero: None,
         },
         samples_per_symbol: Some(opts.samples_per_symbol),
         symbol_rate_hz: None,

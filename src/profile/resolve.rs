@@ -81,6 +81,9 @@ pub struct ResolvedCapture {
     pub center_freq_hz: Option<f64>,
     /// Swap I and Q on reading.
     pub swap_iq: bool,
+    /// Zero point of unsigned datatypes (absent: `symmetric`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub unsigned_zero: Option<crate::capture::UnsignedZero>,
 }
 
 /// Resolved `pulse`.
@@ -673,6 +676,7 @@ impl Profile {
             sample_rate_hz: c.sample_rate_hz,
             center_freq_hz: c.center_freq_hz,
             swap_iq: c.swap_iq,
+            unsigned_zero: c.unsigned_zero,
         };
         if let Some(r) = self.symbol_rate_hz {
             rate("symbol_rate_hz", r)?;

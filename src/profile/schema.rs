@@ -67,6 +67,11 @@ pub struct CaptureSection {
     /// Swap I and Q on reading (mirrors the spectrum).
     #[serde(default)]
     pub swap_iq: bool,
+    /// Zero point of unsigned datatypes (`cu8`, `cu16`, `cu32`): `symmetric`
+    /// (default, 127.5 for `cu8`) or `power_of_two` (128 for `cu8`, the SigMF
+    /// reference library's). See docs/sigmf.md.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub unsigned_zero: Option<crate::capture::UnsignedZero>,
 }
 
 /// Pulse shapes the profile can name.

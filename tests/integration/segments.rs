@@ -253,3 +253,61 @@ fn batch_annotate_writes_a_sidecar_for_every_capture_it_analyses() {
         assert_eq!(detected, 3, "{name}");
     }
 }
+
+#[test]
+fn the_profile_can_name_the_unsigned_zero_point_and_analyse_reads_by_it() {
+    // SigMF leaves the zero of unsigned datatypes open; `power_of_two` is the
+    // reference library's convention (Python sigmf 1.14, autoscale: (x − 128)/128
+    // for cu8), `symmetric` this crate's default ((x − 127.5)/127.5). The burst's
+    // received power must be the mean |x|² of its samples under the named rule,
+    // computed here directly from the bytes.
+    let dir = tempdir();
+    let prof = profile(dir.path());
+    let cap = dir.path().join("u.cu8");
+    let out = iqaudit()
+        .args(["synth", "--profile"])
+        .arg(&prof)
+        .args([
+            "--bursts",
+            "2",
+            "--esn0-db",
+            "25",
+            "--seed",
+            "8",
+            "--format",
+            "cu8",
+        ])
+        .args(["--level-dbfs", "-12", "--no-sigmf", "--out"])
+        .arg(&cap)
+        .output()
+        .unwrap();
+    assert!(out.status.success(), "{}", stderr_of(&out));
+    let bytes = std::fs::read(&cap).unwrap();
+    for (rule, zero) in [("symmetric", 127.5f64), ("power_of_two", 128.0)] {
+        let mut p: Value = serde_json::from_str(&std::fs::read_to_string(&prof).unwrap()).unwrap();
+        p["capture"]["format"] = "cu8".into();
+        p["capture"]["unsigned_zero"] = rule.into();
+        let pp = dir.path().join(format!("{rule}.json"));
+        std::fs::write(&pp, serde_json::to_vec(&p).unwrap()).unwrap();
+        let (rep, err) = analyse(&cap, &pp, &[]);
+        assert_eq!(rep["profile"]["capture"]["unsigned_zero"], rule, "{err}");
+        let b = &rep["bursts"][0];
+        // The burst's own samples: training (64) and payload after (1024) at 4 samples/symbol.
+        let start = b["start_sample"].as_u64().unwrap() as usize;
+        let end = (start + (64 + 1024) * 4).min(bytes.len() / 2);
+        let power: f64 = (start..end)
+            .map(|k| {
+                let i = (f64::from(bytes[2 * k]) - zero) / zero;
+                let q = (f64::from(bytes[2 * k + 1]) - zero) / zero;
+                i * i + q * q
+            })
+            .sum::<f64>()
+            / (end - start) as f64;
+        let want = 10.0 * power.log10();
+        let got = b["received_power_dbfs"].as_f64().unwrap();
+        assert!(
+            (got - want).abs() < 1e-4,
+            "{rule}: {got} dBFS against {want}"
+        );
+    }
+}
