@@ -19,9 +19,18 @@
 //! | `mer_db` | MER over all bursts, dB |
 //! | `ser` | symbol error rate; empty/`null` when the payload is unknown |
 //! | `ber` | bit error rate; empty/`null` when the payload is unknown |
+//! | `symbol_errors` | wrong payload symbols over all bursts (count); with `symbols` a fleet SER pools exactly as `Σ symbol_errors / Σ symbols` |
+//! | `symbols` | payload symbols judged (count) |
+//! | `bit_errors` | wrong payload bits over all bursts (count) |
+//! | `bits` | payload bits judged (count) |
 //! | `cfo_abs_max_hz` | largest \|CFO\| over bursts, Hz |
 //! | `longest_error_run` | longest decision-error run, symbols |
 //! | `warnings` | number of warnings (capture and burst level) |
+//! | `warning_codes` | the distinct warning codes, sorted, `;`-separated |
+//! | `failed_limits` | the limits that failed (profile keys, e.g. `limits.ser_max`), `;`-separated; empty when none |
+//! | `format` | sample layout analysed (`ci16_le`, `wav_pcm16`, …) |
+//! | `sample_rate_hz` | the capture's sample rate, Hz |
+//! | `center_freq_hz` | the capture's centre frequency, Hz; empty/`null` when unknown |
 //! | `report` | report path relative to the output folder |
 //! | `error` | the problem, when the capture failed |
 //!
@@ -37,7 +46,7 @@ use std::path::{Path, PathBuf};
 
 /// Schema id of one summary row (`iqaudit schema summary-row`); rows do not
 /// carry it, the CSV header and the JSON keys are the columns.
-pub const SUMMARY_ROW_SCHEMA: &str = "iqaudit.summary-row/1";
+pub const SUMMARY_ROW_SCHEMA: &str = "iqaudit.summary-row/2";
 
 /// What became of one capture.
 #[derive(
@@ -104,12 +113,39 @@ pub struct SummaryRow {
     pub ser: Option<f64>,
     /// Bit error rate (payload known).
     pub ber: Option<f64>,
+    /// Wrong payload symbols (payload known).
+    #[serde(default)]
+    pub symbol_errors: Option<u64>,
+    /// Payload symbols judged (payload known).
+    #[serde(default)]
+    pub symbols: Option<u64>,
+    /// Wrong payload bits (payload known).
+    #[serde(default)]
+    pub bit_errors: Option<u64>,
+    /// Payload bits judged (payload known).
+    #[serde(default)]
+    pub bits: Option<u64>,
     /// Largest |CFO| over bursts, Hz.
     pub cfo_abs_max_hz: Option<f64>,
     /// Longest decision-error run, symbols.
     pub longest_error_run: Option<usize>,
     /// Warnings in the report (capture and burst level).
     pub warnings: Option<usize>,
+    /// Distinct warning codes, sorted, `;`-separated.
+    #[serde(default)]
+    pub warning_codes: Option<String>,
+    /// Failed limits (profile keys), `;`-separated.
+    #[serde(default)]
+    pub failed_limits: Option<String>,
+    /// Sample layout analysed.
+    #[serde(default)]
+    pub format: Option<String>,
+    /// Sample rate, Hz.
+    #[serde(default)]
+    pub sample_rate_hz: Option<f64>,
+    /// Centre frequency, Hz.
+    #[serde(default)]
+    pub center_freq_hz: Option<f64>,
     /// Report path relative to the output folder, `/`-separated.
     pub report: Option<String>,
     /// The problem, when the capture failed.
@@ -117,7 +153,7 @@ pub struct SummaryRow {
 }
 
 /// The CSV header, in column order.
-pub const CSV_HEADER: [&str; 15] = [
+pub const CSV_HEADER: [&str; 24] = [
     "path",
     "bytes",
     "sha256",
@@ -128,9 +164,18 @@ pub const CSV_HEADER: [&str; 15] = [
     "mer_db",
     "ser",
     "ber",
+    "symbol_errors",
+    "symbols",
+    "bit_errors",
+    "bits",
     "cfo_abs_max_hz",
     "longest_error_run",
     "warnings",
+    "warning_codes",
+    "failed_limits",
+    "format",
+    "sample_rate_hz",
+    "center_freq_hz",
     "report",
     "error",
 ];
@@ -144,6 +189,19 @@ impl SummaryRow {
             VerdictResult::NoTraining => RowVerdict::NoTraining,
         };
         let warnings = r.warnings.len() + r.bursts.iter().map(|b| b.warnings.len()).sum::<usize>();
+        let codes: std::collections::BTreeSet<String> = r
+            .warnings
+            .iter()
+            .chain(r.bursts.iter().flat_map(|b| b.warnings.iter()))
+            .map(|w| w.code.to_string())
+            .collect();
+        let failed: Vec<&str> = r
+            .verdict
+            .checks
+            .iter()
+            .filter(|c| !c.pass)
+            .map(|c| c.limit.as_str())
+            .collect();
         SummaryRow {
             path: path.to_string(),
             bytes,
@@ -155,9 +213,18 @@ impl SummaryRow {
             mer_db: r.summary.mer_db,
             ser: r.summary.ser.as_ref().map(|e| e.rate),
             ber: r.summary.ber.as_ref().map(|e| e.rate),
+            symbol_errors: r.summary.ser.as_ref().map(|e| e.errors),
+            symbols: r.summary.ser.as_ref().map(|e| e.trials),
+            bit_errors: r.summary.ber.as_ref().map(|e| e.errors),
+            bits: r.summary.ber.as_ref().map(|e| e.trials),
             cfo_abs_max_hz: r.summary.cfo_abs_max_hz,
             longest_error_run: Some(r.summary.longest_error_run),
             warnings: Some(warnings),
+            warning_codes: Some(codes.into_iter().collect::<Vec<_>>().join(";")),
+            failed_limits: Some(failed.join(";")),
+            format: Some(r.input.format.clone()),
+            sample_rate_hz: Some(r.input.sample_rate_hz),
+            center_freq_hz: r.input.center_freq_hz,
             report: Some(report_rel.to_string()),
             error: None,
         }
@@ -176,20 +243,32 @@ impl SummaryRow {
             mer_db: None,
             ser: None,
             ber: None,
+            symbol_errors: None,
+            symbols: None,
+            bit_errors: None,
+            bits: None,
             cfo_abs_max_hz: None,
             longest_error_run: None,
             warnings: None,
+            warning_codes: None,
+            failed_limits: None,
+            format: None,
+            sample_rate_hz: None,
+            center_freq_hz: None,
             report: None,
             error: Some(message.to_string()),
         }
     }
 
     /// The row's fields as CSV text cells (unquoted), in [`CSV_HEADER`] order.
-    pub fn csv_cells(&self) -> [String; 15] {
+    pub fn csv_cells(&self) -> [String; 24] {
         fn f(v: Option<f64>) -> String {
             v.map(|x| x.to_string()).unwrap_or_default()
         }
         fn u(v: Option<usize>) -> String {
+            v.map(|x| x.to_string()).unwrap_or_default()
+        }
+        fn n(v: Option<u64>) -> String {
             v.map(|x| x.to_string()).unwrap_or_default()
         }
         [
@@ -203,9 +282,18 @@ impl SummaryRow {
             f(self.mer_db),
             f(self.ser),
             f(self.ber),
+            n(self.symbol_errors),
+            n(self.symbols),
+            n(self.bit_errors),
+            n(self.bits),
             f(self.cfo_abs_max_hz),
             u(self.longest_error_run),
             u(self.warnings),
+            self.warning_codes.clone().unwrap_or_default(),
+            self.failed_limits.clone().unwrap_or_default(),
+            self.format.clone().unwrap_or_default(),
+            f(self.sample_rate_hz),
+            f(self.center_freq_hz),
             self.report.clone().unwrap_or_default(),
             self.error.clone().unwrap_or_default(),
         ]
@@ -422,7 +510,7 @@ mod tests {
         assert_eq!(parsed[0], CSV_HEADER.map(str::to_string).to_vec());
         assert_eq!(parsed[1][0], "a,b/c \"d\".cf32");
         assert_eq!(parsed[1][3], "unreadable");
-        assert_eq!(parsed[1][14], msg);
+        assert_eq!(parsed[1][CSV_HEADER.len() - 1], msg);
         assert_eq!(parsed[2][0], "plain.cu8");
         assert!(parsed.iter().all(|r| r.len() == CSV_HEADER.len()));
     }

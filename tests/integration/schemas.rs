@@ -282,7 +282,7 @@ fn schema_prints_each_document_kind_and_writes_the_shipped_files() {
     for id in [
         "iqaudit.report/4",
         "iqaudit.info/2",
-        "iqaudit.summary-row/1",
+        "iqaudit.summary-row/2",
         "iqaudit.synth-truth/2",
         "iqaudit.recheck/1",
     ] {

@@ -311,3 +311,87 @@ fn the_profile_can_name_the_unsigned_zero_point_and_analyse_reads_by_it() {
         );
     }
 }
+
+#[test]
+fn pooled_ser_from_the_summary_columns_equals_one_analysis_of_the_concatenated_captures() {
+    // #19: with symbol_errors and symbols per row a fleet SER pools exactly
+    // (Σ errors / Σ symbols); the reference is one analysis of the two
+    // captures joined end to end (synth leaves gaps around every burst, so no
+    // burst straddles the join). 11 dB Es/N0 on 16-QAM makes errors to count.
+    let dir = tempdir();
+    let out = iqaudit()
+        .args(["profile", "new", "--modulation", "16qam"])
+        .output()
+        .unwrap();
+    let mut p: Value = serde_json::from_slice(&out.stdout).unwrap();
+    p["capture"]["format"] = "cf32_le".into();
+    let prof = dir.path().join("p.json");
+    std::fs::write(&prof, serde_json::to_vec(&p).unwrap()).unwrap();
+    let input = dir.path().join("field");
+    std::fs::create_dir(&input).unwrap();
+    let mut joined = Vec::new();
+    for (name, seed) in [("a.cf32", "1"), ("b.cf32", "2")] {
+        let out = iqaudit()
+            .args(["synth", "--profile"])
+            .arg(&prof)
+            .args([
+                "--bursts",
+                "3",
+                "--esn0-db",
+                "11",
+                "--seed",
+                seed,
+                "--no-sigmf",
+            ])
+            .args(["--lead-gap", "2000", "--out"])
+            .arg(input.join(name))
+            .output()
+            .unwrap();
+        assert!(out.status.success(), "{}", stderr_of(&out));
+        joined.extend(std::fs::read(input.join(name)).unwrap());
+    }
+    let out = iqaudit()
+        .arg("batch")
+        .arg(&input)
+        .arg("--profile")
+        .arg(&prof)
+        .arg("--out")
+        .arg(dir.path().join("reports"))
+        .arg("--quiet")
+        .output()
+        .unwrap();
+    assert!(
+        out.status.code().is_some_and(|c| c <= 1),
+        "{}",
+        stderr_of(&out)
+    );
+    let jsonl = std::fs::read_to_string(dir.path().join("reports/summary.jsonl")).unwrap();
+    let (mut e, mut n) = (0u64, 0u64);
+    for line in jsonl.lines() {
+        let r: Value = serde_json::from_str(line).unwrap();
+        e += r["symbol_errors"].as_u64().unwrap();
+        n += r["symbols"].as_u64().unwrap();
+        assert_eq!(r["format"], "cf32_le");
+        assert_eq!(r["sample_rate_hz"].as_f64(), Some(1e6));
+    }
+    let whole = dir.path().join("joined.cf32");
+    std::fs::write(&whole, &joined).unwrap();
+    let (rep, _) = analyse(&whole, &prof, &[]);
+    assert_eq!(rep["bursts"].as_array().unwrap().len(), 6);
+    assert!(e > 0, "no errors to pool");
+    assert_eq!(rep["summary"]["ser"]["errors"].as_u64(), Some(e));
+    assert_eq!(rep["summary"]["ser"]["trials"].as_u64(), Some(n));
+    // The CSV carries the same columns, and a failed limit is named.
+    let csv = std::fs::read_to_string(dir.path().join("reports/summary.csv")).unwrap();
+    let header: Vec<&str> = csv.lines().next().unwrap().split(',').collect();
+    for col in [
+        "symbol_errors",
+        "symbols",
+        "warning_codes",
+        "failed_limits",
+        "center_freq_hz",
+    ] {
+        assert!(header.contains(&col), "{col}: {header:?}");
+    }
+    assert!(jsonl.contains("limits.ser_max"), "{jsonl}");
+}
