@@ -60,6 +60,25 @@ pub fn naive_correlate_centred(x: &[Cf32], h: &[f32]) -> Vec<Cf32> {
         .collect()
 }
 
+/// `n` unit-power QPSK symbols from a 64-bit LCG (Knuth's MMIX constants): a
+/// rich training without a generator crate.
+pub fn lcg_qpsk(n: usize, seed: u64) -> Vec<Cf32> {
+    let mut s = seed;
+    (0..n)
+        .map(|_| {
+            s = s
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            let b = (s >> 33) as u32;
+            let h = std::f32::consts::FRAC_1_SQRT_2;
+            Cf32::new(
+                if b & 1 == 0 { h } else { -h },
+                if b & 2 == 0 { h } else { -h },
+            )
+        })
+        .collect()
+}
+
 /// `n` complex values uniform in [−1, 1)², from a seeded ChaCha8 generator.
 pub fn random_symbols(n: usize, seed: u64) -> Vec<Cf32> {
     let mut rng = ChaCha8Rng::seed_from_u64(seed);

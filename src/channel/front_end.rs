@@ -74,20 +74,7 @@ pub fn fit_front_end(
     max_condition: f64,
 ) -> Result<FrontEndFit, ChannelError> {
     let n = training.len();
-    if offset.checked_add(n).map_or(true, |end| end > y.len()) {
-        return Err(ChannelError::TrainingOutOfRange {
-            offset,
-            training_len: n,
-            samples: y.len(),
-        });
-    }
-    let yt = &y[offset..offset + n];
-    if let Some(i) = yt
-        .iter()
-        .position(|v| !(v.re.is_finite() && v.im.is_finite()))
-    {
-        return Err(ChannelError::NonFinite { index: offset + i });
-    }
+    let yt = super::ls::training_window(y, n, offset)?;
     let l = pre + post + 1;
     let k = l + usize::from(dc) + if iq { l } else { 0 };
     let (t0, t1) = (post, n.saturating_sub(pre));
@@ -201,23 +188,7 @@ pub fn beta_from_imbalance(gain_db: f64, phase_deg: f64) -> Cf64 {
 mod tests {
     use super::*;
 
-    fn training(n: usize, seed: u64) -> Vec<Cf32> {
-        // QPSK from a 64-bit LCG (Knuth's MMIX constants); only needs to be rich.
-        let mut s = seed;
-        (0..n)
-            .map(|_| {
-                s = s
-                    .wrapping_mul(6364136223846793005)
-                    .wrapping_add(1442695040888963407);
-                let b = (s >> 33) as u32;
-                let a = std::f32::consts::FRAC_1_SQRT_2;
-                Cf32::new(
-                    if b & 1 == 0 { a } else { -a },
-                    if b & 2 == 0 { a } else { -a },
-                )
-            })
-            .collect()
-    }
+    use crate::testutil::lcg_qpsk as training;
 
     /// Direct evaluation of the receiver model of the module doc at symbol rate.
     fn received(

@@ -131,7 +131,11 @@ pub fn fit_channel(
 
 /// The received samples under the training, `y[offset .. offset + n]`, checked to
 /// lie inside `y` and to be finite (both fits take their input through this).
-fn training_window(y: &[Cf32], n: usize, offset: usize) -> Result<&[Cf32], ChannelError> {
+pub(super) fn training_window(
+    y: &[Cf32],
+    n: usize,
+    offset: usize,
+) -> Result<&[Cf32], ChannelError> {
     if offset.checked_add(n).map_or(true, |end| end > y.len()) {
         return Err(ChannelError::TrainingOutOfRange {
             offset,

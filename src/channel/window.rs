@@ -256,22 +256,7 @@ mod tests {
     use super::*;
     use crate::channel::{fit_channel, ChannelFitConfig, SpanChoice};
 
-    fn lcg_qpsk(n: usize, seed: u64) -> Vec<Cf32> {
-        let mut s = seed;
-        (0..n)
-            .map(|_| {
-                s = s
-                    .wrapping_mul(6364136223846793005)
-                    .wrapping_add(1442695040888963407);
-                let b = (s >> 33) as u32;
-                let h = std::f32::consts::FRAC_1_SQRT_2;
-                Cf32::new(
-                    if b & 1 == 0 { h } else { -h },
-                    if b & 2 == 0 { h } else { -h },
-                )
-            })
-            .collect()
-    }
+    use crate::testutil::lcg_qpsk;
 
     fn received(x: &[Cf32], h: &[Cf64], pre: usize, noise: f64, seed: u64) -> Vec<Cf32> {
         let mut s = seed;
