@@ -77,9 +77,9 @@ pub(super) fn extract_frame<S: SampleSource + ?Sized>(
         .iter()
         .enumerate()
         .filter(|(_, i)| avail.contains(i))
-        .map(|(p, &i)| (p, i))
+        .map(|(p, &i)| (plan.payload_number(p), i))
         .collect();
-    let truncated = present.len() < all_payload.len();
+    let truncated = present.len() < all_payload.len() || plan.payload_cut();
     let known = match (&plan.known_before, &plan.known_after) {
         (Some(b), Some(a)) => {
             let mut k = vec![Cf32::new(0.0, 0.0); offset + l + a.len() + plan.margin];
@@ -323,7 +323,7 @@ pub(super) fn analyse_burst<S: SampleSource + ?Sized>(
             format!(
                 "the capture cuts this burst: {} of {} payload symbols present",
                 frame.present.len(),
-                plan.before + plan.after
+                plan.before_nominal + plan.after_nominal
             ),
         ));
     }

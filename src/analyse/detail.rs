@@ -126,7 +126,7 @@ pub(super) fn trace<S: SampleSource + ?Sized>(
     let eye_equalised = numbers
         .iter()
         .zip(z)
-        .filter(|(&p, _)| p >= plan.before)
+        .filter(|(&p, _)| p >= plan.before_nominal)
         .take(EYE_SYMBOLS)
         .map(|(_, s)| [f64::from(s.re), f64::from(s.im)])
         .collect();

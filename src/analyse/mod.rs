@@ -77,7 +77,7 @@ use crate::{Cf32, Error};
 pub use annotate::write_burst_annotations;
 use burst::analyse_burst;
 pub use plan::open_capture;
-use plan::{synchroniser, usage, Plan};
+use plan::{usage, Plan, SyncPlan};
 use rayon::prelude::*;
 use std::path::Path;
 use traced::TraceSelection;
@@ -166,7 +166,11 @@ fn analyse_capture_unnamed(
     profile.validate()?;
     let capture = open_capture(path, profile, opts)?;
     let plan = Plan::new(profile, &capture)?;
-    let sync = synchroniser(profile, &plan)?;
+    // Checked, not built: the reference and the bank are `training × sps`
+    // samples and more, so they are built only once the capture is known to
+    // be long enough to hold the training (rule 2 of #16).
+    let sync_plan = SyncPlan::new(profile, &plan)?;
+    let threshold = sync_plan.dims.threshold;
     let traced = opts.traced_bursts.unwrap_or(DEFAULT_TRACED_BURSTS);
     if traced > MAX_TRACED_BURSTS {
         return Err(usage(format!(
@@ -195,13 +199,7 @@ fn analyse_capture_unnamed(
         ));
     }
     metadata_warnings(&capture, profile, opts, &mut warnings);
-    let run = Run {
-        plan: &plan,
-        profile,
-        sync: &sync,
-        capture: &capture,
-    };
-    let bursts = bursts_or_too_short(&run, traced, &mut warnings)?;
+    let bursts = bursts_or_too_short(sync_plan, &plan, profile, &capture, traced, &mut warnings)?;
     if bursts.is_empty()
         && !warnings
             .iter()
@@ -210,8 +208,7 @@ fn analyse_capture_unnamed(
         warnings.push(Warning::new(
             WarningCode::NoTrainingFound,
             format!(
-                "no training block above the threshold {:.3}; check the profile's training and sample rate, or lower search.threshold",
-                sync.threshold()
+                "no training block above the threshold {threshold:.3}; check the profile's training and sample rate, or lower search.threshold"
             ),
         ));
     }
@@ -257,7 +254,7 @@ fn analyse_capture_unnamed(
         summary,
         verdict,
         warnings,
-        provenance: provenance(profile, opts, traced, sync.threshold())?,
+        provenance: provenance(profile, opts, traced, threshold)?,
     })
 }
 
@@ -280,22 +277,34 @@ fn provenance(
 }
 
 /// The capture's bursts, or none with a warning when it is shorter than the
-/// training block.
+/// training block. The length is compared before the synchroniser is built:
+/// its reference and bank are sized by the profile (`training × sps` samples,
+/// times the hypotheses), and a maximal training on a tiny capture built
+/// 1.8 GB of them only to find the capture too short.
 fn bursts_or_too_short(
-    run: &Run<'_>,
+    sync_plan: SyncPlan,
+    plan: &Plan,
+    profile: &ResolvedProfile,
+    capture: &Capture,
     traced: usize,
     warnings: &mut Vec<Warning>,
 ) -> Result<Vec<BurstReport>, Error> {
-    let (capture, sync) = (run.capture, run.sync);
-    if run.plan.analysis_len(capture) >= sync.min_capture_len() {
+    let needed = sync_plan.dims.min_capture_len;
+    if plan.analysis_len(capture) >= needed {
+        let sync = sync_plan.build(plan)?;
+        let run = Run {
+            plan,
+            profile,
+            sync: &sync,
+            capture,
+        };
         return run.all_bursts(traced);
     }
     warnings.push(Warning::new(
         WarningCode::NoTrainingFound,
         format!(
-            "the capture holds {} samples, fewer than the {} the training block needs",
+            "the capture holds {} samples, fewer than the {needed} the training block needs",
             capture.len(),
-            sync.min_capture_len()
         ),
     ));
     Ok(Vec::new())

@@ -15,7 +15,7 @@ use crate::equalise::BurstConfig;
 use crate::profile::ResolvedProfile;
 use crate::profile::{Delay, EqualiserKind, TapCount, Tracking};
 use crate::signal::{rrc_taps, Constellation};
-use crate::sync::{SyncConfig, Synchroniser};
+use crate::sync::{SyncConfig, SyncDimensions, Synchroniser};
 use crate::{Cf32, Error};
 use std::path::Path;
 
@@ -26,9 +26,15 @@ pub(super) struct Plan {
     /// Known payload before / after the training (both or neither).
     pub(super) known_before: Option<Vec<Cf32>>,
     pub(super) known_after: Option<Vec<Cf32>>,
-    /// Payload symbols before / after the training.
+    /// Payload symbols before / after the training that a burst in this
+    /// capture can hold: the profile's counts, cut to the capture's length
+    /// ([`payload_reach`]), so no per-burst buffer is sized by the profile
+    /// alone. Equal to the profile's counts whenever the payload fits the capture.
     pub(super) before: usize,
     pub(super) after: usize,
+    /// The profile's payload counts before / after the training (a whole burst).
+    pub(super) before_nominal: usize,
+    pub(super) after_nominal: usize,
     /// The payload constellation (and slicer).
     pub(super) constellation: Constellation,
     /// Channel-fit and equaliser settings shared by every burst.
@@ -217,17 +223,35 @@ impl Plan {
             super::rate::resampler_for(profile, capture, input_rate_hz)?;
         let sps = profile.samples_per_symbol;
         let training = profile.training_symbols()?;
-        let payload = profile.payload_symbols()?;
-        let (known_before, known_after) = match payload {
-            Some(p) => (Some(p.before), Some(p.after)),
-            None => (None, None),
-        };
         let burst_cfg = burst_config(profile);
         let taps_span = match burst_cfg.channel.span {
             TapSpan::Fixed { pre, post } => pre + post + 1,
             TapSpan::Auto {
                 max_pre, max_post, ..
             } => max_pre + max_post + 1,
+        };
+        let margin = burst_cfg.ff_taps + burst_cfg.fb_taps + taps_span + 4;
+        let analysis_len = resampler
+            .as_ref()
+            .map_or(capture.len(), |r| r.output_len(capture.len()));
+        let reach = payload_reach(analysis_len, sps, margin);
+        let (before_nominal, after_nominal) = (
+            profile.payload.before_symbols,
+            profile.payload.after_symbols,
+        );
+        let (before, after) = (before_nominal.min(reach), after_nominal.min(reach));
+        let payload = profile.payload_symbols()?;
+        let (known_before, known_after) = match payload {
+            // The symbols next to the training: the tail of the part before
+            // it, the head of the part after it.
+            Some(p) => {
+                let mut b = p.before;
+                b.drain(..b.len().saturating_sub(before));
+                let mut a = p.after;
+                a.truncate(after);
+                (Some(b), Some(a))
+            }
+            None => (None, None),
         };
         let window = WindowCost::new(
             &training,
@@ -240,10 +264,12 @@ impl Plan {
             training,
             known_before,
             known_after,
-            before: profile.payload.before_symbols,
-            after: profile.payload.after_symbols,
+            before,
+            after,
+            before_nominal,
+            after_nominal,
             constellation: Constellation::new(profile.payload.modulation),
-            margin: burst_cfg.ff_taps + burst_cfg.fb_taps + taps_span + 4,
+            margin,
             burst_cfg,
             sps,
             sample_rate_hz,
@@ -261,13 +287,49 @@ impl Plan {
         })
     }
 
+    /// Symbols of a frame as a burst in this capture can hold them.
     pub(super) fn frame_symbols(&self) -> usize {
         self.before + self.training.len() + self.after
     }
+
+    /// Symbols of a whole frame, as the profile gives it.
+    pub(super) fn frame_symbols_nominal(&self) -> usize {
+        self.before_nominal + self.training.len() + self.after_nominal
+    }
+
+    /// The payload number (the profile's count: the symbols before the
+    /// training first) of the `p`-th payload symbol the plan holds.
+    pub(super) fn payload_number(&self, p: usize) -> usize {
+        if p < self.before {
+            p + (self.before_nominal - self.before)
+        } else {
+            p - self.before + self.before_nominal
+        }
+    }
+
+    /// The profile's payload is longer than this capture can hold: every
+    /// burst of it is cut.
+    pub(super) fn payload_cut(&self) -> bool {
+        self.before < self.before_nominal || self.after < self.after_nominal
+    }
 }
 
-/// The synchroniser for a plan, with the threshold to use.
-pub(super) fn synchroniser(profile: &ResolvedProfile, plan: &Plan) -> Result<Synchroniser, Error> {
+/// Payload symbols on either side of the training that can lie inside a
+/// capture (analysis stream) of `len` samples at `sps` samples per symbol:
+/// `len / sps` and a slack of 1/64 of it (a symbol clock up to 1.5 % fast,
+/// far beyond any the clock tracking accepts), the frame margin and two. A
+/// profile's payload longer than that is cut to it, which changes nothing a
+/// burst can show (those symbols lie outside the capture) and keeps every
+/// per-burst buffer (frame, known symbols, equaliser outputs) bounded by the
+/// capture, not the profile: a 2^23-symbol payload at 4 samples per symbol took
+/// 2.3 GB on a 15 KB capture before.
+pub(super) fn payload_reach(len: usize, sps: usize, margin: usize) -> usize {
+    let symbols = len / sps.max(1);
+    symbols + symbols / 64 + margin + 2
+}
+
+/// The synchroniser's pulse and settings for a plan.
+fn sync_parts(profile: &ResolvedProfile, plan: &Plan) -> (Vec<f32>, SyncConfig) {
     let pulse = rrc_taps(profile.pulse.rolloff, profile.pulse.span_symbols, plan.sps);
     let cfg = SyncConfig {
         sps: plan.sps,
@@ -277,8 +339,33 @@ pub(super) fn synchroniser(profile: &ResolvedProfile, plan: &Plan) -> Result<Syn
             .max_cfo_hz_at(plan.sample_rate_hz, plan.sps)
             .min(0.25 * plan.symbol_rate_hz),
         threshold: profile.search.threshold,
-        min_spacing_samples: Some((plan.frame_symbols() * plan.sps).max(1)),
+        min_spacing_samples: Some((plan.frame_symbols_nominal() * plan.sps).max(1)),
         cfo_segments: 4,
     };
-    Ok(Synchroniser::new(&plan.training, &pulse, cfg)?)
+    (pulse, cfg)
+}
+
+/// The synchroniser for a plan, checked but not yet built: its sizes are
+/// known ([`SyncDimensions`]) before the reference (`training × sps`
+/// samples) and the hypothesis bank are allocated, so a capture too short for
+/// the training never pays for them.
+pub(super) struct SyncPlan {
+    pulse: Vec<f32>,
+    cfg: SyncConfig,
+    /// Sizes, the threshold and the shortest capture that can be searched.
+    pub(super) dims: SyncDimensions,
+}
+
+impl SyncPlan {
+    /// Check the synchroniser's settings for a plan (no waveform is built).
+    pub(super) fn new(profile: &ResolvedProfile, plan: &Plan) -> Result<SyncPlan, Error> {
+        let (pulse, cfg) = sync_parts(profile, plan);
+        let dims = Synchroniser::dimensions(plan.training.len(), pulse.len(), &cfg)?;
+        Ok(SyncPlan { pulse, cfg, dims })
+    }
+
+    /// Build the synchroniser (reference, bank, FFT plans).
+    pub(super) fn build(self, plan: &Plan) -> Result<Synchroniser, Error> {
+        Ok(Synchroniser::new(&plan.training, &self.pulse, self.cfg)?)
+    }
 }

@@ -403,6 +403,25 @@ struct Worker {
     bufs: correlate::ScanBuffers,
 }
 
+/// The synchroniser's sizes and derived settings, known before it is built
+/// ([`Synchroniser::dimensions`]).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SyncDimensions {
+    /// Samples in the search reference (the trimmed shaped training).
+    pub reference_len: usize,
+    /// Index in the reference of the first training symbol's instant.
+    pub head: usize,
+    /// Carrier-offset hypotheses searched (odd, ≥ 1).
+    pub hypotheses: usize,
+    /// Spacing of the hypotheses, cycles/sample.
+    pub hypothesis_step: f64,
+    /// The threshold the synchroniser will use (given or derived).
+    pub threshold: f64,
+    /// Fewest samples a capture must hold to be searched, `(N−1)·sps + 1`
+    /// (as [`Synchroniser::min_capture_len`]).
+    pub min_capture_len: usize,
+}
+
 /// The synchroniser: built once per training/pulse/config, shared across threads.
 #[derive(Debug)]
 pub struct Synchroniser {
@@ -422,16 +441,21 @@ pub struct Synchroniser {
 }
 
 impl Synchroniser {
-    /// Build the search reference, the hypothesis bank and the FFT plans.
+    /// The synchroniser's sizes for a training of `training_len` symbols and a
+    /// pulse of `pulse_len` taps, with every setting checked — without building
+    /// anything: no waveform, bank or FFT plan is allocated. [`Synchroniser::new`]
+    /// makes the same checks (this function) first; a caller that knows the
+    /// capture's length compares it with [`SyncDimensions::min_capture_len`]
+    /// before paying for the build (the reference alone is
+    /// `training_len × sps` samples).
     ///
-    /// Errors ([`SyncError::InvalidConfig`]): empty training, empty or even-length
-    /// pulse, `sps = 0`, non-positive sample rate, negative or too large `max_cfo_hz`,
-    /// threshold outside (0, 1], zero spacing or segments.
-    pub fn new(
-        training: &[Cf32],
-        pulse: &[f32],
-        cfg: SyncConfig,
-    ) -> Result<Synchroniser, SyncError> {
+    /// Errors ([`SyncError::InvalidConfig`]): as [`Synchroniser::new`], except the
+    /// training's energy, which needs its symbols.
+    pub fn dimensions(
+        training_len: usize,
+        pulse_len: usize,
+        cfg: &SyncConfig,
+    ) -> Result<SyncDimensions, SyncError> {
         let bad = |key: &'static str, expected: &str, found: String| {
             Err(SyncError::InvalidConfig {
                 key,
@@ -439,14 +463,14 @@ impl Synchroniser {
                 found,
             })
         };
-        if training.is_empty() {
+        if training_len == 0 {
             return bad("training", "at least one symbol", "0 symbols".into());
         }
-        if pulse.is_empty() || pulse.len() % 2 == 0 {
+        if pulse_len == 0 || pulse_len % 2 == 0 {
             return bad(
                 "pulse",
                 "an odd number of taps (centred pulse)",
-                format!("{} taps", pulse.len()),
+                format!("{pulse_len} taps"),
             );
         }
         if cfg.sps == 0 {
@@ -479,21 +503,21 @@ impl Synchroniser {
             return bad("cfo_segments", "an integer ≥ 1", "0".into());
         }
         let sps = cfg.sps;
-        let n = training.len();
-        let d = (pulse.len() - 1) / 2;
+        let d = (pulse_len - 1) / 2;
         let half = (sps / 2).min(d);
-        let shaped = crate::signal::rrc::shape(training, pulse, sps);
-        let start = d - half;
-        let ref_len = (n - 1) * sps + 2 * half + 1;
-        let reference: Vec<Cf32> = shaped[start..start + ref_len].to_vec();
-        let ref_energy: f64 = reference.iter().map(|v| f64::from(v.norm_sqr())).sum();
-        if !(ref_energy > 0.0 && ref_energy.is_finite()) {
-            return bad(
-                "training",
-                "symbols with non-zero finite energy",
-                format!("energy {ref_energy}"),
-            );
-        }
+        let too_long = || {
+            bad(
+                "max_cfo_hz",
+                "at most 4097 frequency hypotheses for this training, and at most 2^24 samples in the hypothesis bank (hypotheses × reference length)",
+                "a reference longer than the bank".to_string(),
+            )
+        };
+        let Some(ref_len) = (training_len - 1)
+            .checked_mul(sps)
+            .and_then(|v| v.checked_add(2 * half + 1))
+        else {
+            return too_long();
+        };
         let f_max = cfg.max_cfo_hz / cfg.sample_rate_hz;
         let delta = 0.5 / ref_len as f64;
         let k = ((f_max / delta - 0.5).ceil()).max(0.0) as i64;
@@ -506,6 +530,55 @@ impl Synchroniser {
                 format!("{}", 2 * k + 1),
             );
         }
+        let hypotheses = 2 * k as usize + 1;
+        let threshold = cfg.threshold.unwrap_or_else(|| {
+            threshold_for_false_alarms(
+                training_len as f64,
+                hypotheses,
+                DEFAULT_FALSE_ALARMS_PER_1E8_SAMPLES / 1e8,
+            )
+        });
+        Ok(SyncDimensions {
+            reference_len: ref_len,
+            head: half,
+            hypotheses,
+            hypothesis_step: delta,
+            threshold,
+            min_capture_len: (training_len - 1) * sps + 1,
+        })
+    }
+
+    /// Build the search reference, the hypothesis bank and the FFT plans.
+    ///
+    /// Errors ([`SyncError::InvalidConfig`]): empty training, empty or even-length
+    /// pulse, `sps = 0`, non-positive sample rate, negative or too large `max_cfo_hz`,
+    /// threshold outside (0, 1], zero spacing or segments (all checked by
+    /// [`Synchroniser::dimensions`] before anything is allocated), a training
+    /// without energy.
+    pub fn new(
+        training: &[Cf32],
+        pulse: &[f32],
+        cfg: SyncConfig,
+    ) -> Result<Synchroniser, SyncError> {
+        let dims = Synchroniser::dimensions(training.len(), pulse.len(), &cfg)?;
+        let sps = cfg.sps;
+        let d = (pulse.len() - 1) / 2;
+        let half = dims.head;
+        let shaped = crate::signal::rrc::shape(training, pulse, sps);
+        let start = d - half;
+        let ref_len = dims.reference_len;
+        let reference: Vec<Cf32> = shaped[start..start + ref_len].to_vec();
+        drop(shaped);
+        let ref_energy: f64 = reference.iter().map(|v| f64::from(v.norm_sqr())).sum();
+        if !(ref_energy > 0.0 && ref_energy.is_finite()) {
+            return Err(SyncError::InvalidConfig {
+                key: "training",
+                expected: "symbols with non-zero finite energy".to_string(),
+                found: format!("energy {ref_energy}"),
+            });
+        }
+        let delta = dims.hypothesis_step;
+        let k = (dims.hypotheses / 2) as i64;
         let hyps: Vec<f64> = (-k..=k).map(|h| h as f64 * delta).collect();
         let bank: Vec<Vec<Cf32>> = hyps
             .iter()
@@ -518,13 +591,8 @@ impl Synchroniser {
             })
             .collect();
         let corr = OverlapSave::new(&bank, OverlapSave::default_fft_len(ref_len));
-        let threshold = cfg.threshold.unwrap_or_else(|| {
-            threshold_for_false_alarms(
-                n as f64,
-                hyps.len(),
-                DEFAULT_FALSE_ALARMS_PER_1E8_SAMPLES / 1e8,
-            )
-        });
+        drop(bank);
+        let threshold = dims.threshold;
         let min_spacing = cfg.min_spacing_samples.unwrap_or(ref_len);
         Ok(Synchroniser {
             cfg,

@@ -1084,3 +1084,25 @@ fn slope_extraction_is_the_central_difference_of_the_slow_twin_with_and_without_
         );
     }
 }
+
+/// The sizes known before the build are the built synchroniser's (the
+/// analysis compares the capture with them before building it, #16 rule 2).
+/// Source: the definitions in this module's doc (reference `(N−1)·sps + 2·⌊sps/2⌋ + 1`,
+/// hypothesis spacing `0.5/L`).
+#[test]
+fn the_dimensions_known_before_the_build_are_those_of_the_built_synchroniser() {
+    for max_cfo in [0.0, 700.0, MAX_CFO_HZ] {
+        let cfg = config(max_cfo);
+        let dims = Synchroniser::dimensions(TRAIN_LEN, pulse().len(), &cfg).unwrap();
+        let s = Synchroniser::new(&training(7), &pulse(), cfg).unwrap();
+        assert_eq!(dims.reference_len, s.reference().len());
+        assert_eq!(dims.head, s.reference_head());
+        assert_eq!(dims.hypotheses, s.hypotheses_hz().len());
+        assert_eq!(dims.threshold.to_bits(), s.threshold().to_bits());
+        assert_eq!(dims.min_capture_len, s.min_capture_len());
+    }
+    // A training whose reference alone would be 2^22 samples is sized, not built.
+    let dims = Synchroniser::dimensions(1 << 20, pulse().len(), &config(0.0)).unwrap();
+    assert_eq!(dims.min_capture_len, ((1 << 20) - 1) * SPS + 1);
+    assert_eq!(dims.hypotheses, 1);
+}

@@ -2381,3 +2381,117 @@ fn rule_1_non_utf8_folder_report_and_environment_never_panic() {
 fn stderr_text(out: &std::process::Output) -> String {
     String::from_utf8_lossy(&out.stderr).into_owned()
 }
+
+/// Address space the profile-sized cases run under, bytes (`ulimit -v`, in
+/// KiB there): each needed more than this before its allocation waited for
+/// the capture's length (1.7, 3.5 and 2.3 GB of resident memory, measured
+/// with `/usr/bin/time -v`, docs/robustness.md). A normal analysis of the
+/// same capture fits in well under a quarter of it.
+const PROFILE_SIZED_BOUND_KIB: u64 = 1 << 20;
+
+/// Run iqaudit under `ulimit -v` (POSIX `sh`; the limit is inherited by the
+/// exec'd binary), with two worker threads so the bound does not depend on
+/// the machine's core count.
+#[cfg(unix)]
+fn iqaudit_bounded(args: &[String]) -> std::process::Output {
+    let bin = assert_cmd::cargo::cargo_bin("iqaudit");
+    std::process::Command::new("sh")
+        .arg("-c")
+        .arg(format!(
+            "ulimit -v {PROFILE_SIZED_BOUND_KIB} && exec \"$0\" \"$@\""
+        ))
+        .arg(bin)
+        .args(args)
+        .env("RAYON_NUM_THREADS", "2")
+        .output()
+        .unwrap()
+}
+
+/// Issue 16, rule 2: memory bounded by the input, not the profile. Every
+/// allocation sized by profile × samples per symbol (the synchroniser's
+/// reference and bank, the per-burst frame and its buffers) waits until it is
+/// checked against the capture it will be applied to. Each case held more
+/// resident memory than the 1 GiB bound before; the test checks the outcome
+/// the product contract gives (PRODUCT.md exit codes) and the message, and
+/// the bound only makes a return of the old allocation fail here.
+#[cfg(unix)]
+#[test]
+fn rule_2_allocations_sized_by_the_profile_wait_for_the_capture_they_apply_to() {
+    let dir = tempdir();
+    let d = dir.path();
+    let (c, _) = capture(d); // 3798 samples, 15 KB
+    let one_hypothesis = |sps: u64| {
+        move |v: &mut serde_json::Value| {
+            v["samples_per_symbol"] = serde_json::json!(sps);
+            v["training"]["sequence"] =
+                serde_json::json!({"kind": "prbs", "pattern": "prbs23", "length": 1 << 20});
+            v["search"]["max_cfo_hz"] = serde_json::json!(0.0);
+        }
+    };
+    let mut failures = Vec::new();
+    let mut check = |name: &str, args: Vec<String>, code: i32, message: &str| {
+        let out = iqaudit_bounded(&args);
+        let text = format!(
+            "{}{}",
+            String::from_utf8_lossy(&out.stdout),
+            String::from_utf8_lossy(&out.stderr)
+        );
+        if out.status.code() != Some(code) || !text.contains(message) || text.contains("panicked") {
+            failures.push(format!(
+                "{name}: exit {:?} (expected {code}, '{message}')\n{text}",
+                out.status.code()
+            ));
+        }
+    };
+    // 1. A 2^20-symbol training at 4 samples per symbol, one CFO hypothesis
+    //    (its reference: 4 M samples, the bank and FFT plans more): the capture
+    //    is too short for it, found before any of it is built. Exit 3, no
+    //    training (PRODUCT.md).
+    let p4 = profile_with(d, "t4.json", one_hypothesis(4));
+    let r4 = d.join("r4.json");
+    check(
+        "2^20-symbol training × 4 samples per symbol",
+        vec![
+            "analyse".into(),
+            s(&c),
+            "--profile".into(),
+            s(&p4),
+            "--report".into(),
+            s(&r4),
+        ],
+        3,
+        "fewer than the 4194301 the training block needs",
+    );
+    // 2. The same at 15 samples per symbol (15.7 M samples of reference, the
+    //    longest one CFO hypothesis allows under the 2^24-sample bank cap).
+    let p15 = profile_with(d, "t15.json", one_hypothesis(15));
+    check(
+        "2^20-symbol training × 15 samples per symbol",
+        vec!["analyse".into(), s(&c), "--profile".into(), s(&p15)],
+        3,
+        "fewer than the 15728626 the training block needs",
+    );
+    // 3. The profile inside a report gets the same treatment from `recheck`
+    //    (the report of case 1 re-derives the same no-training figures).
+    check(
+        "recheck of a report whose profile holds a 2^20-symbol training",
+        vec!["recheck".into(), s(&r4)],
+        0,
+        "",
+    );
+    // 4. A payload of 2^23 symbols at 4 samples per symbol after a 64-symbol
+    //    training the capture does hold: a burst is found, and its frame is
+    //    cut to what the capture can hold instead of 2^25 samples of buffers.
+    //    The figures are those of the 880 payload symbols present (exit 1: the
+    //    example profile's limits fail on them).
+    let pay = profile_with(d, "pay.json", |v| {
+        v["payload"]["length_symbols"] = serde_json::json!((1 << 23) - 64);
+    });
+    check(
+        "2^23-symbol payload × 4 samples per symbol",
+        vec!["analyse".into(), s(&c), "--profile".into(), s(&pay)],
+        1,
+        "the capture cuts this burst: 880 of 8388544 payload symbols present",
+    );
+    assert!(failures.is_empty(), "{}", failures.join("\n\n"));
+}
