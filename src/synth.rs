@@ -112,6 +112,23 @@ pub enum SynthError {
         /// What was given.
         found: String,
     },
+    /// The capture would hold more than [`crate::limits::MAX_SYNTH_SAMPLES`]
+    /// samples (the product of the options, not each one, is capped).
+    #[error("--bursts {bursts} × ({frame} samples a frame + gap up to {gap_max}) + --lead-gap {lead_gap} = {total} samples: at most {max} samples per capture")]
+    TooLarge {
+        /// Bursts asked for.
+        bursts: usize,
+        /// Samples of one burst (frame, pulse tails, channel spread).
+        frame: u64,
+        /// The largest gap after a burst, samples.
+        gap_max: usize,
+        /// Samples before the first burst.
+        lead_gap: usize,
+        /// The capture's length, samples (saturating).
+        total: u64,
+        /// The cap.
+        max: u64,
+    },
     /// Writing an output file failed.
     #[error("cannot write {path}: {message}")]
     Write {
@@ -424,8 +441,49 @@ struct BurstPlan {
     labels_after: Option<Vec<u16>>,
 }
 
+/// Ranges [`SynthSpec::validate`] allows: the physically meaningful ones
+/// (outside them the generator writes infinite or NaN samples, or a capture
+/// that is all noise or all clipping). This project's choice, documented in
+/// docs/robustness.md (rule 5), not a standard.
+pub mod ranges {
+    /// `level_dbfs`, dBFS.
+    pub const LEVEL_DBFS: (f64, f64) = (-200.0, 40.0);
+    /// `esn0_db`, dB (−60 dB already makes a noise-only capture).
+    pub const ESN0_DB: (f64, f64) = (-100.0, 200.0);
+    /// `iq_gain_db`, dB.
+    pub const IQ_GAIN_DB: (f64, f64) = (-40.0, 40.0);
+    /// `|iq_phase_deg|` below this, degrees (at 90° Q is made of I alone).
+    pub const IQ_PHASE_DEG_ABS: f64 = 90.0;
+    /// `|phase_rad|` in degrees.
+    pub const PHASE_DEG_ABS: f64 = 360.0;
+    /// Each `dc_offset` component, full-scale units.
+    pub const DC_ABS: f64 = 1.0;
+    /// The largest `|tap|` of a channel.
+    pub const TAP_MAGNITUDE: (f64, f64) = (1e-6, 1e6);
+}
+
 impl SynthSpec {
-    fn validate(&self) -> Result<f64, SynthError> {
+    /// Check every field before anything is generated, and return the sample
+    /// rate the capture will have. [`run`] calls it first; `iqaudit synth`
+    /// calls it before it checks its output names, so the command line and the
+    /// library refuse the same specs with the same messages (options named in
+    /// their CLI spelling).
+    ///
+    /// Checked: the profile's invariants ([`ResolvedProfile::validate`]); the
+    /// sample rate (given or the profile's) in [1, 10^12] Hz; at least one
+    /// burst; every number finite; `|cfo_hz|` and a channel's `|drift_hz|`
+    /// below fs/2; `|sco_ppm|` ≤ [`MAX_SCO_PPM`]; a fixed timing fraction in
+    /// [−0.5, 0.5); gaps MIN ≤ MAX; the [`ranges`]; a channel with a main tap
+    /// inside it; and the size of the capture, `lead_gap + bursts × (frame +
+    /// largest gap)` ≤ [`crate::limits::MAX_SYNTH_SAMPLES`] samples (each
+    /// factor may be within its own bounds while the product is not).
+    ///
+    /// # Errors
+    /// [`SynthError::Profile`], [`SynthError::InvalidOption`] naming the option,
+    /// or [`SynthError::TooLarge`].
+    pub fn validate(&self) -> Result<f64, SynthError> {
+        use crate::limits::show_number as show;
+        self.profile.validate()?;
         let fs = self
             .sample_rate_hz
             .or(self.profile.capture.sample_rate_hz)
@@ -436,52 +494,84 @@ impl SynthSpec {
                     "nothing",
                 )
             })?;
-        if !(fs.is_finite() && fs > 0.0) {
-            return Err(bad("--sample-rate", "a finite rate > 0 Hz", fs));
-        }
+        crate::limits::check_rate_hz(fs).map_err(|e| bad("--sample-rate", e, show(fs)))?;
         if self.bursts == 0 {
             return Err(bad("--bursts", "at least 1", 0));
         }
         let finite = [
             ("--cfo-hz", self.cfo_hz),
-            ("--phase-rad", self.phase_rad),
+            ("--phase-deg", self.phase_rad),
             ("--dc", self.dc_offset[0]),
             ("--dc", self.dc_offset[1]),
             ("--iq-gain-db", self.iq_gain_db),
             ("--iq-phase-deg", self.iq_phase_deg),
             ("--level-dbfs", self.level_dbfs),
             ("--sco-ppm", self.sco_ppm),
+            ("--esn0-db", self.esn0_db.unwrap_or(0.0)),
         ];
         for (opt, v) in finite {
             if !v.is_finite() {
-                return Err(bad(opt, "a finite number", v));
+                return Err(bad(opt, "a finite number", show(v)));
             }
+        }
+        let within = |opt: &str, v: f64, (lo, hi): (f64, f64), unit: &str| {
+            if (lo..=hi).contains(&v) {
+                Ok(())
+            } else {
+                Err(bad(opt, format!("a number in [{lo}, {hi}]{unit}"), show(v)))
+            }
+        };
+        within("--level-dbfs", self.level_dbfs, ranges::LEVEL_DBFS, " dBFS")?;
+        if let Some(e) = self.esn0_db {
+            within("--esn0-db", e, ranges::ESN0_DB, " dB")?;
+        }
+        within("--iq-gain-db", self.iq_gain_db, ranges::IQ_GAIN_DB, " dB")?;
+        let iq = ranges::IQ_PHASE_DEG_ABS;
+        if self.iq_phase_deg.abs() >= iq {
+            return Err(bad(
+                "--iq-phase-deg",
+                format!("a number in (-{iq}, {iq}) degrees"),
+                show(self.iq_phase_deg),
+            ));
+        }
+        // In degrees, as the option is given (a round trip through radians
+        // may add an ulp: allow it).
+        let deg = ranges::PHASE_DEG_ABS;
+        if self.phase_rad.to_degrees().abs() > deg * (1.0 + 1e-12) {
+            return Err(bad(
+                "--phase-deg",
+                format!("a number in [-{deg}, {deg}] degrees"),
+                show(self.phase_rad.to_degrees()),
+            ));
+        }
+        for v in self.dc_offset {
+            within(
+                "--dc",
+                v,
+                (-ranges::DC_ABS, ranges::DC_ABS),
+                " of full scale",
+            )?;
         }
         if self.cfo_hz.abs() >= fs / 2.0 {
             return Err(bad(
                 "--cfo-hz",
-                format!("|CFO| below fs/2 = {} Hz", fs / 2.0),
-                self.cfo_hz,
+                format!("|CFO| below fs/2 = {} Hz", show(fs / 2.0)),
+                show(self.cfo_hz),
             ));
         }
         if self.sco_ppm.abs() > MAX_SCO_PPM {
             return Err(bad(
                 "--sco-ppm",
                 format!("|offset| at most {MAX_SCO_PPM} ppm"),
-                self.sco_ppm,
+                show(self.sco_ppm),
             ));
-        }
-        if let Some(e) = self.esn0_db {
-            if !e.is_finite() {
-                return Err(bad("--esn0-db", "a finite number of dB", e));
-            }
         }
         if let TimingOffset::Fixed(f) = self.timing {
             if !(f.is_finite() && (-0.5..0.5).contains(&f)) {
                 return Err(bad(
                     "--timing-frac",
                     "a fraction in [-0.5, 0.5) or \"random\"",
-                    f,
+                    show(f),
                 ));
             }
         }
@@ -507,11 +597,59 @@ impl SynthSpec {
             {
                 return Err(bad("--channel", "finite taps", "a non-finite tap"));
             }
-            if !ch.drift_hz.is_finite() {
-                return Err(bad("--drift-hz", "a finite rate", ch.drift_hz));
+            let largest = ch.taps.iter().map(|t| t.norm()).fold(0.0, f64::max);
+            let (lo, hi) = ranges::TAP_MAGNITUDE;
+            if !(lo..=hi).contains(&largest) {
+                return Err(bad(
+                    "--channel",
+                    format!("taps whose largest magnitude is in [{lo:e}, {hi:e}]"),
+                    show(largest),
+                ));
             }
+            if !(ch.drift_hz.is_finite() && ch.drift_hz.abs() < fs / 2.0) {
+                return Err(bad(
+                    "--drift-hz",
+                    format!("|drift| below fs/2 = {} Hz", show(fs / 2.0)),
+                    show(ch.drift_hz),
+                ));
+            }
+            // The taps' spread is part of each burst's extent.
+            let d = match ch.spacing {
+                TapSpacing::Symbol => self.profile.samples_per_symbol,
+                TapSpacing::Sample => 1,
+            } as u64;
+            self.check_size((ch.taps.len() as u64 - 1).saturating_mul(d))?;
+        } else {
+            self.check_size(0)?;
         }
         Ok(fs)
+    }
+
+    /// The capture's size against [`crate::limits::MAX_SYNTH_SAMPLES`]
+    /// (`spread`: the channel's, samples).
+    fn check_size(&self, spread: u64) -> Result<(), SynthError> {
+        let prof = &self.profile;
+        let sps = prof.samples_per_symbol as u64;
+        let frame = (prof.payload_symbols_per_burst() as u64)
+            .saturating_add(prof.training.length_symbols.unwrap_or(0) as u64)
+            .saturating_add(2 * prof.pulse.span_symbols as u64)
+            .saturating_mul(sps)
+            .saturating_add(spread);
+        let per_burst = frame.saturating_add(self.gap_samples.1 as u64);
+        let total = (self.lead_gap_samples as u64)
+            .saturating_add((self.bursts as u64).saturating_mul(per_burst));
+        let max = crate::limits::MAX_SYNTH_SAMPLES;
+        if total > max {
+            return Err(SynthError::TooLarge {
+                bursts: self.bursts,
+                frame,
+                gap_max: self.gap_samples.1,
+                lead_gap: self.lead_gap_samples,
+                total,
+                max,
+            });
+        }
+        Ok(())
     }
 }
 

@@ -343,88 +343,6 @@ pub fn run_profile(args: &ProfileArgs) -> Result<Outcome, Error> {
     Ok(Outcome::Ok)
 }
 
-/// Refuse synth options whose product would make an output larger than
-/// [`iqaudit::limits::MAX_SYNTH_SAMPLES`], before anything is generated.
-fn check_synth_size(args: &SynthArgs, profile: &iqaudit::ResolvedProfile) -> Result<(), Error> {
-    let sps = profile.samples_per_symbol as u64;
-    let frame = (profile.payload_symbols_per_burst() as u64)
-        .saturating_add(profile.training.length_symbols.unwrap_or(0) as u64)
-        .saturating_add(2 * profile.pulse.span_symbols as u64)
-        .saturating_mul(sps);
-    let per_burst = frame.saturating_add(args.gap.1 as u64);
-    let total = (args.lead_gap as u64).saturating_add(args.bursts.saturating_mul(per_burst));
-    let max = iqaudit::limits::MAX_SYNTH_SAMPLES;
-    if total > max {
-        return Err(Error::Usage {
-            message: format!(
-                "--bursts {} × ({frame} samples a frame + gap up to {}) + --lead-gap {} = {total} samples: at most {max} samples per capture",
-                args.bursts, args.gap.1, args.lead_gap
-            ),
-        });
-    }
-    Ok(())
-}
-
-/// Physically meaningful ranges of `synth`'s impairment options, checked
-/// before anything is generated (each is finite already): outside them the
-/// generator would write infinite or NaN samples, or a capture that is all
-/// noise or all clipping. `fs` is the sample rate the capture will have.
-fn check_synth_ranges(args: &SynthArgs, fs: Option<f64>) -> Result<(), Error> {
-    let out_of = |opt: &str, range: &str, v: String| Error::Usage {
-        message: format!("{opt}: expected {range}, found {v}"),
-    };
-    let show = iqaudit::limits::show_number;
-    let within = |opt: &str, v: f64, lo: f64, hi: f64, unit: &str| {
-        if (lo..=hi).contains(&v) {
-            Ok(())
-        } else {
-            Err(out_of(
-                opt,
-                &format!("a number in [{lo}, {hi}]{unit}"),
-                show(v),
-            ))
-        }
-    };
-    within("--level-dbfs", args.level_dbfs, -200.0, 40.0, " dBFS")?;
-    if let Some(e) = args.esn0_db {
-        within("--esn0-db", e, -100.0, 200.0, " dB")?;
-    }
-    within("--iq-gain-db", args.iq_gain_db, -40.0, 40.0, " dB")?;
-    if args.iq_phase_deg.abs() >= 90.0 {
-        return Err(out_of(
-            "--iq-phase-deg",
-            "a number in (-90, 90) degrees",
-            show(args.iq_phase_deg),
-        ));
-    }
-    within("--phase-deg", args.phase_deg, -360.0, 360.0, " degrees")?;
-    if let Some([i, q]) = args.dc {
-        within("--dc", i, -1.0, 1.0, " of full scale")?;
-        within("--dc", q, -1.0, 1.0, " of full scale")?;
-    }
-    if let Some(fs) = fs {
-        if args.drift_hz.abs() >= fs / 2.0 {
-            return Err(out_of(
-                "--drift-hz",
-                &format!("|drift| below fs/2 = {} Hz", fs / 2.0),
-                show(args.drift_hz),
-            ));
-        }
-    }
-    if let Some(text) = &args.channel {
-        let taps = parse_taps(text)?;
-        let largest = taps.iter().map(|t| t.norm()).fold(0.0, f64::max);
-        if !(1e-6..=1e6).contains(&largest) {
-            return Err(out_of(
-                "--channel",
-                "taps whose largest magnitude is in [1e-6, 1e6]",
-                show(largest),
-            ));
-        }
-    }
-    Ok(())
-}
-
 /// Run `iqaudit synth …`; `argv` is recorded in the truth file.
 pub fn run_synth(args: &SynthArgs, argv: &[String]) -> Result<Outcome, Error> {
     // The outputs (capture, its sidecar, the truth file) never replace the
@@ -444,8 +362,6 @@ pub fn run_synth(args: &SynthArgs, argv: &[String]) -> Result<Outcome, Error> {
     }
     iqaudit::atomic::ensure_replaceable(&args.out)?;
     let profile = load_profile(&args.profile)?;
-    check_synth_size(args, &profile)?;
-    check_synth_ranges(args, args.sample_rate.or(profile.capture.sample_rate_hz))?;
     let channel = match &args.channel {
         None => None,
         Some(text) => {
@@ -493,6 +409,9 @@ pub fn run_synth(args: &SynthArgs, argv: &[String]) -> Result<Outcome, Error> {
         sco_ppm: args.sco_ppm,
         profile,
     };
+    // The library's own check (one implementation): ranges, finiteness and
+    // the capture's size, before any output name is touched.
+    spec.validate()?;
     let output = OutputSpec {
         container,
         sigmf_sidecar: !args.no_sigmf && matches!(container, iqaudit::Container::Raw(_)),

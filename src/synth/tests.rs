@@ -396,3 +396,110 @@ fn an_output_named_for_another_raw_format_than_the_profile_is_refused() {
         Container::Raw(SampleFormat::Cu8)
     );
 }
+
+/// The option a refused spec names (every refusal happens in
+/// `SynthSpec::validate`, before anything is generated).
+fn refused(edit: impl FnOnce(&mut SynthSpec)) -> String {
+    let mut spec = SynthSpec::new(profile(PayloadPosition::After, 0, 30, true));
+    spec.sample_rate_hz = Some(1e6);
+    edit(&mut spec);
+    match spec.validate() {
+        Err(SynthError::InvalidOption { option, .. }) => option,
+        Err(SynthError::TooLarge { .. }) => "size".to_string(),
+        Err(SynthError::Profile(_)) => "profile".to_string(),
+        other => panic!("expected a refusal, got {other:?}"),
+    }
+}
+
+/// One edit of a spec.
+type Edit = Box<dyn FnOnce(&mut SynthSpec)>;
+
+/// Each field the library checks, refused by `validate` (and so by `run`)
+/// with a typed error naming it, not only by the command line. Ranges: this
+/// project's (docs/robustness.md rule 5; fs/2 is the Nyquist limit, common
+/// practice); the size cap is `limits::MAX_SYNTH_SAMPLES`.
+#[test]
+fn the_library_refuses_every_absurd_field_with_a_typed_error_naming_it() {
+    let ch = |taps: Vec<Cf64>, drift_hz: f64| ChannelSpec {
+        taps,
+        main_index: 0,
+        spacing: TapSpacing::Symbol,
+        drift_hz,
+    };
+    let one = Cf64::new(1.0, 0.0);
+    let cases: Vec<(&str, Edit)> = vec![
+        (
+            "--sample-rate",
+            Box::new(|s| s.sample_rate_hz = Some(1e300)),
+        ),
+        (
+            "--sample-rate",
+            Box::new(|s| s.sample_rate_hz = Some(f64::NAN)),
+        ),
+        ("--sample-rate", Box::new(|s| s.sample_rate_hz = Some(0.5))),
+        ("--bursts", Box::new(|s| s.bursts = 0)),
+        ("size", Box::new(|s| s.bursts = 100_000_000)),
+        ("size", Box::new(|s| s.bursts = usize::MAX)),
+        ("size", Box::new(|s| s.lead_gap_samples = 1 << 40)),
+        ("size", Box::new(|s| s.gap_samples = (0, usize::MAX))),
+        ("--gap", Box::new(|s| s.gap_samples = (10, 9))),
+        ("--esn0-db", Box::new(|s| s.esn0_db = Some(f64::NAN))),
+        ("--esn0-db", Box::new(|s| s.esn0_db = Some(-1e300))),
+        ("--esn0-db", Box::new(|s| s.esn0_db = Some(201.0))),
+        ("--level-dbfs", Box::new(|s| s.level_dbfs = 41.0)),
+        ("--level-dbfs", Box::new(|s| s.level_dbfs = f64::INFINITY)),
+        ("--iq-gain-db", Box::new(|s| s.iq_gain_db = 400.0)),
+        ("--iq-phase-deg", Box::new(|s| s.iq_phase_deg = 90.0)),
+        ("--iq-phase-deg", Box::new(|s| s.iq_phase_deg = f64::NAN)),
+        ("--phase-deg", Box::new(|s| s.phase_rad = 7.0)),
+        ("--phase-deg", Box::new(|s| s.phase_rad = f64::NAN)),
+        ("--dc", Box::new(|s| s.dc_offset = [1e300, 0.0])),
+        ("--dc", Box::new(|s| s.dc_offset = [0.0, -1.5])),
+        ("--cfo-hz", Box::new(|s| s.cfo_hz = 5e5)),
+        ("--cfo-hz", Box::new(|s| s.cfo_hz = f64::NEG_INFINITY)),
+        ("--sco-ppm", Box::new(|s| s.sco_ppm = 2e4)),
+        (
+            "--timing-frac",
+            Box::new(|s| s.timing = TimingOffset::Fixed(f64::NAN)),
+        ),
+        (
+            "--channel",
+            Box::new(move |s| s.channel = Some(ch(vec![Cf64::new(1e300, 0.0)], 0.0))),
+        ),
+        (
+            "--channel",
+            Box::new(move |s| s.channel = Some(ch(vec![Cf64::new(1e-9, 0.0)], 0.0))),
+        ),
+        (
+            "--channel",
+            Box::new(move |s| s.channel = Some(ch(vec![Cf64::new(f64::NAN, 0.0)], 0.0))),
+        ),
+        (
+            "--channel-main",
+            Box::new(move |s| s.channel = Some(ch(vec![], 0.0))),
+        ),
+        (
+            "--drift-hz",
+            Box::new(move |s| s.channel = Some(ch(vec![one, one], 6e5))),
+        ),
+        (
+            "--drift-hz",
+            Box::new(move |s| s.channel = Some(ch(vec![one, one], f64::NAN))),
+        ),
+        ("profile", Box::new(|s| s.profile.pulse.rolloff = 0.0)),
+    ];
+    for (want, edit) in cases {
+        assert_eq!(refused(edit), want);
+    }
+    // The boundaries themselves are accepted.
+    let mut spec = SynthSpec::new(profile(PayloadPosition::After, 0, 30, true));
+    spec.sample_rate_hz = Some(1e6);
+    spec.phase_rad = 360f64.to_radians();
+    spec.level_dbfs = 40.0;
+    spec.dc_offset = [1.0, -1.0];
+    spec.esn0_db = Some(-100.0);
+    assert_eq!(spec.validate().unwrap(), 1e6);
+    // `run` makes the same check.
+    spec.bursts = 0;
+    assert!(matches!(run(&spec), Err(SynthError::InvalidOption { .. })));
+}
