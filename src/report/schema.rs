@@ -575,6 +575,10 @@ pub enum WarningCode {
     /// Two sources of the capture's metadata disagree (sidecar against profile,
     /// extension or WAV header), or a sidecar was passed over; the message names both.
     MetadataDisagrees,
+    /// A SigMF sidecar holds a `core:` key that SigMF 1.x does not define for
+    /// the object it sits in (a typo such as `core:sample_rat`); it was
+    /// ignored. The message names the sidecar, the object and the key.
+    MetadataUnknownKey,
     /// A significant part of the channel's energy lies outside the fitted tap
     /// window at the chosen sampling instant (it acts as unmodelled noise).
     EnergyOutsideWindow,
