@@ -476,10 +476,13 @@ fn metadata_warnings(
     warnings: &mut Vec<Warning>,
 ) {
     for note in capture.notes() {
-        warnings.push(Warning::new(
-            WarningCode::MetadataDisagrees,
-            note.to_string(),
-        ));
+        let code = match note {
+            crate::capture::CaptureNote::UnknownSigmfCoreKey { .. } => {
+                WarningCode::MetadataUnknownKey
+            }
+            _ => WarningCode::MetadataDisagrees,
+        };
+        warnings.push(Warning::new(code, note.to_string()));
     }
     let differ = |a: f64, b: f64| (a - b).abs() > SAME_VALUE * a.abs().max(b.abs());
     if let (Some(p), Some(c)) = (profile.capture.center_freq_hz, capture.center_freq_hz()) {

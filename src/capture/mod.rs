@@ -40,8 +40,9 @@ use crate::Cf32;
 use mmap::{Access, Source};
 
 pub use sigmf::{
-    parse_sidecar as parse_sigmf_meta, SigmfAnnotation, SigmfMeta, SigmfSegment,
-    EXTENSION_NAMESPACE, EXTENSION_VERSION, SIGMF_VERSION,
+    parse_sidecar as parse_sigmf_meta, SigmfAnnotation, SigmfMeta, SigmfSegment, UnknownCoreKey,
+    ANNOTATION_CORE_KEYS, CAPTURE_CORE_KEYS, EXTENSION_NAMESPACE, EXTENSION_VERSION,
+    GLOBAL_CORE_KEYS, MAX_UNKNOWN_CORE_KEYS, SIGMF_VERSION,
 };
 pub use write::{encode_raw, encode_raw_with, write_capture, WriteSpec, WriteStats};
 
@@ -473,6 +474,18 @@ pub enum CaptureNote {
         /// The WAV header's value (used).
         wav_says: String,
     },
+    /// A sidecar holds a `core:` key SigMF 1.x does not define for the object
+    /// it sits in (often a typo, e.g. `core:sample_rat`); it was ignored.
+    UnknownSigmfCoreKey {
+        /// The sidecar.
+        sidecar: PathBuf,
+        /// The first object holding it (`global`, `captures[0]`, …).
+        object: String,
+        /// The key (a short escaped excerpt).
+        key: String,
+        /// Further objects of the same kind holding it.
+        more: usize,
+    },
     /// Two sources of the sample rate disagree; the first one is used.
     RateDisagrees {
         /// The source used, e.g. the sidecar's path.
@@ -532,6 +545,22 @@ impl fmt::Display for CaptureNote {
                 "{} says {what} {sidecar_says} but the WAV header says {wav_says}; the header is used",
                 sidecar.display()
             ),
+            CaptureNote::UnknownSigmfCoreKey {
+                sidecar,
+                object,
+                key,
+                more,
+            } => {
+                write!(
+                    f,
+                    "{}: {object} has the key {key}, which SigMF 1.x does not define in the core namespace there (a typo?); ignored",
+                    sidecar.display()
+                )?;
+                if *more > 0 {
+                    write!(f, " (also in {more} more)")?;
+                }
+                Ok(())
+            }
             CaptureNote::RateDisagrees {
                 used_from,
                 used_hz,
@@ -1489,6 +1518,16 @@ fn resolve_layout(
     notes: &mut Vec<CaptureNote>,
 ) -> Result<Resolved, CaptureError> {
     let sidecar_rate = sidecar.and_then(|(_, m)| m.sample_rate_hz);
+    if let Some((sp, m)) = sidecar {
+        for u in &m.unknown_core_keys {
+            notes.push(CaptureNote::UnknownSigmfCoreKey {
+                sidecar: sp.to_path_buf(),
+                object: u.object.clone(),
+                key: u.key.clone(),
+                more: u.more,
+            });
+        }
+    }
     if is_wav {
         let layout = wav::read_header(file, data_path, end)?;
         if let Some(f) = opts.format {

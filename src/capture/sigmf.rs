@@ -88,6 +88,118 @@ pub struct SigmfMeta {
     pub segments: Vec<SigmfSegment>,
     /// The whole document as read (unknown keys included).
     pub document: Value,
+    /// Keys in the `core` namespace that SigMF 1.x does not define for the
+    /// object they sit in (a typo such as `core:sample_rat`): ignored like any
+    /// other key the reader does not know, but listed so a note can name them
+    /// (at most [`MAX_UNKNOWN_CORE_KEYS`] distinct ones).
+    pub unknown_core_keys: Vec<UnknownCoreKey>,
+}
+
+/// A `core:` key that SigMF 1.x does not define where it sits.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct UnknownCoreKey {
+    /// The first object it sits in: `global`, `captures[2]`, `annotations[7]`.
+    pub object: String,
+    /// The key, as a short escaped excerpt (the sidecar is not the user's file).
+    pub key: String,
+    /// Further objects of the same kind (`captures` / `annotations`) holding it.
+    pub more: usize,
+}
+
+/// Distinct unknown `core:` keys listed per sidecar (further ones are not).
+pub const MAX_UNKNOWN_CORE_KEYS: usize = 16;
+
+/// The `core` keys SigMF 1.x defines for the global object (the metadata
+/// schema `sigmf-schema.json` of v1.2.2; shared/REFERENCE-VALUES.md §10).
+pub const GLOBAL_CORE_KEYS: &[&str] = &[
+    "core:author",
+    "core:collection",
+    "core:data_doi",
+    "core:dataset",
+    "core:datatype",
+    "core:description",
+    "core:extensions",
+    "core:geolocation",
+    "core:hw",
+    "core:license",
+    "core:meta_doi",
+    "core:metadata_only",
+    "core:num_channels",
+    "core:offset",
+    "core:recorder",
+    "core:sample_rate",
+    "core:sha512",
+    "core:trailing_bytes",
+    "core:version",
+];
+
+/// The `core` keys SigMF 1.x defines for a capture segment object.
+pub const CAPTURE_CORE_KEYS: &[&str] = &[
+    "core:datetime",
+    "core:frequency",
+    "core:geolocation",
+    "core:global_index",
+    "core:header_bytes",
+    "core:sample_start",
+];
+
+/// The `core` keys SigMF 1.x defines for an annotation segment object.
+pub const ANNOTATION_CORE_KEYS: &[&str] = &[
+    "core:comment",
+    "core:freq_lower_edge",
+    "core:freq_upper_edge",
+    "core:generator",
+    "core:label",
+    "core:sample_count",
+    "core:sample_start",
+    "core:uuid",
+];
+
+/// Every `core:` key of the document's global, capture and annotation
+/// objects that SigMF 1.x does not define there (global first, then captures,
+/// then annotations), one entry per (kind of object, key).
+fn unknown_core_keys(root: &Value) -> Vec<UnknownCoreKey> {
+    let mut out: Vec<(String, UnknownCoreKey)> = Vec::new();
+    let mut scan =
+        |kind: &str, object: String, obj: &serde_json::Map<String, Value>, known: &[&str]| {
+            for key in obj.keys() {
+                if !key.starts_with("core:") || known.contains(&key.as_str()) {
+                    continue;
+                }
+                let short_key = short(key);
+                if let Some((_, u)) = out
+                    .iter_mut()
+                    .find(|(k, u)| k == kind && u.key == short_key)
+                {
+                    u.more += 1;
+                } else if out.len() < MAX_UNKNOWN_CORE_KEYS {
+                    out.push((
+                        kind.to_string(),
+                        UnknownCoreKey {
+                            object: object.clone(),
+                            key: short_key,
+                            more: 0,
+                        },
+                    ));
+                }
+            }
+        };
+    if let Some(g) = root.get("global").and_then(Value::as_object) {
+        scan("global", "global".into(), g, GLOBAL_CORE_KEYS);
+    }
+    for (kind, known) in [
+        ("captures", CAPTURE_CORE_KEYS),
+        ("annotations", ANNOTATION_CORE_KEYS),
+    ] {
+        if let Some(items) = root.get(kind).and_then(Value::as_array) {
+            for (i, item) in items.iter().enumerate() {
+                if let Some(obj) = item.as_object() {
+                    scan(kind, format!("{kind}[{i}]"), obj, known);
+                }
+            }
+        }
+    }
+    out.into_iter().map(|(_, u)| u).collect()
 }
 
 impl SigmfMeta {
@@ -540,6 +652,7 @@ pub fn parse_sidecar(text: &str, path: &Path) -> Result<SigmfMeta, CaptureError>
         trailing_bytes,
         offset,
         segments,
+        unknown_core_keys: unknown_core_keys(&root),
         document: root,
     })
 }
@@ -674,6 +787,58 @@ mod tests {
         assert_eq!(m.datatype, SampleFormat::Ci16Le);
         assert_eq!(m.sample_rate_hz, Some(2.4e6));
         assert_eq!(m.center_freq_hz, Some(433.92e6));
+    }
+
+    // Source: SigMF v1.2.x metadata schema (`sigmf-schema.json`) and
+    // shared/REFERENCE-VALUES.md §10: the core namespace has a fixed key list
+    // per object; other namespaces (`vendor:`) are extensions a reader ignores.
+    #[test]
+    fn core_keys_the_standard_does_not_define_are_listed_by_object_and_the_read_still_succeeds() {
+        let long = "x".repeat(10_000);
+        let text = format!(
+            r#"{{"global":{{"core:datatype":"ci16_le","core:sample_rat":2.4e6,
+            "core:version":"1.2.0","core:sha512":"00","vendor:sample_rat":1,"core:{long}":0}},
+            "captures":[{{"core:sample_start":0,"core:frequncy":433.92e6,"core:datetime":"x"}},
+                        {{"core:sample_start":10,"core:frequncy":1.0}}],
+            "annotations":[{{"core:sample_start":0,"core:lable":"a","core:uuid":"u"}},
+                           {{"core:sample_start":1,"core:lable":"b"}},
+                           {{"core:sample_start":2,"core:lable":"c"}}]}}"#
+        );
+        let m = parse_sidecar(&text, Path::new("a.sigmf-meta")).unwrap();
+        assert_eq!(m.sample_rate_hz, None, "a typo is not read as the rate");
+        assert_eq!(m.center_freq_hz, None);
+        let got: Vec<(&str, &str, usize)> = m
+            .unknown_core_keys
+            .iter()
+            .map(|u| (u.object.as_str(), u.key.as_str(), u.more))
+            .collect();
+        assert_eq!(got.len(), 4, "{got:?}");
+        assert_eq!(got[0], ("global", "core:sample_rat", 0));
+        assert_eq!(got[1].0, "global");
+        assert!(got[1].1.chars().count() <= 41, "excerpted: {}", got[1].1);
+        assert_eq!(got[2], ("captures[0]", "core:frequncy", 1));
+        assert_eq!(got[3], ("annotations[0]", "core:lable", 2));
+        // Every key this crate writes, and every key the standard defines, is known.
+        let clean = r#"{"global":{"core:datatype":"ci16_le","core:version":"1.2.0",
+            "core:author":"a","core:collection":"c","core:data_doi":"d","core:description":"d",
+            "core:extensions":[],"core:geolocation":{"type":"Point","coordinates":[0,0]},
+            "core:hw":"h","core:license":"l","core:meta_doi":"m","core:metadata_only":false,
+            "core:num_channels":1,"core:offset":0,"core:recorder":"r","core:sample_rate":1e6,
+            "core:sha512":"0","core:trailing_bytes":0},
+            "captures":[{"core:sample_start":0,"core:datetime":"t","core:frequency":1e6,
+              "core:geolocation":{"type":"Point","coordinates":[0,0]},"core:global_index":0,
+              "core:header_bytes":0}],
+            "annotations":[{"core:sample_start":0,"core:sample_count":1,"core:comment":"c",
+              "core:freq_lower_edge":0,"core:freq_upper_edge":1,"core:generator":"g",
+              "core:label":"l","core:uuid":"u"}]}"#;
+        let m = parse_sidecar(clean, Path::new("a.sigmf-meta")).unwrap();
+        assert!(m.unknown_core_keys.is_empty(), "{:?}", m.unknown_core_keys);
+        // At most MAX_UNKNOWN_CORE_KEYS distinct keys are listed.
+        let many: String = (0..100).map(|i| format!(r#","core:k{i}":0"#)).collect();
+        let text =
+            format!(r#"{{"global":{{"core:datatype":"ci16_le","core:version":"1.2.0"{many}}}}}"#);
+        let m = parse_sidecar(&text, Path::new("a.sigmf-meta")).unwrap();
+        assert_eq!(m.unknown_core_keys.len(), MAX_UNKNOWN_CORE_KEYS);
     }
 
     #[test]

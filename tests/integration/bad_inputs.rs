@@ -1278,6 +1278,11 @@ struct Row {
 }
 
 impl Row {
+    /// The row, with texts that must not appear in the output.
+    const fn forbidding(self, forbid: &'static [&'static str]) -> Row {
+        Row { forbid, ..self }
+    }
+
     const fn new(
         name: &'static str,
         setup: fn(&Path) -> Vec<String>,
@@ -2133,7 +2138,54 @@ fn issue_16_rule_5_right_answers_or_none() {
             },
             0,
             "ci16_le",
+        )
+        .forbidding(&["does not define"]),
+        Row::new(
+            "rule 5: a typo in a sidecar's core key (core:sample_rat) is named in a warning and the read goes on",
+            |d| {
+                // SigMF v1.2.x schema: `core:sample_rate` is the global key;
+                // `core:sample_rat` is in no object's core list.
+                let meta = r#"{"global":{"core:datatype":"ci16_le","core:version":"1.2.0","core:sample_rat":1e6},
+                    "captures":[{"core:sample_start":0}],"annotations":[]}"#;
+                raw_with_sidecar(d, meta)
+            },
+            0,
+            "x.sigmf-meta: global has the key core:sample_rat, which SigMF 1.x does not define in the core namespace there",
         ),
+        Row {
+            check: Some(|d| {
+                let v: serde_json::Value =
+                    serde_json::from_slice(&std::fs::read(d.join("r.json")).unwrap()).unwrap();
+                let w = v["warnings"].as_array().unwrap();
+                assert!(
+                    w.iter().any(|w| w["code"] == "metadata-unknown-key"
+                        && w["message"].as_str().unwrap().contains("captures[0] has the key core:frequncy")),
+                    "{w:?}"
+                );
+            }),
+            ..Row::new(
+                "rule 5: a typo in a capture segment's core key is a metadata-unknown-key warning in the report",
+                |d| {
+                    let (c, p) = capture(d);
+                    let m = d.join("c.sigmf-meta");
+                    let mut v: serde_json::Value =
+                        serde_json::from_slice(&std::fs::read(&m).unwrap()).unwrap();
+                    v["captures"][0]["core:frequncy"] = serde_json::json!(1.0);
+                    std::fs::write(&m, v.to_string()).unwrap();
+                    let r = d.join("r.json");
+                    vec![
+                        "analyse".into(),
+                        s(&c),
+                        "--profile".into(),
+                        s(&p),
+                        "--report".into(),
+                        s(&r),
+                    ]
+                },
+                0,
+                "captures[0] has the key core:frequncy",
+            )
+        },
         Row::new(
             "rule 5: a merge input row with an unknown key is refused",
             |d| {
