@@ -239,6 +239,7 @@ fn analyse_capture_unnamed(
         command: opts.command.clone(),
         input: InputInfo {
             path: path.display().to_string(),
+            path_from_report: None,
             size_bytes: capture.file_len_bytes(),
             sha256,
             format: capture.container().to_string(),

@@ -115,8 +115,19 @@ impl ToolInfo {
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct InputInfo {
-    /// Path as given on the command line.
+    /// The capture's path. `analyse`: as given on its command line (relative
+    /// to the working directory it ran in, or absolute). `batch`: relative to
+    /// the report's own folder (absolute when the input folder was given
+    /// absolute). A name that is not UTF-8 is recorded lossily (U+FFFD).
     pub path: String,
+    /// The capture's path relative to the report's own folder, recorded by
+    /// `analyse --report FILE` when `path` is relative, so that `recheck` finds
+    /// the capture from any working directory (tried before `path`). `null`
+    /// when `path` is absolute, when the report was not written to a file, in
+    /// batch reports (their `path` is already relative to their folder), and
+    /// in reports written before this key existed.
+    #[serde(default)]
+    pub path_from_report: Option<String>,
     /// File size in bytes.
     pub size_bytes: u64,
     /// SHA-256 of the file contents, lowercase hex.

@@ -41,6 +41,7 @@ fn minimal_report(path: &Path, result: VerdictResult, profile_sha: &str) -> Repo
         command: vec!["iqaudit".into(), "batch".into()],
         input: InputInfo {
             path: path.display().to_string(),
+            path_from_report: None,
             size_bytes: bytes.len() as u64,
             sha256: sha256_file(path).unwrap(),
             format: "cf32_le".into(),
