@@ -15,21 +15,34 @@ use crate::Error;
 use std::path::{Path, PathBuf};
 
 /// Where `recheck` finds the capture a report names. An absolute path is used
-/// as it is. A relative one is looked up first in the report's own folder
-/// (batch reports record the capture's path relative to the folder they are
-/// written in, see [`path_from_folder`], so they recheck from any working
-/// directory and after the capture and report folders are moved together),
-/// then relative to the working directory (`analyse` records the path as
-/// given on its command line).
-pub fn locate_input(report_path: &Path, recorded: &str) -> PathBuf {
+/// as it is. A relative one is looked up, in this order:
+///
+/// 1. `from_report` (`input.path_from_report`, recorded by `analyse --report`
+///    when its capture path was relative: the capture's path from the
+///    report's own folder, see [`path_from_folder`]) in the report's folder;
+/// 2. `recorded` (`input.path`) in the report's folder (batch reports record
+///    it relative to the folder they are written in);
+/// 3. `recorded` relative to the working directory (`analyse` records the
+///    path as given on its command line; reports written before
+///    `path_from_report` existed).
+///
+/// So a report rechecks from any working directory, and after the capture and
+/// report folders are moved together. The first candidate that exists is used.
+pub fn locate_input(report_path: &Path, recorded: &str, from_report: Option<&str>) -> PathBuf {
     let p = PathBuf::from(recorded);
-    let mut candidates = Vec::with_capacity(2);
+    let mut candidates = Vec::with_capacity(3);
+    let dir = report_path
+        .parent()
+        .filter(|d| !d.as_os_str().is_empty())
+        .unwrap_or(Path::new("."));
+    if let Some(rel) = from_report.map(Path::new).filter(|r| r.is_relative()) {
+        candidates.push(dir.join(rel));
+    }
     if !p.is_absolute() {
-        if let Some(d) = report_path.parent().filter(|d| !d.as_os_str().is_empty()) {
-            candidates.push(d.join(&p));
-        }
+        candidates.push(dir.join(&p));
     }
     candidates.push(p.clone());
+    candidates.dedup();
     // `symlink_metadata`: a FIFO or a dangling link there still counts as the
     // file meant (and is then refused by name), rather than silently trying
     // another place.
@@ -365,7 +378,11 @@ pub fn recheck_with(
             })
         })?;
     }
-    let input = locate_input(report_path, &report.input.path);
+    let input = locate_input(
+        report_path,
+        &report.input.path,
+        report.input.path_from_report.as_deref(),
+    );
     check_sidecar(&report, &input)?;
     // The digest is of the sample data: a `.sigmf-meta` path stands for its
     // `.sigmf-data`, as in `analyse`.
@@ -397,9 +414,11 @@ pub fn recheck_with(
         skip_input_hash: false,
     };
     let recorded_path = report.input.path.clone();
+    let recorded_from_report = report.input.path_from_report.clone();
     drop(report);
     let mut again = analyse_capture(&input, &profile, &opts)?;
     again.input.path = recorded_path;
+    again.input.path_from_report = recorded_from_report;
     // Burst by burst: one JSON tree (the recorded one) in memory, not two.
     let differences = crate::report::compare::report_differences(&recorded, again, &["command"])
         .map_err(|e| bad(e.to_string()))?;
@@ -435,11 +454,11 @@ mod tests {
         let d = dir.path();
         std::fs::create_dir_all(d.join("out")).unwrap();
         std::fs::write(d.join("c.ci16"), b"").unwrap();
-        let found = locate_input(&d.join("out/r.json"), "../c.ci16");
+        let found = locate_input(&d.join("out/r.json"), "../c.ci16", None);
         assert_eq!(found, d.join("out/../c.ci16"));
         // Not beside the report: left relative to the working directory.
         assert_eq!(
-            locate_input(&d.join("out/r.json"), "nowhere.ci16"),
+            locate_input(&d.join("out/r.json"), "nowhere.ci16", None),
             PathBuf::from("nowhere.ci16")
         );
     }
@@ -453,12 +472,43 @@ mod tests {
         let name = std::ffi::OsStr::from_bytes(b"c\xff.ci16");
         std::fs::write(d.join(name), b"").unwrap();
         let recorded = d.join(name).to_string_lossy().into_owned();
-        assert_eq!(locate_input(&d.join("r.json"), &recorded), d.join(name));
+        assert_eq!(
+            locate_input(&d.join("r.json"), &recorded, None),
+            d.join(name)
+        );
         // Two names that read the same: ambiguous, not guessed.
         std::fs::write(d.join(std::ffi::OsStr::from_bytes(b"c\xfe.ci16")), b"").unwrap();
         assert_eq!(
-            locate_input(&d.join("r.json"), &recorded),
+            locate_input(&d.join("r.json"), &recorded, None),
             PathBuf::from(&recorded)
+        );
+    }
+
+    #[test]
+    fn the_path_from_the_report_folder_is_tried_first_and_only_when_relative() {
+        // `analyse --report` in folder A of `in/c.ci16` writes
+        // path "in/c.ci16" (from A) and path_from_report "../in/c.ci16" (from
+        // A/out, the report's folder).
+        let dir = tempfile::tempdir().unwrap();
+        let d = dir.path();
+        std::fs::create_dir_all(d.join("out")).unwrap();
+        std::fs::create_dir_all(d.join("in")).unwrap();
+        std::fs::write(d.join("in/c.ci16"), b"").unwrap();
+        let r = d.join("out/r.json");
+        assert_eq!(
+            locate_input(&r, "in/c.ci16", Some("../in/c.ci16")),
+            d.join("out/../in/c.ci16")
+        );
+        // Absent there: the older candidates, in order.
+        assert_eq!(
+            locate_input(&r, "in/c.ci16", Some("gone.ci16")),
+            PathBuf::from("in/c.ci16")
+        );
+        // An absolute path_from_report is not used.
+        let abs = d.join("in/c.ci16").display().to_string();
+        assert_eq!(
+            locate_input(&r, "nowhere.ci16", Some(&abs)),
+            PathBuf::from("nowhere.ci16")
         );
     }
 }

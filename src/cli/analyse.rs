@@ -247,6 +247,14 @@ pub fn run_analyse(
             .install(run)?,
         None => run()?,
     };
+    let mut report = report;
+    if let Some(r) = report_file {
+        // So `recheck` finds a relatively named capture from any working
+        // directory: its path from the report's own folder.
+        let folder = r.parent().unwrap_or(Path::new(""));
+        report.input.path_from_report = iqaudit::recheck::path_from_folder(folder, &args.capture)
+            .map(|p| p.to_string_lossy().into_owned());
+    }
     // Serialise only when a JSON form is asked for (a file or stdout): on a
     // capture with thousands of bursts it is a noticeable share of the run.
     let json = if args.report.is_some() || json_out || args.plots.is_some() {

@@ -2319,7 +2319,64 @@ fn issue_16_rule_5_right_answers_or_none() {
             0,
             "every figure reproduces",
         ),
+        Row {
+            check: Some(|d| {
+                let v: serde_json::Value =
+                    serde_json::from_slice(&std::fs::read(d.join("out/r.json")).unwrap()).unwrap();
+                assert_eq!(v["input"]["path"], "c.ci16", "as given on the command line");
+                assert_eq!(
+                    v["input"]["path_from_report"], "../c.ci16",
+                    "relative to the report's folder"
+                );
+            }),
+            ..Row::new(
+                "rule 5: an analyse report with a relative capture path rechecks from another working directory",
+                |d| {
+                    analyse_in_d(d);
+                    recheck(&d.join("out/r.json"))
+                },
+                0,
+                "every figure reproduces",
+            )
+        },
+        Row::new(
+            "rule 5: an analyse report with a relative capture path rechecks after capture and report are moved together",
+            |d| {
+                analyse_in_d(d);
+                let moved = d.join("moved");
+                std::fs::create_dir(&moved).unwrap();
+                for f in ["c.ci16", "c.sigmf-meta", "out"] {
+                    std::fs::rename(d.join(f), moved.join(f)).unwrap();
+                }
+                recheck(&moved.join("out/r.json"))
+            },
+            0,
+            "every figure reproduces",
+        ),
     ]);
+}
+
+/// `analyse c.ci16 --report out/r.json` run in `d` (a relative capture path).
+fn analyse_in_d(d: &Path) {
+    let (_, p) = capture(d);
+    std::fs::create_dir(d.join("out")).unwrap();
+    let out = iqaudit()
+        .current_dir(d)
+        .args([
+            "analyse",
+            "c.ci16",
+            "--profile",
+            p.file_name().unwrap().to_str().unwrap(),
+            "--report",
+            "out/r.json",
+        ])
+        .output()
+        .unwrap();
+    assert!(
+        matches!(out.status.code(), Some(0) | Some(1)),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
 }
 
 /// Issue 16, rule 1: a capture truncated by another process while it is read
