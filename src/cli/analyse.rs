@@ -43,10 +43,20 @@ pub struct AnalyseArgs {
 
     /// Raw sample format, overriding the profile, a SigMF sidecar and the extension.
     ///
-    /// One of the SigMF datatype names: cf32_le, cf32_be, cf64_le, ci16_le,
-    /// ci16_be, ci8, cu8.
+    /// Any complex SigMF datatype name: ci8, cu8, ci16_le, ci16_be, cu16_le,
+    /// cu16_be, ci32_le, ci32_be, cu32_le, cu32_be, cf32_le, cf32_be, cf64_le,
+    /// cf64_be.
     #[arg(long, short = 'f', value_name = "F")]
     pub format: Option<String>,
+
+    /// Zero point of unsigned samples (cu8/cu16/cu32): symmetric or power_of_two.
+    ///
+    /// Overrides the profile's `capture.unsigned_zero` and is recorded in the
+    /// report's profile, so `recheck` reads the samples the same way.
+    /// `symmetric` (the default) puts zero at (2^bits − 1)/2, 127.5 for cu8;
+    /// `power_of_two` at 2^(bits−1), 128 for cu8, as the SigMF reference library does.
+    #[arg(long, value_name = "Z", value_parser = super::parse_unsigned_zero)]
+    pub unsigned_zero: Option<iqaudit::UnsignedZero>,
 
     /// Sample rate in Hz, overriding the profile and the file.
     #[arg(long, value_name = "HZ", value_parser = super::parse_rate)]
@@ -225,7 +235,10 @@ pub fn run_analyse(
         iqaudit::atomic::ensure_plots_dir_clear(d, &inputs, &others)?;
     }
     let jobs = checked_jobs(args.jobs)?;
-    let profile = load_profile_with(&profile_path, args.allow_outside_symbols)?;
+    let mut profile = load_profile_with(&profile_path, args.allow_outside_symbols)?;
+    if let Some(z) = args.unsigned_zero {
+        profile.capture.unsigned_zero = Some(z);
+    }
     let opts = AnalyseOptions {
         format,
         sample_rate_hz: args.sample_rate,

@@ -76,6 +76,15 @@ pub struct BatchArgs {
     #[arg(long, short = 'f', value_name = "F")]
     pub format: Option<String>,
 
+    /// Zero point of unsigned samples (cu8/cu16/cu32): symmetric or power_of_two.
+    ///
+    /// Overrides the profile's `capture.unsigned_zero` and is recorded in the
+    /// report's profile, so `recheck` reads the samples the same way.
+    /// `symmetric` (the default) puts zero at (2^bits − 1)/2, 127.5 for cu8;
+    /// `power_of_two` at 2^(bits−1), 128 for cu8, as the SigMF reference library does.
+    #[arg(long, value_name = "Z", value_parser = super::parse_unsigned_zero)]
+    pub unsigned_zero: Option<iqaudit::UnsignedZero>,
+
     /// Sample rate in Hz for every capture, overriding the profile and the files.
     #[arg(long, value_name = "HZ", value_parser = super::parse_rate)]
     pub sample_rate: Option<f64>,
@@ -87,7 +96,7 @@ pub struct BatchArgs {
     #[arg(long)]
     pub allow_outside_symbols: bool,
 
-    #[arg(long, value_name = "SUMMARY.jsonl", num_args = 1.., conflicts_with_all = ["dir", "profile", "shard", "force", "globs", "format", "sample_rate", "jobs"])]
+    #[arg(long, value_name = "SUMMARY.jsonl", num_args = 1.., conflicts_with_all = ["dir", "profile", "shard", "force", "globs", "format", "unsigned_zero", "sample_rate", "jobs"])]
     pub merge: Vec<PathBuf>,
 
     /// Also write each analysed capture's bursts as SigMF annotations, as
@@ -138,7 +147,10 @@ pub fn run_batch_cmd(args: &BatchArgs, argv: &[String]) -> Result<Outcome, Error
         });
     };
     let format = super::parse_format_arg(args.format.as_deref(), dir)?;
-    let profile = load_profile_with(profile_path, args.allow_outside_symbols)?;
+    let mut profile = load_profile_with(profile_path, args.allow_outside_symbols)?;
+    if let Some(z) = args.unsigned_zero {
+        profile.capture.unsigned_zero = Some(z);
+    }
     let sha = profile_sha256(&profile).map_err(|e| Error::Usage {
         message: format!("{}: {e}", profile_path.display()),
     })?;

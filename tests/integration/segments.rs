@@ -252,6 +252,18 @@ fn batch_annotate_writes_a_sidecar_for_every_capture_it_analyses() {
             .count();
         assert_eq!(detected, 3, "{name}");
     }
+    // Source: the SigMF reference library (Python sigmf) validates each
+    // sidecar batch wrote and reads the same samples through it.
+    if reference_library_available() {
+        let entries: Vec<Value> = ["north.cf32", "south.cf32"]
+            .iter()
+            .map(|name| {
+                let meta = input.join(format!("{name}.annotations.sigmf-meta"));
+                manifest_entry(dir.path(), &meta, UnsignedZero::Symmetric)
+            })
+            .collect();
+        run_checker(dir.path(), &entries);
+    }
 }
 
 #[test]
@@ -309,6 +321,28 @@ fn the_profile_can_name_the_unsigned_zero_point_and_analyse_reads_by_it() {
             (got - want).abs() < 1e-4,
             "{rule}: {got} dBFS against {want}"
         );
+        // `--unsigned-zero` on the command line overrides the profile (here
+        // the opposite rule), is recorded in the report's profile, and the
+        // report written with it rechecks.
+        let other = if rule == "symmetric" {
+            "power_of_two"
+        } else {
+            "symmetric"
+        };
+        p["capture"]["unsigned_zero"] = other.into();
+        std::fs::write(&pp, serde_json::to_vec(&p).unwrap()).unwrap();
+        let report = dir.path().join(format!("{rule}.report.json"));
+        let flag = [
+            "--unsigned-zero",
+            rule,
+            "--report",
+            report.to_str().unwrap(),
+        ];
+        let (rep, err) = analyse(&cap, &pp, &flag);
+        assert_eq!(rep["profile"]["capture"]["unsigned_zero"], rule, "{err}");
+        assert_eq!(rep["bursts"][0]["received_power_dbfs"].as_f64(), Some(got));
+        let out = iqaudit().arg("recheck").arg(&report).output().unwrap();
+        assert!(out.status.success(), "{rule}: {}", stderr_of(&out));
     }
 }
 
