@@ -121,6 +121,16 @@ pub struct InfoArgs {
     /// whole capture). The folder is created if needed.
     #[arg(long, value_name = "DIR")]
     pub plots: Option<PathBuf>,
+
+    /// Link profile: with `--plots`, find the bursts (a full analysis) and
+    /// mark each on the power plot, and draw the profile's spectral mask on
+    /// the spectrum.
+    ///
+    /// The capture is then read twice (statistics, then the analysis). The
+    /// profile's capture keys apply as in `analyse`; this command's
+    /// `--format`, `--sample-rate`, `--swap-iq` and `--unsigned-zero` win.
+    #[arg(long, short = 'p', value_name = "P", requires = "plots")]
+    pub profile: Option<PathBuf>,
 }
 
 /// Parse `--unsigned-zero`.
@@ -256,6 +266,46 @@ pub(crate) fn parse_format_arg(
     }
 }
 
+/// `info --plots --profile P`: the bursts an analysis finds, as power-plot
+/// marks, and the profile's spectral mask.
+fn info_bursts(
+    args: &InfoArgs,
+    format: Option<SampleFormat>,
+    profile_path: &std::path::Path,
+) -> Result<
+    (
+        Vec<iqaudit::report::capture_plots::BurstMark>,
+        Vec<iqaudit::report::capture_plots::MaskLine>,
+    ),
+    Error,
+> {
+    let mut profile = iqaudit::load_profile(profile_path)?;
+    if args.swap_iq {
+        profile.capture.swap_iq = true;
+    }
+    if let Some(z) = args.unsigned_zero {
+        profile.capture.unsigned_zero = Some(z);
+    }
+    let opts = iqaudit::analyse::AnalyseOptions {
+        format,
+        sample_rate_hz: args.sample_rate,
+        traced_bursts: Some(0),
+        skip_input_hash: true,
+        ..Default::default()
+    };
+    let report = iqaudit::analyse::analyse_capture(&args.capture, &profile, &opts)?;
+    eprintln!(
+        "iqaudit: {}: {} burst(s) found with {}",
+        iqaudit::text::escaped_path(&args.capture),
+        report.bursts.len(),
+        iqaudit::text::escaped_path(profile_path)
+    );
+    Ok((
+        iqaudit::report::plots::burst_marks(&report),
+        iqaudit::report::plots::mask_lines(&report),
+    ))
+}
+
 /// Samples above which `info` shows a progress bar (on a terminal).
 const PROGRESS_MIN_SAMPLES: usize = 64 << 20;
 
@@ -276,6 +326,7 @@ fn run_info(args: &InfoArgs) -> Result<Outcome, Error> {
             Some(args.capture.as_path()),
             capture.sidecar_path(),
             Some(capture.path()),
+            args.profile.as_deref(),
         ];
         let inputs: Vec<&std::path::Path> = inputs.into_iter().flatten().collect();
         iqaudit::atomic::ensure_not_an_input(dir, &inputs)?;
@@ -312,7 +363,11 @@ fn run_info(args: &InfoArgs) -> Result<Outcome, Error> {
         );
     }
     if let Some(dir) = &args.plots {
-        iqaudit::report::capture_plots::write_info_plots(&report, &[], &[], dir)?;
+        let (marks, mask) = match &args.profile {
+            Some(p) => info_bursts(args, format, p)?,
+            None => (Vec::new(), Vec::new()),
+        };
+        iqaudit::report::capture_plots::write_info_plots(&report, &marks, &mask, dir)?;
     }
     for w in &report.warnings {
         eprintln!(

@@ -191,3 +191,66 @@ fn stdout_closed_early_is_not_an_error() {
     assert_eq!(out.status.code(), Some(0), "{err}");
     assert!(!err.contains("iqaudit:"), "{err}");
 }
+
+#[test]
+fn info_plots_with_a_profile_mark_every_burst_the_analysis_finds() {
+    // The shipped bench capture holds 4 bursts (its truth file); the power
+    // plot marks each with its report number, the same marks as
+    // `analyse --plots` draws on its capture view.
+    let dir = tempdir();
+    let samples = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-captures");
+    let cap = samples.join("crane-bench-cable.ci16");
+    let prof = samples.join("crane-bench-cable.ci16.profile.json");
+    let info_dir = dir.path().join("info");
+    let out = iqaudit()
+        .arg("info")
+        .arg(&cap)
+        .arg("--plots")
+        .arg(&info_dir)
+        .arg("--profile")
+        .arg(&prof)
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(0), "{}", stderr_of(&out));
+    assert!(
+        stderr_of(&out).contains("4 burst(s) found"),
+        "{}",
+        stderr_of(&out)
+    );
+    let power = std::fs::read_to_string(info_dir.join("power.svg")).unwrap();
+    for k in 0..4 {
+        assert!(power.contains(&format!(">#{k}<")), "burst {k} not marked");
+    }
+    let an_dir = dir.path().join("analyse");
+    let out = iqaudit()
+        .arg("analyse")
+        .arg(&cap)
+        .arg("--profile")
+        .arg(&prof)
+        .arg("--plots")
+        .arg(&an_dir)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.code().is_some_and(|c| c <= 1),
+        "{}",
+        stderr_of(&out)
+    );
+    let labels = |svg: &str| -> Vec<String> {
+        svg.lines()
+            .filter(|l| l.contains("data-label"))
+            .map(str::to_string)
+            .collect()
+    };
+    let analysed = std::fs::read_to_string(an_dir.join("power.svg")).unwrap();
+    assert_eq!(labels(&power), labels(&analysed));
+    // Without a profile there is nothing to mark; a profile needs --plots.
+    let out = iqaudit()
+        .arg("info")
+        .arg(&cap)
+        .arg("--profile")
+        .arg(&prof)
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2), "{}", stderr_of(&out));
+}
