@@ -90,10 +90,12 @@ pub const MAX_CAPTURE_BYTES: u64 = 1 << 50;
 /// hypothesis count: 2^24 complex f32 = 128 MiB, plus its transforms).
 pub const MAX_SYNC_BANK_SAMPLES: usize = 1 << 24;
 
-/// Most samples `synth` may be asked to write in one capture (2^27 = 134 M
-/// samples, 1 GiB of cf32): the product `lead_gap + bursts × (frame + largest
-/// gap)` is checked before anything is generated.
-pub const MAX_SYNTH_SAMPLES: u64 = 1 << 27;
+/// Most samples `synth` may be asked to write in one capture (2^28 = 268 M
+/// samples, 2 GiB of cf32, held in memory while it is written): the product
+/// `lead_gap + bursts × (frame + largest gap)` is checked before anything is
+/// generated. 2^28 leaves room for the 1.1 GB sparse capture of
+/// `benches/e2e/run.sh` (2000 bursts, gaps up to 70 000 samples).
+pub const MAX_SYNTH_SAMPLES: u64 = 1 << 28;
 
 /// `--jobs` may ask for at most this many worker threads per core
 /// (`std::thread::available_parallelism`); more is refused as a usage error.
