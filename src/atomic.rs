@@ -220,14 +220,22 @@ impl AtomicFile {
             .map(|n| n.to_string_lossy().into_owned())
             .unwrap_or_else(|| "output".to_string());
         let mut live = lock_live();
-        let named = tempfile::Builder::new()
-            .prefix(&format!(".{name}."))
-            .suffix(".tmp")
-            .tempfile_in(&dir)
-            .map_err(|source| WriteError::Io {
-                path: target.to_path_buf(),
-                source,
-            })?;
+        let mut builder = tempfile::Builder::new();
+        let prefix = format!(".{name}.");
+        builder.prefix(&prefix).suffix(".tmp");
+        // Created 0666 less the umask, as any file a program writes: the
+        // temporary name is still exclusive and random, but a report or
+        // capture in a shared folder must stay readable by colleagues once
+        // renamed (tempfile's own default, 0600, would make it private).
+        #[cfg(unix)]
+        {
+            use std::os::unix::fs::PermissionsExt;
+            builder.permissions(std::fs::Permissions::from_mode(0o666));
+        }
+        let named = builder.tempfile_in(&dir).map_err(|source| WriteError::Io {
+            path: target.to_path_buf(),
+            source,
+        })?;
         let (file, temp) = named.into_parts();
         live.push(temp.to_path_buf());
         drop(live);
@@ -464,6 +472,20 @@ mod tests {
         drop(a);
         drop(b);
         assert_eq!(fs::read_dir(dir.path()).unwrap().count(), 0);
+    }
+
+    #[cfg(unix)]
+    #[test]
+    fn a_finished_file_gets_the_mode_of_a_new_file_not_a_private_one() {
+        // Common practice (POSIX open(2)): new files are 0666 less the umask.
+        use std::os::unix::fs::PermissionsExt;
+        let dir = tempfile::tempdir().unwrap();
+        let plain = dir.path().join("plain");
+        std::fs::write(&plain, b"x").unwrap();
+        let target = dir.path().join("report.json");
+        write_atomic(&target, b"{}").unwrap();
+        let mode = |p: &Path| std::fs::metadata(p).unwrap().permissions().mode() & 0o777;
+        assert_eq!(mode(&target), mode(&plain));
     }
 
     #[test]
