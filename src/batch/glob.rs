@@ -1,19 +1,26 @@
-//! The small glob language of `batch --glob`.
+//! The glob language of `batch --glob`, matched by the `globset` crate.
 //!
 //! Takes in: a pattern string and a relative path with `/` separators. Gives
 //! out: whether the path matches. The language (common shell/gitignore practice):
 //!
 //! * `*` matches any run of characters except `/` (possibly empty);
 //! * `?` matches exactly one character except `/`;
+//! * `[abc]`, `[a-z]` match one character of the class, `[!abc]` (or `[^abc]`)
+//!   one not in it; a class never matches `/`;
+//! * `{a,b,c}` matches any of the comma-separated alternatives (each may hold
+//!   wildcards and nested alternatives);
 //! * `**` as a whole path segment matches any number of directories: `**/x`
 //!   matches `x`, `a/x` and `a/b/x`; a trailing `/**` matches everything below;
 //!   `**` elsewhere in a segment acts like `*`;
+//! * `\` escapes the next character (`\*` is a literal star);
 //! * every other character matches itself (case-sensitive);
 //! * a pattern without `/` is matched against the file name alone, so
 //!   `--glob '*.cf32'` finds `.cf32` files at any depth.
 //!
-//! Matching is a dynamic programme over (pattern token, path position), so it is
-//! O(pattern × path) whatever the pattern; no backtracking blow-up.
+//! A malformed pattern (an unclosed `[` or `{`, a reversed range)
+//! is refused with the reason, never read as literal text. Matching is
+//! compiled to a finite automaton by `globset` (the matcher of a well-kept
+//! file-search tool), so it is linear in the path whatever the pattern.
 
 use std::fmt;
 
@@ -24,28 +31,31 @@ pub enum GlobError {
     /// The pattern is empty.
     #[error("the glob pattern is empty; give e.g. '*.cf32' or 'site-a/**/*.wav'")]
     Empty,
-}
-
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-enum Token {
-    Char(char),
-    /// `?`
-    One,
-    /// `*`
-    Star,
-    /// `**/`: empty, or any text that ends with `/`.
-    Dirs,
-    /// trailing `/**` after the slash, or a pattern that is only `**`: anything.
-    Rest,
+    /// The pattern does not parse.
+    #[error("the glob pattern '{pattern}' is malformed: {reason}")]
+    Malformed {
+        /// The pattern as given (control characters escaped).
+        pattern: String,
+        /// Why, in the matcher's words.
+        reason: String,
+    },
 }
 
 /// A compiled glob pattern; see the module documentation.
-#[derive(Debug, Clone, PartialEq, Eq)]
+#[derive(Debug, Clone)]
 pub struct Glob {
     text: String,
-    tokens: Vec<Token>,
+    matcher: globset::GlobMatcher,
     name_only: bool,
 }
+
+impl PartialEq for Glob {
+    fn eq(&self, other: &Glob) -> bool {
+        self.text == other.text
+    }
+}
+
+impl Eq for Glob {}
 
 impl Glob {
     /// Compile a pattern.
@@ -53,7 +63,70 @@ impl Glob {
         if pattern.is_empty() {
             return Err(GlobError::Empty);
         }
-        let name_only = !pattern.contains('/');
+        let glob = globset::GlobBuilder::new(pattern)
+            .literal_separator(true)
+            .backslash_escape(true)
+            .empty_alternates(true)
+            .build()
+            .map_err(|e| GlobError::Malformed {
+                pattern: crate::text::escape_controls(pattern),
+                reason: e.kind().to_string(),
+            })?;
+        Ok(Glob {
+            text: pattern.to_string(),
+            matcher: glob.compile_matcher(),
+            name_only: !pattern.contains('/'),
+        })
+    }
+
+    /// The pattern as given.
+    pub fn as_str(&self) -> &str {
+        &self.text
+    }
+
+    /// Whether `rel_path` (relative, `/`-separated) matches.
+    pub fn is_match(&self, rel_path: &str) -> bool {
+        let subject = if self.name_only {
+            rel_path.rsplit('/').next().unwrap_or(rel_path)
+        } else {
+            rel_path
+        };
+        self.matcher.is_match(subject)
+    }
+}
+
+impl fmt::Display for Glob {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(&self.text)
+    }
+}
+
+impl std::str::FromStr for Glob {
+    type Err = GlobError;
+    fn from_str(s: &str) -> Result<Glob, GlobError> {
+        Glob::new(s)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[derive(Debug, Clone, Copy, PartialEq, Eq)]
+    enum Token {
+        Char(char),
+        /// `?`
+        One,
+        /// `*`
+        Star,
+        /// `**/`: empty, or any text that ends with `/`.
+        Dirs,
+        /// trailing `/**` after the slash, or a pattern that is only `**`: anything.
+        Rest,
+    }
+
+    /// The wildcard subset (`*`, `?`, `**`) as tokens, read by hand.
+    fn tokens(pattern: &str) -> Vec<Token> {
         let chars: Vec<char> = pattern.chars().collect();
         let mut tokens = Vec::with_capacity(chars.len());
         let mut i = 0;
@@ -83,89 +156,8 @@ impl Glob {
             });
             i += 1;
         }
-        Ok(Glob {
-            text: pattern.to_string(),
-            tokens,
-            name_only,
-        })
+        tokens
     }
-
-    /// The pattern as given.
-    pub fn as_str(&self) -> &str {
-        &self.text
-    }
-
-    /// Whether `rel_path` (relative, `/`-separated) matches.
-    pub fn is_match(&self, rel_path: &str) -> bool {
-        let subject = if self.name_only {
-            rel_path.rsplit('/').next().unwrap_or(rel_path)
-        } else {
-            rel_path
-        };
-        let text: Vec<char> = subject.chars().collect();
-        let n = text.len();
-        // next[j]: tokens[i+1..] match text[j..]; cur[j]: tokens[i..] match text[j..].
-        let mut next = vec![false; n + 1];
-        next[n] = true;
-        let mut cur = vec![false; n + 1];
-        for &tok in self.tokens.iter().rev() {
-            match tok {
-                Token::Char(c) => {
-                    cur[n] = false;
-                    for j in 0..n {
-                        cur[j] = text[j] == c && next[j + 1];
-                    }
-                }
-                Token::One => {
-                    cur[n] = false;
-                    for j in 0..n {
-                        cur[j] = text[j] != '/' && next[j + 1];
-                    }
-                }
-                Token::Star => {
-                    cur[n] = next[n];
-                    for j in (0..n).rev() {
-                        cur[j] = next[j] || (text[j] != '/' && cur[j + 1]);
-                    }
-                }
-                Token::Rest => {
-                    cur[n] = next[n];
-                    for j in (0..n).rev() {
-                        cur[j] = next[j] || cur[j + 1];
-                    }
-                }
-                Token::Dirs => {
-                    // ends_here[j]: some k > j with text[k-1] == '/' and next[k].
-                    let mut later = false;
-                    cur[n] = next[n];
-                    for j in (0..n).rev() {
-                        later = (text[j] == '/' && next[j + 1]) || later;
-                        cur[j] = next[j] || later;
-                    }
-                }
-            }
-            std::mem::swap(&mut cur, &mut next);
-        }
-        next[0]
-    }
-}
-
-impl fmt::Display for Glob {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        f.write_str(&self.text)
-    }
-}
-
-impl std::str::FromStr for Glob {
-    type Err = GlobError;
-    fn from_str(s: &str) -> Result<Glob, GlobError> {
-        Glob::new(s)
-    }
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
 
     /// A slow, obviously correct backtracking matcher over the same tokens.
     fn naive(tokens: &[Token], text: &[char]) -> bool {
@@ -249,13 +241,50 @@ mod tests {
                     t.as_str()
                 };
                 let chars: Vec<char> = subject.chars().collect();
-                assert_eq!(g.is_match(t), naive(&g.tokens, &chars), "{p} vs {t:?}");
+                assert_eq!(g.is_match(t), naive(&tokens(p), &chars), "{p} vs {t:?}");
             }
         }
     }
 
     #[test]
-    fn an_empty_pattern_is_refused() {
+    fn classes_and_alternation_follow_common_shell_practice() {
+        // Source: common practice (POSIX shell bracket expressions, `[!…]`
+        // negation; bash/gitignore-style `{a,b}` alternation), cases by hand.
+        let cases: &[(&str, &str, bool)] = &[
+            ("cap-00[1-3].ci16", "cap-002.ci16", true),
+            ("cap-00[1-3].ci16", "cap-004.ci16", false),
+            ("cap-00[1-3].ci16", "site/cap-001.ci16", true),
+            ("cap-[!0]*.ci16", "cap-7.ci16", true),
+            ("cap-[!0]*.ci16", "cap-07.ci16", false),
+            ("[ab].cu8", "a.cu8", true),
+            ("[ab].cu8", "c.cu8", false),
+            ("x[/]y", "x/y", false),
+            ("*.{cf32,ci16}", "a.ci16", true),
+            ("*.{cf32,ci16}", "a.cf32", true),
+            ("*.{cf32,ci16}", "a.wav", false),
+            ("site-{a,b}/**/*.wav", "site-b/day1/x.wav", true),
+            ("site-{a,b}/**/*.wav", "site-c/day1/x.wav", false),
+            ("{north,south}-*.cf32", "south-3.cf32", true),
+            ("{a,{b,c}}.cu8", "c.cu8", true),
+            ("{a,{b,c}}.cu8", "d.cu8", false),
+            ("\\*.cf32", "*.cf32", true),
+            ("\\*.cf32", "a.cf32", false),
+        ];
+        for &(p, path, want) in cases {
+            assert_eq!(Glob::new(p).unwrap().is_match(path), want, "{p} vs {path}");
+        }
+    }
+
+    #[test]
+    fn an_empty_or_malformed_pattern_is_refused_with_the_reason() {
         assert_eq!(Glob::new(""), Err(GlobError::Empty));
+        for p in ["cap[1-3.ci16", "*.{cf32,ci16", "[z-a]"] {
+            let e = Glob::new(p).unwrap_err();
+            assert!(
+                matches!(&e, GlobError::Malformed { pattern, .. } if pattern == p),
+                "{p}: {e:?}"
+            );
+            assert!(e.to_string().contains("malformed"), "{e}");
+        }
     }
 }

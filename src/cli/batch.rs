@@ -63,8 +63,10 @@ pub struct BatchArgs {
 
     /// Only captures whose relative path matches PATTERN (repeatable; any match).
     ///
-    /// `*` and `?` stay within one folder, `**/` spans folders; a pattern without
-    /// `/` is matched against the file name.
+    /// `*` and `?` stay within one folder, `**/` spans folders, `[1-3]` and
+    /// `[!0]` are character classes, `{cf32,ci16}` alternatives, `\` escapes;
+    /// a pattern without `/` is matched against the file name. A malformed
+    /// pattern (unclosed `[` or `{`) is refused.
     #[arg(long = "glob", value_name = "PATTERN", value_parser = parse_glob)]
     pub globs: Vec<Glob>,
 

@@ -604,6 +604,12 @@ fn an_output_folder_inside_the_input_is_not_walked_and_glob_narrows_the_set() {
         paths,
         ["mystery.bin", "site-a/good-1.cf32", "site-a/good-2.cf32"]
     );
+    // Classes and alternation (#19): `[12]` and `{a,b}` are wildcards, not text.
+    let mut o = opts(&input, &dir.path().join("classes"), 2);
+    o.globs = vec![Glob::new("site-{a,z}/good-[2-9].cf32").unwrap()];
+    let c = run_batch_with_messages(&o, job, Box::new(io::sink())).unwrap();
+    let paths: Vec<&str> = c.rows.iter().map(|r| r.path.as_str()).collect();
+    assert_eq!(paths, ["site-a/good-2.cf32"]);
 }
 
 #[test]
