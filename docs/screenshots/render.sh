@@ -23,7 +23,11 @@ bin=target/release/iqaudit
 "$bin" analyse sample-captures/crane-fade.ci16 --plots "$work/fade" >/dev/null || [ $? -eq 1 ]
 "$bin" info sample-captures/bench-noise-floor.cf32 --plots "$work/floor" >/dev/null
 shot() { # url width height file
+  # No network: the page is offline, and these flags stop the browser's own
+  # background connections (a closed network refuses them, slowly).
   "$browser" --headless --no-sandbox --disable-gpu --hide-scrollbars \
+    --disable-quic --no-first-run --disable-background-networking \
+    --disable-component-update --disable-sync --user-data-dir="$work/profile" \
     --force-device-scale-factor=1 --window-size="$2,$3" --screenshot="$4" "$1" 2>/dev/null
 }
 # The top of the page as one screen sees it at 100 % zoom, the whole page in
