@@ -56,7 +56,7 @@ pub enum Command {
     Profile(ProfileArgs),
     /// Make a test capture with known ground truth (FILE + FILE.truth.json).
     Synth(Box<SynthArgs>),
-    /// Print the JSON Schema of a document iqaudit writes (report, info, summary-row, synth-truth, recheck).
+    /// Print the JSON Schema of a document iqaudit writes (report, info, summary-row, burst-row, synth-truth, recheck).
     Schema(SchemaArgs),
     /// Print a shell completion script (bash, zsh, fish, elvish, powershell).
     Completions(CompletionsArgs),

@@ -8,7 +8,9 @@
 //! capture's SHA-256 when the batch has already read the whole file to decide
 //! whether an existing report is up to date (see [`run_batch`]). Gives out: `OUT/<relative path>.report.json` for each
 //! capture (written atomically), `OUT/summary.jsonl` and `OUT/summary.csv`
-//! (see [`summary`] for the columns) and a [`BatchOutcome`].
+//! (see [`summary`] for the columns), the per-burst table `OUT/bursts.jsonl`
+//! and `OUT/bursts.csv` (one row per burst of every analysed capture; see
+//! [`bursts`]) and a [`BatchOutcome`].
 //!
 //! How it runs:
 //!
@@ -31,14 +33,16 @@
 //!    `path: problem` line on stderr; the batch goes on.
 //! 5. Each finished row is appended at once to `OUT/.progress.jsonl`, so a crash
 //!    keeps what was done; at the end the rows, sorted by path, are written
-//!    atomically to the summary files (byte-identical for any `jobs`) and the
-//!    progress log is removed.
-//! 6. Memory holds the list of candidate paths and one summary row per capture;
-//!    the job streams the capture itself.
+//!    atomically to the summary files and the per-burst tables (byte-identical
+//!    for any `jobs`) and the progress log is removed. Unless quiet, every
+//!    capture that failed a limit is listed with the limits it failed.
+//! 6. Memory holds the list of candidate paths, one summary row per capture and
+//!    one burst row (≈ 300 bytes) per burst; the job streams the capture itself.
 //!
 //! With `--shard K/N` the summary files are named `summary.shard-K-of-N.jsonl`
-//! / `.csv` (and the log `.progress.shard-K-of-N.jsonl`), so all shards can share
-//! one output folder; [`merge_summaries`] joins them.
+//! / `.csv`, the burst tables `bursts.shard-K-of-N.jsonl` / `.csv` (and the log
+//! `.progress.shard-K-of-N.jsonl`), so all shards can share one output folder;
+//! [`merge_summaries`] joins them.
 //!
 //! # Exit classes ([`BatchOutcome::exit_code`])
 //!
@@ -52,6 +56,7 @@
 //! Code 2 wins over 1. (The single-capture `analyse` uses 3 for "no training
 //! block"; a batch folds it into 1 and the summary names each such capture.)
 
+pub mod bursts;
 pub mod cancel;
 pub mod glob;
 pub mod progress;
@@ -59,6 +64,7 @@ pub mod shard;
 pub mod summary;
 pub mod walk;
 
+pub use bursts::BurstRow;
 pub use cancel::CancelFlag;
 pub use glob::{Glob, GlobError};
 pub use progress::ProgressMode;
@@ -175,6 +181,16 @@ impl BatchOptions {
         self.out_dir.join(format!("summary{}.csv", self.tag()))
     }
 
+    /// Path of the per-burst JSON Lines table for these options.
+    pub fn bursts_jsonl_path(&self) -> PathBuf {
+        self.out_dir.join(format!("bursts{}.jsonl", self.tag()))
+    }
+
+    /// Path of the per-burst CSV table for these options.
+    pub fn bursts_csv_path(&self) -> PathBuf {
+        self.out_dir.join(format!("bursts{}.csv", self.tag()))
+    }
+
     /// Path of the progress log (removed when the summary is written).
     pub fn progress_log_path(&self) -> PathBuf {
         self.out_dir.join(format!(".progress{}.jsonl", self.tag()))
@@ -227,6 +243,12 @@ pub struct BatchOutcome {
     pub summary_jsonl: PathBuf,
     /// The CSV summary written.
     pub summary_csv: PathBuf,
+    /// The per-burst JSON Lines table written.
+    pub bursts_jsonl: PathBuf,
+    /// The per-burst CSV table written.
+    pub bursts_csv: PathBuf,
+    /// Rows in the per-burst table.
+    pub burst_rows: usize,
 }
 
 impl BatchOutcome {
@@ -390,9 +412,17 @@ where
     let jsonl_path = opts.summary_jsonl_path();
     let csv_path = opts.summary_csv_path();
     let log_path = opts.progress_log_path();
+    let bursts_jsonl = opts.bursts_jsonl_path();
+    let bursts_csv = opts.bursts_csv_path();
     {
         let inputs: Vec<&Path> = entries.iter().map(|e| e.full.as_path()).collect();
-        for p in [&jsonl_path, &csv_path, &log_path] {
+        for p in [
+            &jsonl_path,
+            &csv_path,
+            &log_path,
+            &bursts_jsonl,
+            &bursts_csv,
+        ] {
             ensure_not_an_input(p, &inputs)?;
         }
     }
@@ -419,7 +449,7 @@ where
         messages,
     );
 
-    let results: Vec<Option<(SummaryRow, bool)>> = pool.install(|| {
+    let results: Vec<Option<(SummaryRow, Vec<BurstRow>, bool)>> = pool.install(|| {
         entries
             .par_iter()
             .with_max_len(1)
@@ -429,16 +459,18 @@ where
                 }
                 let worker = rayon::current_thread_index();
                 progress.start(worker, &e.rel);
-                let (row, reused) = process_one(opts, e, &job);
+                let (row, bursts, reused) = process_one(opts, e, &job);
                 append_log(&log, &row);
                 progress.finish(worker, &row, reused);
-                Some((row, reused))
+                Some((row, bursts, reused))
             })
             .collect()
     });
 
     let mut rows = Vec::with_capacity(results.len());
-    for (row, reused) in results.into_iter().flatten() {
+    let mut burst_rows = Vec::new();
+    for (row, bursts, reused) in results.into_iter().flatten() {
+        burst_rows.extend(bursts);
         match row.verdict {
             RowVerdict::Pass => counts.passed += 1,
             RowVerdict::Fail => counts.failed_limits += 1,
@@ -460,9 +492,13 @@ where
 
     progress.clear();
     summary::write_summaries(&mut rows, &jsonl_path, &csv_path)?;
+    bursts::write_burst_tables(&mut burst_rows, &bursts_jsonl, &bursts_csv)?;
     drop(log);
     let _ = fs::remove_file(&log_path);
 
+    for line in failed_limit_lines(&rows) {
+        progress.hint(&line);
+    }
     for hint in hints(&counts) {
         progress.hint(&hint);
     }
@@ -473,6 +509,9 @@ where
         rows,
         summary_jsonl: jsonl_path,
         summary_csv: csv_path,
+        bursts_jsonl,
+        bursts_csv,
+        burst_rows: burst_rows.len(),
     })
 }
 
@@ -512,25 +551,32 @@ fn report_paths(out_dir: &Path, e: &Entry) -> (PathBuf, String) {
 
 /// One capture: reuse its report, or run the job and write the report.
 /// Returns the row and whether the report was reused.
-fn process_one<F>(opts: &BatchOptions, e: &Entry, job: &F) -> (SummaryRow, bool)
+fn process_one<F>(opts: &BatchOptions, e: &Entry, job: &F) -> (SummaryRow, Vec<BurstRow>, bool)
 where
     F: Fn(&Path, Option<&str>) -> Result<Report, JobFailure> + Sync,
 {
     if let Some(msg) = &e.walk_error {
         return (
             SummaryRow::failed(&e.rel, e.bytes, RowVerdict::Unreadable, msg),
+            Vec::new(),
             false,
         );
     }
     let (report_path, report_rel) = report_paths(&opts.out_dir, e);
-    let fail = |verdict, msg: &str| (SummaryRow::failed(&e.rel, e.bytes, verdict, msg), false);
+    let fail = |verdict, msg: &str| {
+        (
+            SummaryRow::failed(&e.rel, e.bytes, verdict, msg),
+            Vec::new(),
+            false,
+        )
+    };
     if let Err(err) = ensure_not_an_input(&report_path, &[&e.full]) {
         return fail(RowVerdict::Error, &err.to_string());
     }
     let mut known_sha256 = None;
     if !opts.force {
         match try_reuse(opts, e, &report_path, &report_rel) {
-            Reuse::UpToDate(row) => return (*row, true),
+            Reuse::UpToDate(row, bursts) => return (*row, bursts, true),
             Reuse::Stale { sha256 } => known_sha256 = sha256,
         }
     }
@@ -576,6 +622,7 @@ where
     match written {
         Ok(()) => (
             SummaryRow::from_report(&e.rel, e.bytes, &report_rel, &report),
+            BurstRow::from_report(&e.rel, &report),
             false,
         ),
         Err(msg) => fail(RowVerdict::Error, &format!("report not written: {msg}")),
@@ -584,8 +631,8 @@ where
 
 /// Whether an existing report can stand for a fresh analysis.
 enum Reuse {
-    /// Made from the same bytes with the same resolved profile: its row.
-    UpToDate(Box<SummaryRow>),
+    /// Made from the same bytes with the same resolved profile: its rows.
+    UpToDate(Box<SummaryRow>, Vec<BurstRow>),
     /// Missing, unreadable or stale; `sha256` is the capture's digest when it
     /// was computed to find that out (passed on to the job).
     Stale { sha256: Option<String> },
@@ -614,12 +661,41 @@ fn try_reuse(opts: &BatchOptions, e: &Entry, report_path: &Path, report_rel: &st
         return stale;
     };
     if sha == report.input.sha256 {
-        Reuse::UpToDate(Box::new(SummaryRow::from_report(
-            &e.rel, e.bytes, report_rel, &report,
-        )))
+        Reuse::UpToDate(
+            Box::new(SummaryRow::from_report(
+                &e.rel, e.bytes, report_rel, &report,
+            )),
+            BurstRow::from_report(&e.rel, &report),
+        )
     } else {
         Reuse::Stale { sha256: Some(sha) }
     }
+}
+
+/// One line per capture that failed a limit, naming the limits (every one,
+/// whatever the progress mode but quiet, so a terminal run lists them all).
+fn failed_limit_lines(rows: &[SummaryRow]) -> Vec<String> {
+    let failed: Vec<&SummaryRow> = rows
+        .iter()
+        .filter(|r| r.verdict == RowVerdict::Fail)
+        .collect();
+    if failed.is_empty() {
+        return Vec::new();
+    }
+    let mut lines = vec![format!(
+        "failed limits ({} capture{}):",
+        failed.len(),
+        if failed.len() == 1 { "" } else { "s" }
+    )];
+    for r in failed {
+        let limits = r.failed_limits.as_deref().unwrap_or("").replace(';', ", ");
+        lines.push(format!(
+            "  {}: {}",
+            crate::text::escape_controls(&r.path),
+            limits
+        ));
+    }
+    lines
 }
 
 fn hints(c: &BatchCounts) -> Vec<String> {

@@ -380,6 +380,16 @@ pub enum MergeError {
         /// The parser's message.
         message: String,
     },
+    /// A line of a per-burst table is not a burst row.
+    #[error("{}: line {line}: not a burst row: {message}", path.display())]
+    BadBurstLine {
+        /// The file.
+        path: PathBuf,
+        /// 1-based line number.
+        line: usize,
+        /// The parser's message.
+        message: String,
+    },
     /// The same capture appears twice (overlapping shards or the same file given twice).
     #[error("{capture}: appears in both {} and {}; shards must not overlap", first.display(), second.display())]
     Duplicate {

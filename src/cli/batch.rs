@@ -135,12 +135,20 @@ fn to_failure(path: &Path, e: Error) -> JobFailure {
 pub fn run_batch_cmd(args: &BatchArgs, argv: &[String]) -> Result<Outcome, Error> {
     if !args.merge.is_empty() {
         let rows = merge_summaries(&args.merge, &args.out)?;
+        let (burst_rows, tables) =
+            iqaudit::batch::bursts::merge_burst_tables(&args.merge, &args.out)?;
         eprintln!(
             "batch: merged {} rows from {} summaries into {}",
             rows.len(),
             args.merge.len(),
             args.out.join("summary.csv").display()
         );
+        if tables > 0 {
+            eprintln!(
+                "batch: merged {burst_rows} burst rows from {tables} per-burst tables into {}",
+                args.out.join("bursts.csv").display()
+            );
+        }
         return Ok(Outcome::Exit(exit_code_for_rows(&rows)));
     }
     let (Some(dir), Some(profile_path)) = (&args.dir, &args.profile) else {

@@ -13,7 +13,7 @@ use super::Outcome;
 /// Arguments of `iqaudit schema`.
 #[derive(Debug, Args)]
 pub struct SchemaArgs {
-    /// Which document: report, info, summary-row, synth-truth or recheck.
+    /// Which document: report, info, summary-row, burst-row, synth-truth or recheck.
     ///
     /// Without NAME (and without --out) the document kinds are listed.
     #[arg(value_name = "NAME")]

@@ -28,7 +28,7 @@ pub struct DocumentKind {
 }
 
 /// Every document kind, in the order `iqaudit schema --list` gives them.
-pub const DOCUMENTS: [DocumentKind; 5] = [
+pub const DOCUMENTS: [DocumentKind; 6] = [
     DocumentKind {
         name: "report",
         id: super::schema::SCHEMA,
@@ -46,6 +46,12 @@ pub const DOCUMENTS: [DocumentKind; 5] = [
         id: crate::batch::summary::SUMMARY_ROW_SCHEMA,
         file: "summary-row.schema.json",
         describes: "one line of batch's summary.jsonl (the CSV has the same columns)",
+    },
+    DocumentKind {
+        name: "burst-row",
+        id: crate::batch::bursts::BURST_ROW_SCHEMA,
+        file: "burst-row.schema.json",
+        describes: "one line of batch's bursts.jsonl (the CSV has the same columns)",
     },
     DocumentKind {
         name: "synth-truth",
@@ -79,7 +85,7 @@ fn root<T: JsonSchema>(kind: &DocumentKind) -> Value {
             )),
         );
         if let Some(props) = o.get_mut("properties").and_then(Value::as_object_mut) {
-            if props.contains_key("schema") && kind.name != "summary-row" {
+            if props.contains_key("schema") && !kind.name.ends_with("-row") {
                 props.insert(
                     "schema".into(),
                     serde_json::json!({"description": "The schema id.", "const": kind.id}),
@@ -96,6 +102,7 @@ pub fn schema_of(kind: &DocumentKind) -> Value {
         "report" => root::<super::schema::Report>(kind),
         "info" => root::<crate::capture::stats::InfoReport>(kind),
         "summary-row" => root::<crate::batch::summary::SummaryRow>(kind),
+        "burst-row" => root::<crate::batch::bursts::BurstRow>(kind),
         "synth-truth" => root::<crate::synth::GroundTruth>(kind),
         _ => root::<crate::recheck::RecheckDocument>(kind),
     }

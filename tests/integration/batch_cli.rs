@@ -197,6 +197,101 @@ fn batch_shards_merge_back_into_the_whole_summary() {
         fs::read(merged.join("summary.jsonl")).unwrap(),
         fs::read(whole.join("summary.jsonl")).unwrap()
     );
+    // The per-burst tables merge the same way (#19).
+    assert!(
+        stderr_of(&m).contains("burst rows from 2 per-burst tables"),
+        "{}",
+        stderr_of(&m)
+    );
+    for name in ["bursts.jsonl", "bursts.csv"] {
+        assert_eq!(
+            fs::read(merged.join(name)).unwrap(),
+            fs::read(whole.join(name)).unwrap(),
+            "{name}"
+        );
+    }
+}
+
+#[test]
+fn the_per_burst_table_carries_every_burst_and_the_terminal_lists_every_failed_limit() {
+    // #19: one row per burst across the folder, each figure copied from the
+    // capture's report; off a terminal (line mode) and on it alike, the
+    // captures that failed a limit are listed with the limits they failed.
+    let dir = tempdir();
+    let prof = profile(dir.path());
+    let mut p: Value = serde_json::from_str(&fs::read_to_string(&prof).unwrap()).unwrap();
+    // An EVM limit that the 14 dB capture fails and the 30 dB ones meet.
+    p["limits"]["evm_rms_percent_max"] = serde_json::json!(8.0);
+    fs::write(&prof, serde_json::to_vec(&p).unwrap()).unwrap();
+    let field = dir.path().join("field");
+    synth(&prof, &field.join("good-1.ci16"), "3");
+    synth(&prof, &field.join("good-2.ci16"), "4");
+    fs::create_dir_all(&field).unwrap();
+    let o = iqaudit()
+        .args(["synth", "--profile"])
+        .arg(&prof)
+        .arg("--out")
+        .arg(field.join("noisy.ci16"))
+        .args(["--bursts", "3", "--seed", "5", "--esn0-db", "14"])
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", stderr_of(&o));
+    let out = dir.path().join("out");
+    let st = iqaudit()
+        .arg("batch")
+        .arg(&field)
+        .arg("-p")
+        .arg(&prof)
+        .arg("-o")
+        .arg(&out)
+        .output()
+        .unwrap();
+    assert_eq!(st.status.code(), Some(1), "{}", stderr_of(&st));
+    let err = stderr_of(&st);
+    assert!(err.contains("failed limits (1 capture):"), "{err}");
+    assert!(
+        err.contains("  noisy.ci16: limits.evm_rms_percent_max"),
+        "{err}"
+    );
+    let rows: Vec<Value> = fs::read_to_string(out.join("bursts.jsonl"))
+        .unwrap()
+        .lines()
+        .map(|l| serde_json::from_str(l).unwrap())
+        .collect();
+    assert_eq!(rows.len(), 2 + 2 + 3);
+    let csv = fs::read_to_string(out.join("bursts.csv")).unwrap();
+    assert_eq!(csv.lines().count(), 1 + rows.len());
+    assert!(csv.starts_with("path,burst,start_sample,start_time_s,"));
+    for row in &rows {
+        let path = row["path"].as_str().unwrap();
+        let report: Value = serde_json::from_str(
+            &fs::read_to_string(out.join(format!("{path}.report.json"))).unwrap(),
+        )
+        .unwrap();
+        let b = &report["bursts"][row["burst"].as_u64().unwrap() as usize];
+        assert_eq!(row["start_sample"], b["start_sample"]);
+        assert_eq!(row["cfo_hz"], b["cfo_hz"]);
+        assert_eq!(row["evm_rms_percent"], b["metrics"]["evm_rms_percent"]);
+        assert_eq!(row["symbol_errors"], b["metrics"]["ser"]["errors"]);
+        let fs_hz = report["input"]["sample_rate_hz"].as_f64().unwrap();
+        let t = b["start_sample"].as_f64().unwrap() / fs_hz;
+        assert_eq!(row["start_time_s"].as_f64(), Some(t));
+    }
+    // Pooled from the table, the SER equals the summary's pooled counts.
+    let pooled: u64 = rows
+        .iter()
+        .map(|r| r["symbol_errors"].as_u64().unwrap())
+        .sum();
+    let summary_errors: u64 = fs::read_to_string(out.join("summary.jsonl"))
+        .unwrap()
+        .lines()
+        .map(|l| {
+            serde_json::from_str::<Value>(l).unwrap()["symbol_errors"]
+                .as_u64()
+                .unwrap()
+        })
+        .sum();
+    assert_eq!(pooled, summary_errors);
 }
 
 #[test]

@@ -197,6 +197,9 @@ fn every_document_iqaudit_writes_validates_against_its_shipped_schema() {
     );
     let summary = out_dir.join("summary.jsonl");
     manifest.push(entry("summary-row", &summary, true, true));
+    let bursts = out_dir.join("bursts.jsonl");
+    assert!(fs::read_to_string(&bursts).unwrap().lines().count() >= 2);
+    manifest.push(entry("burst-row", &bursts, true, true));
     let mut batch_reports = 0;
     for f in fs::read_dir(&out_dir).unwrap() {
         let p = f.unwrap().path();
@@ -283,13 +286,21 @@ fn schema_prints_each_document_kind_and_writes_the_shipped_files() {
         "iqaudit.report/4",
         "iqaudit.info/2",
         "iqaudit.summary-row/2",
+        "iqaudit.burst-row/1",
         "iqaudit.synth-truth/2",
         "iqaudit.recheck/1",
     ] {
         assert!(list.contains(id), "{list}");
     }
     run(iqaudit().arg("schema").arg("--out").arg(dir.path()), &[0]);
-    for name in ["report", "info", "summary-row", "synth-truth", "recheck"] {
+    for name in [
+        "report",
+        "info",
+        "summary-row",
+        "burst-row",
+        "synth-truth",
+        "recheck",
+    ] {
         let written = fs::read(dir.path().join(format!("{name}.schema.json"))).unwrap();
         let shipped = fs::read(schema(name)).unwrap();
         assert!(written == shipped, "{name}: docs/schemas is stale");
