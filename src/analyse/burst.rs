@@ -528,8 +528,7 @@ fn burst_metrics(fig: &PayloadFigures, z: &[Cf32], numbers: &[usize], known: boo
         phase_error_rms_deg: phase_error_rms_deg(z, &fig.reference),
         ser: fig.ser,
         ser_run_aware: fig.ser.and_then(|r| {
-            let events: u64 = run_length_histogram(&fig.runs).iter().sum();
-            RunAwareRate::new(r.errors, events, r.trials, r.confidence)
+            RunAwareRate::new(&run_length_histogram(&fig.runs), r.trials, r.confidence)
         }),
         ber: fig.ber,
         run_length_histogram: run_length_histogram(&fig.runs),

@@ -60,11 +60,18 @@ pub(super) fn summarise(bursts: &[BurstReport]) -> Summary {
     };
     s.ser = total(&|b| b.metrics.ser);
     s.ser_run_aware = s.ser.and_then(|r| {
-        let events: u64 = bursts
-            .iter()
-            .filter_map(|b| b.metrics.ser_run_aware.map(|x| x.events))
-            .sum();
-        crate::report::metrics::RunAwareRate::new(r.errors, events, r.trials, CONFIDENCE)
+        // Every burst's runs pooled: the histograms add entry by entry.
+        let mut hist: Vec<u64> = Vec::new();
+        for b in bursts.iter().filter(|b| b.metrics.ser.is_some()) {
+            let h = &b.metrics.run_length_histogram;
+            if hist.len() < h.len() {
+                hist.resize(h.len(), 0);
+            }
+            for (acc, &n) in hist.iter_mut().zip(h) {
+                *acc += n;
+            }
+        }
+        crate::report::metrics::RunAwareRate::new(&hist, r.trials, CONFIDENCE)
     });
     s.ber = total(&|b| b.metrics.ber);
     s.cfo_abs_max_hz = bursts.iter().map(|b| b.cfo_hz.abs()).reduce(f64::max);

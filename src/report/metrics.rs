@@ -18,7 +18,7 @@
 
 use crate::Cf32;
 use serde::{Deserialize, Serialize};
-use statrs::distribution::{Beta, Continuous, ContinuousCDF};
+use statrs::distribution::{Beta, Continuous, ContinuousCDF, StudentsT};
 
 /// EVM and MER of one block of symbols.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
@@ -148,22 +148,36 @@ impl ErrorRate {
 }
 
 /// An interval for the symbol error rate that holds when errors come in runs
-/// (decision-feedback error propagation): the Clopper–Pearson interval is
-/// taken over error *events* — each run of consecutive wrong decisions counts
-/// once, as error-event analyses of DFE error propagation count them (Jeruchim,
-/// Balaban & Shanmugan, *Simulation of Communication Systems*, 2nd ed., §11.2
-/// on dependent errors — from memory) — and scaled by the mean run length:
-/// `[CP_low(E, N), CP_high(E, N)]·L̄` with `E` events in `N` symbols and
-/// `L̄ = errors/E` (1 when there are none). Independent errors (all runs of
-/// length 1) give exactly the Clopper–Pearson interval; runs of length `L`
-/// widen it by about `√L`. The mean run length is taken as known, so the
-/// spread of the run lengths is not in the interval.
+/// (decision-feedback error propagation). Errors are counted as *events* —
+/// each run of consecutive wrong decisions once, as error-event analyses of
+/// DFE error propagation count them (Jeruchim, Balaban & Shanmugan,
+/// *Simulation of Communication Systems*, 2nd ed., §11.2 on dependent errors —
+/// from memory) — and the rate is events per symbol times the mean run length.
+/// Both factors are uncertain, so the interval joins one interval for each by
+/// the Bonferroni inequality (common practice: two intervals at 1 − α/2 each
+/// hold together with probability ≥ 1 − α):
+///
+/// * the event rate: Clopper–Pearson for `E` events in `N` symbols at 1 − α/2;
+/// * the mean run length `L̄ = errors/E`: Student's t interval
+///   `L̄ ± t(1 − α/4; E − 1)·s/√E` at 1 − α/2, with `s` the sample standard
+///   deviation of the run lengths, and never below 1;
+///
+/// giving `[CP_low·L_low, CP_high·L_high]`. When the run lengths do not spread
+/// (fewer than two events, or every run as long) the run-length factor is
+/// exact and the whole confidence goes to the event interval:
+/// `[CP_low(E, N), CP_high(E, N)]·L̄` at `1 − α`. So independent errors (all
+/// runs of length 1) give exactly the Clopper–Pearson interval, runs of one
+/// length `L` widen it by about `√L`, and spread-out run lengths widen it more.
+/// The t interval assumes the runs are independent and their mean near normal;
+/// with a handful of very uneven runs it is an approximation.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, schemars::JsonSchema)]
 pub struct RunAwareRate {
     /// Error events (runs of consecutive wrong decisions).
     pub events: u64,
     /// Mean run length `errors / events` (1 when there are no errors).
     pub mean_run_length: f64,
+    /// Sample standard deviation of the run lengths (0 with fewer than two runs).
+    pub run_length_sd: f64,
     /// Lower end of the interval.
     pub ci_low: f64,
     /// Upper end of the interval.
@@ -173,10 +187,19 @@ pub struct RunAwareRate {
 }
 
 impl RunAwareRate {
-    /// The interval for `errors` in `trials` symbols grouped into `events` runs;
-    /// `None` when `trials == 0` or the counts are inconsistent.
-    pub fn new(errors: u64, events: u64, trials: u64, confidence: f64) -> Option<RunAwareRate> {
-        if trials == 0 || errors > trials || events > errors || (errors > 0 && events == 0) {
+    /// The interval for `trials` symbols whose wrong decisions form the runs
+    /// of `histogram` (entry `i` counts runs of length `i + 1`, as
+    /// [`run_length_histogram`]); `None` when `trials == 0`, the runs hold
+    /// more errors than there are symbols, or `confidence` is not in (0, 1).
+    pub fn new(histogram: &[u64], trials: u64, confidence: f64) -> Option<RunAwareRate> {
+        let events: u64 = histogram.iter().sum();
+        let (mut errors, mut squares) = (0u64, 0f64);
+        for (i, &h) in histogram.iter().enumerate() {
+            let len = i as u64 + 1;
+            errors = errors.checked_add(h.checked_mul(len)?)?;
+            squares += h as f64 * (len as f64) * (len as f64);
+        }
+        if trials == 0 || errors > trials || !(confidence > 0.0 && confidence < 1.0) {
             return None;
         }
         let l = if events > 0 {
@@ -184,12 +207,30 @@ impl RunAwareRate {
         } else {
             1.0
         };
-        let (lo, hi) = clopper_pearson(events, trials, confidence);
+        let sd = if events >= 2 {
+            let e = events as f64;
+            ((squares - e * l * l).max(0.0) / (e - 1.0)).sqrt()
+        } else {
+            0.0
+        };
+        let alpha = 1.0 - confidence;
+        let (lo, hi, l_lo, l_hi) = if sd > 0.0 {
+            let (lo, hi) = clopper_pearson(events, trials, 1.0 - alpha / 2.0);
+            let t = StudentsT::new(0.0, 1.0, events as f64 - 1.0)
+                .map(|d| d.inverse_cdf(1.0 - alpha / 4.0))
+                .unwrap_or(f64::NAN);
+            let half = t * sd / (events as f64).sqrt();
+            (lo, hi, (l - half).max(1.0), l + half)
+        } else {
+            let (lo, hi) = clopper_pearson(events, trials, confidence);
+            (lo, hi, l, l)
+        };
         Some(RunAwareRate {
             events,
             mean_run_length: l,
-            ci_low: (lo * l).min(1.0),
-            ci_high: (hi * l).min(1.0),
+            run_length_sd: sd,
+            ci_low: (lo * l_lo).min(1.0),
+            ci_high: (hi * l_hi).min(1.0),
             confidence,
         })
     }
@@ -628,17 +669,43 @@ mod tests {
     #[test]
     fn the_run_aware_interval_counts_runs_once() {
         let cp = ErrorRate::new(12, 10_000, 0.95).unwrap();
-        let same = RunAwareRate::new(12, 12, 10_000, 0.95).unwrap();
+        // 12 runs of length 1: exactly Clopper–Pearson.
+        let same = RunAwareRate::new(&[12], 10_000, 0.95).unwrap();
         assert_eq!((same.ci_low, same.ci_high), (cp.ci_low, cp.ci_high));
-        let runs = RunAwareRate::new(12, 3, 10_000, 0.95).unwrap();
+        assert_eq!(same.run_length_sd, 0.0);
+        // 3 runs of length 4: CP over 3 events, times 4.
+        let runs = RunAwareRate::new(&[0, 0, 0, 3], 10_000, 0.95).unwrap();
         let (lo, hi) = clopper_pearson(3, 10_000, 0.95);
         assert_eq!(runs.mean_run_length, 4.0);
         assert!((runs.ci_low - 4.0 * lo).abs() < 1e-15 && (runs.ci_high - 4.0 * hi).abs() < 1e-15);
         assert!(runs.ci_high > cp.ci_high && runs.ci_low < cp.ci_low);
-        let none = RunAwareRate::new(0, 0, 1024, 0.95).unwrap();
+        let none = RunAwareRate::new(&[], 1024, 0.95).unwrap();
         assert!((none.ci_high - 3.596e-3).abs() < 1e-6, "{}", none.ci_high);
-        assert!(RunAwareRate::new(3, 0, 100, 0.95).is_none());
-        assert!(RunAwareRate::new(3, 4, 100, 0.95).is_none());
+        assert!(RunAwareRate::new(&[0, 60], 100, 0.95).is_none());
+        assert!(RunAwareRate::new(&[1], 0, 0.95).is_none());
+    }
+
+    #[test]
+    fn spread_run_lengths_widen_the_interval_by_the_bonferroni_join_of_two_intervals() {
+        // Runs of lengths 1, 1, 2 and 8 (12 errors, 4 events, mean 3, sample
+        // sd √(((1−3)²·2 + (2−3)² + (8−3)²)/3) = √(34/3) ≈ 3.367). Student t
+        // quantile t(0.9875; 3): scipy.stats.t.ppf(0.9875, 3) =
+        // 4.176534846104503. Event interval: CP(4, 10 000) at 97.5 %.
+        let r = RunAwareRate::new(&[2, 1, 0, 0, 0, 0, 0, 1], 10_000, 0.95).unwrap();
+        assert_eq!(r.events, 4);
+        assert_eq!(r.mean_run_length, 3.0);
+        let sd = (34.0f64 / 3.0).sqrt();
+        assert!((r.run_length_sd - sd).abs() < 1e-12);
+        let (lo, hi) = clopper_pearson(4, 10_000, 0.975);
+        let half = 4.176534846104503 * sd / 2.0;
+        assert!((r.ci_high - hi * (3.0 + half)).abs() < 1e-6 * r.ci_high);
+        assert!(
+            (r.ci_low - lo * 1.0).abs() < 1e-15,
+            "the run factor never goes below 1"
+        );
+        // Wider than the interval that takes the mean run length as known.
+        let (lo0, hi0) = clopper_pearson(4, 10_000, 0.95);
+        assert!(r.ci_high > 3.0 * hi0 && r.ci_low < 3.0 * lo0);
     }
 
     #[test]
