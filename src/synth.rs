@@ -84,6 +84,9 @@ use crate::profile::{Modulation, ProfileError, ResolvedProfile};
 use crate::signal::{rrc_impulse, Constellation};
 use crate::{Cf32, Cf64};
 
+mod request;
+pub use request::{synth_files, SynthRequest};
+
 /// Output samples made per block inside a burst (bounds the working memory).
 const BLOCK: usize = 1 << 14;
 

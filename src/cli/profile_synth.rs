@@ -10,10 +10,7 @@ use std::path::PathBuf;
 
 use clap::{Args, Subcommand, ValueEnum};
 use iqaudit::profile::{example_profile, load_profile, ExampleOptions};
-use iqaudit::synth::{
-    default_container, parse_container, parse_taps, write_outputs, ChannelSpec, OutputSpec,
-    SynthSpec, TapSpacing, TimingOffset,
-};
+use iqaudit::synth::{synth_files, SynthRequest, TapSpacing, TimingOffset};
 use iqaudit::{Error, Modulation};
 
 use super::Outcome;
@@ -343,92 +340,37 @@ pub fn run_profile(args: &ProfileArgs) -> Result<Outcome, Error> {
     Ok(Outcome::Ok)
 }
 
-/// Run `iqaudit synth …`; `argv` is recorded in the truth file.
+/// Run `iqaudit synth …`; `argv` is recorded in the truth. The checks and the
+/// writing are the library's ([`iqaudit::synth::synth_files`]).
 pub fn run_synth(args: &SynthArgs, argv: &[String]) -> Result<Outcome, Error> {
-    // The outputs (capture, its sidecar, the truth file) never replace the
-    // profile, and are absent or regular files.
-    let mut truth_name = args.out.as_os_str().to_owned();
-    truth_name.push(".truth.json");
-    let mut meta_name = args.out.as_os_str().to_owned();
-    meta_name.push(".sigmf-meta");
-    let outputs = [
-        args.out.clone(),
-        PathBuf::from(truth_name),
-        args.out.with_extension("sigmf-meta"),
-        PathBuf::from(meta_name),
-    ];
-    for o in &outputs {
-        iqaudit::atomic::ensure_not_an_input(o, &[args.profile.as_path()])?;
-    }
-    iqaudit::atomic::ensure_replaceable(&args.out)?;
-    let profile = load_profile(&args.profile)?;
-    let channel = match &args.channel {
-        None => None,
-        Some(text) => {
-            let taps = parse_taps(text)?;
-            let main_index = args.channel_main.unwrap_or_else(|| {
-                // Largest |tap|, the first on ties (total_cmp: NaN-safe; taps are finite).
-                let mut best = 0;
-                for (i, t) in taps.iter().enumerate() {
-                    if t.norm().total_cmp(&taps[best].norm()).is_gt() {
-                        best = i;
-                    }
-                }
-                best
-            });
-            Some(ChannelSpec {
-                taps,
-                main_index,
-                spacing: match args.channel_spacing {
-                    SpacingArg::Symbol => TapSpacing::Symbol,
-                    SpacingArg::Sample => TapSpacing::Sample,
-                },
-                drift_hz: args.drift_hz,
-            })
-        }
-    };
-    let container = match &args.format {
-        Some(f) => parse_container(f)?,
-        None => default_container(&args.out, &profile)?,
-    };
-    let spec = SynthSpec {
+    let req = SynthRequest {
+        profile: args.profile.clone(),
+        out: args.out.clone(),
+        format: args.format.clone(),
         sample_rate_hz: args.sample_rate,
-        bursts: args.bursts as usize,
+        bursts: args.bursts,
         seed: args.seed,
-        channel,
+        channel: args.channel.clone(),
+        channel_main: args.channel_main,
+        channel_spacing: match args.channel_spacing {
+            SpacingArg::Symbol => TapSpacing::Symbol,
+            SpacingArg::Sample => TapSpacing::Sample,
+        },
+        drift_hz: args.drift_hz,
         esn0_db: args.esn0_db,
         cfo_hz: args.cfo_hz,
-        phase_rad: args.phase_deg.to_radians(),
+        phase_deg: args.phase_deg,
         timing: args.timing_frac,
-        dc_offset: args.dc.unwrap_or([0.0, 0.0]),
+        dc: args.dc,
         iq_gain_db: args.iq_gain_db,
         iq_phase_deg: args.iq_phase_deg,
-        level_dbfs: args.level_dbfs,
-        gap_samples: args.gap,
-        lead_gap_samples: args.lead_gap,
         sco_ppm: args.sco_ppm,
-        profile,
+        level_dbfs: args.level_dbfs,
+        gap: args.gap,
+        lead_gap: args.lead_gap,
+        no_sigmf: args.no_sigmf,
     };
-    // The library's own check (one implementation): ranges, finiteness and
-    // the capture's size, before any output name is touched.
-    spec.validate()?;
-    let output = OutputSpec {
-        container,
-        sigmf_sidecar: !args.no_sigmf && matches!(container, iqaudit::Container::Raw(_)),
-        center_freq_hz: None,
-    };
-    // Every output name is checked before anything is generated: a planted
-    // link at the truth or sidecar name must not leave a capture written and
-    // the run failed half-way.
-    let checked: &[PathBuf] = if output.sigmf_sidecar {
-        &outputs[1..]
-    } else {
-        &outputs[1..2]
-    };
-    for o in checked {
-        iqaudit::atomic::ensure_replaceable(o)?;
-    }
-    let truth = write_outputs(&spec, &args.out, &output, Some(argv.join(" ")))?;
+    let (truth, container) = synth_files(&req, Some(argv.join(" ")))?;
     let clipped = truth.capture.as_ref().map_or(0, |c| c.clipped);
     eprintln!(
         "iqaudit: wrote {} ({} samples, {} bursts, {container}{}) and {}",
