@@ -123,6 +123,38 @@ pub struct AnalyseOptions {
     pub skip_input_hash: bool,
 }
 
+/// `CAPTURE.profile.json` beside the capture: the profile an analysis reads
+/// when none is given.
+pub fn default_profile_path(capture: &Path) -> std::path::PathBuf {
+    let mut s = capture.as_os_str().to_owned();
+    s.push(".profile.json");
+    std::path::PathBuf::from(s)
+}
+
+/// The profile file of an analysis of `capture`: `given`, or
+/// [`default_profile_path`], which must then exist.
+///
+/// # Errors
+/// [`Error::Usage`] saying how to write a profile when none is given and
+/// none lies beside the capture.
+pub fn profile_path_for(capture: &Path, given: Option<&Path>) -> Result<std::path::PathBuf, Error> {
+    if let Some(p) = given {
+        return Ok(p.to_path_buf());
+    }
+    let path = default_profile_path(capture);
+    if !path.exists() {
+        return Err(Error::Usage {
+            message: format!(
+                "{}: no profile given and {} does not exist; write one with `iqaudit profile new > {}` and edit it, or pass --profile",
+                capture.display(),
+                path.display(),
+                path.display()
+            ),
+        });
+    }
+    Ok(path)
+}
+
 /// Analyse one capture (see the module documentation).
 ///
 /// ```

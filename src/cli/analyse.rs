@@ -137,13 +137,6 @@ pub struct RecheckArgs {
     pub allow_outside_symbols: bool,
 }
 
-/// `CAPTURE.profile.json` beside the capture.
-pub fn default_profile_path(capture: &Path) -> PathBuf {
-    let mut s = capture.as_os_str().to_owned();
-    s.push(".profile.json");
-    PathBuf::from(s)
-}
-
 fn outcome_of(report: &Report) -> Outcome {
     match report.verdict.result {
         VerdictResult::Pass => Outcome::Ok,
@@ -210,20 +203,7 @@ pub fn run_analyse(
     let report_to_stdout = args.report.as_deref() == Some(Path::new("-"));
     let report_file = args.report.as_deref().filter(|_| !report_to_stdout);
     let json_out = args.json || report_to_stdout;
-    let profile_path = args
-        .profile
-        .clone()
-        .unwrap_or_else(|| default_profile_path(&args.capture));
-    if args.profile.is_none() && !profile_path.exists() {
-        return Err(Error::Usage {
-            message: format!(
-                "{}: no profile given and {} does not exist; write one with `iqaudit profile new > {}` and edit it, or pass --profile",
-                args.capture.display(),
-                profile_path.display(),
-                profile_path.display()
-            ),
-        });
-    }
+    let profile_path = iqaudit::analyse::profile_path_for(&args.capture, args.profile.as_deref())?;
     let format = super::parse_format_arg(args.format.as_deref(), &args.capture)?;
     let inputs = input_paths(&args.capture, &profile_path);
     let inputs: Vec<&Path> = inputs.iter().map(PathBuf::as_path).collect();
