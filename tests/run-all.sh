@@ -41,6 +41,47 @@ export IQAUDIT_REQUIRE_SIGMF=1
 
 cargo test --release
 
+# ---- Python bindings (#23) ----------------------------------------------------
+# python/ is its own cargo workspace (pyo3 never enters the root build above).
+# Its wheel is built with maturin, its cargo output kept under python/target so
+# the root target/ is untouched, installed with pip, and python/tests run with
+# pytest against the release binary built above (they compare the bindings with
+# the CLI). Every step that cannot run fails the whole run with a banner; pytest
+# collecting no test (its exit 5) fails it too.
+py_banner() {
+  echo "tests: ==================================================================" >&2
+  echo "tests: PYTHON BINDINGS NOT TESTED: $*" >&2
+  echo "tests: ==================================================================" >&2
+  exit 1
+}
+if ! python3 -c "import maturin, pytest, numpy" >/dev/null 2>&1; then
+  python3 -m pip install --quiet "maturin==1.16.0" "pytest==9.2.0" "numpy>=1.21" \
+    || python3 -m pip install --quiet --break-system-packages "maturin==1.16.0" "pytest==9.2.0" "numpy>=1.21" \
+    || py_banner "pip could not install maturin, pytest and numpy"
+fi
+python3 -m maturin --version || py_banner "maturin does not run after installing it"
+cargo build --release --quiet --bin iqaudit || py_banner "the iqaudit binary the tests compare with did not build"
+py_wheels="$(mktemp -d)"
+CARGO_TARGET_DIR="${PWD}/python/target" nice -n 5 python3 -m maturin build --release --quiet \
+  --manifest-path python/Cargo.toml --out "${py_wheels}" \
+  || py_banner "maturin could not build the wheel"
+py_wheel="$(ls "${py_wheels}"/iqaudit-*.whl 2>/dev/null | head -n 1)"
+[ -n "${py_wheel}" ] || py_banner "maturin wrote no wheel to ${py_wheels}"
+echo "ci: built ${py_wheel##*/}"
+python3 -m pip install --quiet --force-reinstall --no-deps "${py_wheel}" \
+  || python3 -m pip install --quiet --force-reinstall --no-deps --break-system-packages "${py_wheel}" \
+  || py_banner "pip could not install ${py_wheel##*/}"
+rm -rf "${py_wheels}"
+py_rc=0
+IQAUDIT_BIN="${PWD}/target/release/iqaudit" python3 -m pytest -q -p no:cacheprovider python/tests || py_rc=$?
+if [ "${py_rc}" -eq 5 ]; then
+  py_banner "pytest collected no test in python/tests"
+elif [ "${py_rc}" -ne 0 ]; then
+  echo "tests: the Python binding tests failed (pytest exit ${py_rc})" >&2
+  exit "${py_rc}"
+fi
+# ---- end of the Python bindings block ------------------------------------------
+
 # ---- Slurm: docs/scaling.md's array job on a single-node cluster (#22) --------
 # tests/cluster/slurm.sh needs root and installs slurm-wlm and munge from Debian
 # when missing; it stops every daemon it started. Exit 77 means Slurm cannot be
