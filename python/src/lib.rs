@@ -181,10 +181,6 @@ fn equivalent_command(
     argv
 }
 
-/// analyse(capture, profile=None, *, format=None, sample_rate=None, threads=None,
-/// traced_bursts=None, allow_outside_symbols=False, hash_input=True)
-/// --
-///
 /// Analyse one capture as `iqaudit analyse` does and return its `Report`.
 ///
 /// `profile` defaults to CAPTURE.profile.json beside the capture. `traced_bursts`
@@ -240,10 +236,6 @@ fn analyse(
     Ok(report::Report::new(report, modulation))
 }
 
-/// info(capture, profile=None, *, format=None, sample_rate=None, swap_iq=None,
-/// unsigned_zero=None, center_freq=None, threads=None)
-/// --
-///
 /// What is in a capture, as the dict `iqaudit info --json` prints (schema
 /// iqaudit.info/2). A `profile` supplies its `capture` section (format, sample
 /// rate, I/Q swap, unsigned zero point) as defaults; the keyword options
@@ -338,13 +330,6 @@ fn parse_timing(v: &Bound<'_, PyAny>) -> PyResult<TimingOffset> {
     Ok(TimingOffset::Fixed(v.extract::<f64>()?))
 }
 
-/// synth(profile, out, *, format=None, sample_rate=None, bursts=1, seed=0,
-/// channel=None, channel_main=None, channel_spacing="symbol", drift_hz=0.0,
-/// esn0_db=None, cfo_hz=0.0, phase_deg=0.0, timing_frac=0.0, dc=None,
-/// iq_gain_db=0.0, iq_phase_deg=0.0, sco_ppm=0.0, level_dbfs=-12.0,
-/// gap=(1000, 3000), lead_gap=0, no_sigmf=False)
-/// --
-///
 /// Write a test capture with known ground truth, as `iqaudit synth` does (the
 /// options are its options, `--` dropped and `-` written `_`); returns
 /// `(capture_path, truth)` with the truth as the dict written to
@@ -355,7 +340,12 @@ fn parse_timing(v: &Bound<'_, PyAny>) -> PyResult<TimingOffset> {
                     channel=None, channel_main=None, channel_spacing="symbol", drift_hz=0.0,
                     esn0_db=None, cfo_hz=0.0, phase_deg=0.0, timing_frac=None, dc=None,
                     iq_gain_db=0.0, iq_phase_deg=0.0, sco_ppm=0.0, level_dbfs=-12.0,
-                    gap=(1000, 3000), lead_gap=0, no_sigmf=false))]
+                    gap=(1000, 3000), lead_gap=0, no_sigmf=false),
+       text_signature = "(profile, out, *, format=None, sample_rate=None, bursts=1, seed=0, \
+                         channel=None, channel_main=None, channel_spacing='symbol', drift_hz=0.0, \
+                         esn0_db=None, cfo_hz=0.0, phase_deg=0.0, timing_frac=0.0, dc=None, \
+                         iq_gain_db=0.0, iq_phase_deg=0.0, sco_ppm=0.0, level_dbfs=-12.0, \
+                         gap=(1000, 3000), lead_gap=0, no_sigmf=False)")]
 #[allow(clippy::too_many_arguments)]
 fn synth(
     py: Python<'_>,
@@ -434,9 +424,6 @@ fn synth(
     Ok((out, to_py(py, &truth)?))
 }
 
-/// recheck(report_path, *, allow_outside_symbols=False, threads=None)
-/// --
-///
 /// Re-run the analysis recorded in a report file and compare every figure, as
 /// `iqaudit recheck --json` does; returns its dict (schema iqaudit.recheck/1:
 /// `reproduces`, `figures_compared`, `differences_total`, `differences`, …).
@@ -463,10 +450,6 @@ fn recheck(
     to_py(py, &doc)
 }
 
-/// profile_new(*, modulation="16qam", sps=4, symbol_rate=250000.0, rolloff=0.25,
-/// payload_symbols=1024)
-/// --
-///
 /// The example link profile `iqaudit profile new` prints, as a dict.
 #[pyfunction]
 #[pyo3(signature = (*, modulation="16qam", sps=4, symbol_rate=250_000.0, rolloff=0.25,
@@ -507,9 +490,6 @@ fn profile_new(
     to_py(py, &p)
 }
 
-/// profile_check(path)
-/// --
-///
 /// Validate a link profile and return it with every default filled in, the
 /// dict `iqaudit profile check` prints.
 #[pyfunction]
