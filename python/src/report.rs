@@ -69,12 +69,29 @@ impl Report {
     }
 
     /// Write the report JSON to `path` atomically, as `--report` does (never
-    /// over the capture); `iqaudit.recheck(path)` can then re-run it.
+    /// over the capture, and with `input.path_from_report`, the capture's path
+    /// from the report's folder, as `--report` records it);
+    /// `iqaudit.recheck(path)` can then re-run it from any working directory.
     fn write_json(&self, path: PathBuf) -> PyResult<()> {
         let input = PathBuf::from(&self.data.input.path);
         iqaudit::atomic::ensure_not_an_input(&path, &[input.as_path()]).or_raise()?;
         iqaudit::atomic::ensure_replaceable(&path).or_raise()?;
-        iqaudit::atomic::write_atomic(&path, &self.json_bytes()?).or_raise()
+        let folder = path.parent().unwrap_or(std::path::Path::new(""));
+        let from_report = iqaudit::recheck::path_from_folder(folder, &input)
+            .map(|p| p.to_string_lossy().into_owned());
+        let json = if from_report == self.data.input.path_from_report {
+            self.json_bytes()?
+        } else {
+            let mut data = (*self.data).clone();
+            data.input.path_from_report = from_report;
+            iqaudit::report::provenance::report_json(&data)
+                .map_err(|e| iqaudit::Error::Io {
+                    path: path.clone(),
+                    source: e.into(),
+                })
+                .or_raise()?
+        };
+        iqaudit::atomic::write_atomic(&path, &json).or_raise()
     }
 
     /// The bursts in capture order, each a `Burst` (traces as numpy arrays).

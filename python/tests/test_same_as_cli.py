@@ -10,7 +10,7 @@ import json
 import pytest
 
 import iqaudit
-from conftest import SAMPLES, captures_with_profiles, every_capture, without_command
+from conftest import REPO, SAMPLES, captures_with_profiles, every_capture, without_command
 
 
 @pytest.mark.parametrize("name", captures_with_profiles())
@@ -106,6 +106,21 @@ def test_a_written_report_rechecks_as_the_cli_rechecks_it(cli, tmp_path):
     assert done.returncode == 0
     assert ours == json.loads(done.stdout)
     assert ours["reproduces"] is True and ours["differences_total"] == 0
+
+
+def test_a_report_written_with_a_relative_capture_is_what_analyse_report_writes(cli, tmp_path, monkeypatch):
+    monkeypatch.chdir(REPO)
+    rel = "sample-captures/crane-bench-cable.ci16"
+    ours, theirs = tmp_path / "ours.json", tmp_path / "cli.json"
+    iqaudit.analyse(rel).write_json(ours)
+    done = cli("analyse", rel, "--report", theirs, cwd=REPO)
+    assert done.returncode == 0, done.stderr
+    # Source: the file `iqaudit analyse --report` writes (with input.path_from_report).
+    assert without_command(ours.read_bytes()) == without_command(theirs.read_bytes())
+    assert json.loads(ours.read_text())["input"]["path_from_report"] is not None
+    # Source: `recheck` finds the capture through path_from_report from another folder.
+    monkeypatch.chdir(tmp_path)
+    assert iqaudit.recheck(ours)["reproduces"] is True
 
 
 def test_the_thread_count_does_not_change_the_report():
