@@ -354,13 +354,7 @@ fn run_info(args: &InfoArgs) -> Result<Outcome, Error> {
     }
     let mut report = info_report(&capture, &stats, &stats_opts);
     if let Some(f) = args.center_freq {
-        report.center_freq_hz = Some(f);
-        report.views = iqaudit::capture::views::capture_views(
-            &stats,
-            report.sample_rate_hz,
-            Some(f),
-            stats_opts.obw_fraction,
-        );
+        report.set_center_freq(&stats, &stats_opts, f);
     }
     if let Some(dir) = &args.plots {
         let (marks, mask) = match &args.profile {

@@ -292,13 +292,7 @@ fn info(
                 let stats = capture_stats(&cap, &stats_opts, &|_| {})?;
                 let mut report = info_report(&cap, &stats, &stats_opts);
                 if let Some(f) = center_freq {
-                    report.center_freq_hz = Some(f);
-                    report.views = iqaudit::capture::views::capture_views(
-                        &stats,
-                        report.sample_rate_hz,
-                        Some(f),
-                        stats_opts.obw_fraction,
-                    );
+                    report.set_center_freq(&stats, &stats_opts, f);
                 }
                 Ok(report)
             })

@@ -249,25 +249,11 @@ pub fn bursts_beside(summary: &Path) -> Option<std::path::PathBuf> {
 
 /// Read the rows of one `bursts*.jsonl` file (blank lines ignored; strict keys).
 pub fn read_bursts_jsonl(path: &Path) -> Result<Vec<BurstRow>, MergeError> {
-    let text = crate::limits::read_small_text(path, crate::limits::MAX_SUMMARY_BYTES).map_err(
-        |source| MergeError::Read {
-            path: path.to_path_buf(),
-            source,
-        },
-    )?;
-    let mut rows = Vec::new();
-    for (i, line) in text.lines().enumerate() {
-        if line.trim().is_empty() {
-            continue;
-        }
-        let row = serde_json::from_str::<BurstRow>(line).map_err(|e| MergeError::BadBurstLine {
-            path: path.to_path_buf(),
-            line: i + 1,
-            message: e.to_string(),
-        })?;
-        rows.push(row);
-    }
-    Ok(rows)
+    super::summary::read_jsonl_rows(path, |path, line, message| MergeError::BadBurstLine {
+        path,
+        line,
+        message,
+    })
 }
 
 /// With `batch --merge`: join the per-burst tables that sit beside the merged

@@ -405,9 +405,13 @@ pub enum MergeError {
     Write(#[from] WriteError),
 }
 
-/// Read the rows of one `summary*.jsonl` file (blank lines ignored).
-pub fn read_summary_jsonl(path: &Path) -> Result<Vec<SummaryRow>, MergeError> {
-    // A regular file of bounded size only (never /dev/zero or a FIFO).
+/// Read one JSON Lines file of rows of type `T` (blank lines ignored): a
+/// regular file of bounded size only (never /dev/zero or a FIFO); `bad_line`
+/// turns (file, 1-based line, parser message) into the caller's error.
+pub(crate) fn read_jsonl_rows<T: serde::de::DeserializeOwned>(
+    path: &Path,
+    bad_line: fn(PathBuf, usize, String) -> MergeError,
+) -> Result<Vec<T>, MergeError> {
     let text = crate::limits::read_small_text(path, crate::limits::MAX_SUMMARY_BYTES).map_err(
         |source| MergeError::Read {
             path: path.to_path_buf(),
@@ -419,14 +423,20 @@ pub fn read_summary_jsonl(path: &Path) -> Result<Vec<SummaryRow>, MergeError> {
         if line.trim().is_empty() {
             continue;
         }
-        let row = serde_json::from_str::<SummaryRow>(line).map_err(|e| MergeError::BadLine {
-            path: path.to_path_buf(),
-            line: i + 1,
-            message: e.to_string(),
-        })?;
+        let row = serde_json::from_str::<T>(line)
+            .map_err(|e| bad_line(path.to_path_buf(), i + 1, e.to_string()))?;
         rows.push(row);
     }
     Ok(rows)
+}
+
+/// Read the rows of one `summary*.jsonl` file (blank lines ignored).
+pub fn read_summary_jsonl(path: &Path) -> Result<Vec<SummaryRow>, MergeError> {
+    read_jsonl_rows(path, |path, line, message| MergeError::BadLine {
+        path,
+        line,
+        message,
+    })
 }
 
 /// Merge per-shard `summary*.jsonl` files into `out_dir/summary.jsonl` and

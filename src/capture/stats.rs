@@ -602,6 +602,17 @@ pub struct InfoWarning {
     pub message: String,
 }
 
+impl InfoReport {
+    /// Take `f` (Hz) as the centre frequency (a `--center-freq` override):
+    /// sets `center_freq_hz` and redraws the views' absolute frequency axis
+    /// from the same statistics.
+    pub fn set_center_freq(&mut self, stats: &CaptureStats, opts: &StatsOptions, f: f64) {
+        self.center_freq_hz = Some(f);
+        self.views =
+            super::views::capture_views(stats, self.sample_rate_hz, Some(f), opts.obw_fraction);
+    }
+}
+
 /// Build the report from a capture and its statistics.
 pub fn info_report(capture: &Capture, stats: &CaptureStats, opts: &StatsOptions) -> InfoReport {
     let fs = capture.sample_rate_hz();
