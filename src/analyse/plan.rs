@@ -240,19 +240,13 @@ impl Plan {
             profile.payload.after_symbols,
         );
         let (before, after) = (before_nominal.min(reach), after_nominal.min(reach));
-        let payload = profile.payload_symbols()?;
-        let (known_before, known_after) = match payload {
-            // The symbols next to the training: the tail of the part before
-            // it, the head of the part after it.
-            Some(p) => {
-                let mut b = p.before;
-                b.drain(..b.len().saturating_sub(before));
-                let mut a = p.after;
-                a.truncate(after);
-                (Some(b), Some(a))
-            }
-            None => (None, None),
-        };
+        // The symbols next to the training only (the tail of the part before
+        // it, the head of the part after it), generated without the rest.
+        let (known_before, known_after) =
+            match profile.payload_symbols_near_training(before, after)? {
+                Some(p) => (Some(p.before), Some(p.after)),
+                None => (None, None),
+            };
         let window = WindowCost::new(
             &training,
             burst_cfg.channel.span,

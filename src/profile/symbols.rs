@@ -156,4 +156,62 @@ impl ResolvedProfile {
             after: after.to_vec(),
         }))
     }
+
+    /// The known payload symbols next to the training only: the last
+    /// `before_keep` of the part before it and the first `after_keep` of the
+    /// part after it (each at most the profile's count), the same symbols as
+    /// the matching ends of [`payload_symbols`](Self::payload_symbols). A PRBS
+    /// rule is stepped through the symbols it skips in a fixed scratch block,
+    /// so memory follows what is kept (what a capture can hold), never the
+    /// profile's payload length.
+    pub fn payload_symbols_near_training(
+        &self,
+        before_keep: usize,
+        after_keep: usize,
+    ) -> Result<Option<PayloadSymbols>, ProfileError> {
+        let p = &self.payload;
+        let (before_keep, after_keep) = (
+            before_keep.min(p.before_symbols),
+            after_keep.min(p.after_symbols),
+        );
+        match &p.known {
+            None => Ok(None),
+            Some(ResolvedPayloadRule::Prbs {
+                polynomial,
+                seed,
+                inverted,
+                ..
+            }) => {
+                let [deg, a] = *polynomial;
+                let mut lfsr = Lfsr::new(deg, &[deg, a], *seed)
+                    .map_err(|e| ProfileError::InvalidValue {
+                        key: "payload.known".to_string(),
+                        expected: "a valid PRBS register".into(),
+                        found: e.to_string(),
+                    })?
+                    .with_inversion(*inverted);
+                let c = Constellation::new(p.modulation);
+                let mut scratch = [Cf32::new(0.0, 0.0); 4096];
+                let mut skip = p.before_symbols - before_keep;
+                while skip > 0 {
+                    let n = skip.min(scratch.len());
+                    lfsr.fill_symbols(&c, &mut scratch[..n]);
+                    skip -= n;
+                }
+                let mut before = vec![Cf32::new(0.0, 0.0); before_keep];
+                lfsr.fill_symbols(&c, &mut before);
+                let mut after = vec![Cf32::new(0.0, 0.0); after_keep];
+                lfsr.fill_symbols(&c, &mut after);
+                Ok(Some(PayloadSymbols { before, after }))
+            }
+            // A symbols file is read whole: its size is the file's, an input.
+            Some(ResolvedPayloadRule::SymbolsFile { .. }) => {
+                Ok(self.payload_symbols()?.map(|mut s| {
+                    s.before.drain(..s.before.len() - before_keep);
+                    s.after.truncate(after_keep);
+                    s
+                }))
+            }
+        }
+    }
 }

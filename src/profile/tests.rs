@@ -296,3 +296,33 @@ fn a_resolved_profile_with_overflowing_tap_counts_fails_validate_without_panicki
     r.pulse.rolloff = 0.0;
     assert_eq!(r.validate().unwrap_err().key(), Some("pulse.rolloff"));
 }
+
+#[test]
+fn the_payload_next_to_the_training_is_the_matching_ends_of_the_whole_payload() {
+    // The slow reference is the whole payload generated at once; the
+    // near-training form must give exactly its tail before and head after.
+    let mut p = example_profile(&ExampleOptions::default());
+    p.payload.position = Some(PayloadPosition::Both);
+    p.payload.length_symbols = None;
+    p.payload.length_before_symbols = Some(9000);
+    p.payload.length_after_symbols = Some(7000);
+    let r = p.resolve().unwrap();
+    let whole = r
+        .payload_symbols()
+        .unwrap()
+        .expect("the example payload is known");
+    for (b, a) in [
+        (0, 0),
+        (1, 1),
+        (4095, 4097),
+        (8191, 3),
+        (9000, 7000),
+        (20_000, 20_000),
+    ] {
+        let near = r.payload_symbols_near_training(b, a).unwrap().unwrap();
+        let b = b.min(9000);
+        let a = a.min(7000);
+        assert_eq!(near.before, whole.before[9000 - b..], "before {b}");
+        assert_eq!(near.after, whole.after[..a], "after {a}");
+    }
+}
