@@ -1,6 +1,6 @@
 //! The report's theory bounds and the SER limit judged on its upper bound (#19).
 
-use crate::util::{iqaudit, stderr_of, tempdir};
+use crate::util::{analyse_json, iqaudit, stderr_of, tempdir};
 use serde_json::Value;
 use std::path::{Path, PathBuf};
 
@@ -32,15 +32,8 @@ fn analyse(dir: &Path, prof: &Path, extra: &[&str]) -> (Value, Option<i32>) {
         .output()
         .unwrap();
     assert!(out.status.success(), "{}", stderr_of(&out));
-    let out = iqaudit()
-        .args(["analyse", "--json", "--profile"])
-        .arg(prof)
-        .arg(&cap)
-        .output()
-        .unwrap();
-    let rep: Value =
-        serde_json::from_slice(&out.stdout).unwrap_or_else(|e| panic!("{e}: {}", stderr_of(&out)));
-    (rep, out.status.code())
+    let (rep, code, _) = analyse_json(prof, &cap, &[]);
+    (rep, code)
 }
 
 #[test]

@@ -4,7 +4,7 @@
 //! and noise before the resampling) at 0, 24 and 100 ppm, QPSK, a 20 000-symbol
 //! payload, Es/N0 25 dB; the 0.5 dB EVM budget is the acceptance figure.
 
-use crate::util::{iqaudit, stderr_of, tempdir};
+use crate::util::{analyse_json, iqaudit, stderr_of, tempdir};
 use serde_json::{json, Value};
 use std::path::{Path, PathBuf};
 
@@ -52,14 +52,7 @@ fn run(dir: &Path, prof: &Path, ppm: f64) -> (Value, Value) {
             .unwrap();
         assert!(out.status.success(), "{}", stderr_of(&out));
     }
-    let out = iqaudit()
-        .args(["analyse", "--json", "--profile"])
-        .arg(prof)
-        .arg(&cap)
-        .output()
-        .unwrap();
-    let rep: Value =
-        serde_json::from_slice(&out.stdout).unwrap_or_else(|e| panic!("{e}: {}", stderr_of(&out)));
+    let (rep, _, _) = analyse_json(prof, &cap, &[]);
     let truth: Value = serde_json::from_slice(
         &std::fs::read(dir.join(format!("sco{ppm}.cf32.truth.json"))).unwrap(),
     )

@@ -7,20 +7,14 @@
 //! seed: same symbols and noise), so the reference is what the correction must
 //! give back; the 0.3 dB and 5 % budgets are the acceptance figures.
 
-use crate::util::{iqaudit, stderr_of, tempdir, test_data};
+use crate::util::{analyse_json, cf32_profile, iqaudit, stderr_of, tempdir, test_data};
 use serde_json::Value;
 use std::path::{Path, PathBuf};
 
 /// A QPSK profile (64-symbol training, 1024-symbol known payload) as cf32 with
 /// the DC and IQ-imbalance fits set as asked.
 fn profile(dir: &Path, name: &str, dc: bool, iq: bool) -> PathBuf {
-    let out = iqaudit()
-        .args(["profile", "new", "--modulation", "qpsk"])
-        .output()
-        .unwrap();
-    assert!(out.status.success(), "{}", stderr_of(&out));
-    let mut p: Value = serde_json::from_slice(&out.stdout).unwrap();
-    p["capture"]["format"] = "cf32_le".into();
+    let mut p = cf32_profile("qpsk");
     p["channel_fit"]["dc_offset"] = dc.into();
     p["channel_fit"]["iq_imbalance"] = iq.into();
     let path = dir.join(name);
@@ -50,14 +44,7 @@ fn run(dir: &Path, name: &str, synth_prof: &Path, prof: &Path, extra: &[&str]) -
         .output()
         .unwrap();
     assert!(out.status.success(), "{}", stderr_of(&out));
-    let out = iqaudit()
-        .args(["analyse", "--json", "--profile"])
-        .arg(prof)
-        .arg(&cap)
-        .output()
-        .unwrap();
-    let rep: Value =
-        serde_json::from_slice(&out.stdout).unwrap_or_else(|e| panic!("{e}: {}", stderr_of(&out)));
+    let (rep, _, _) = analyse_json(prof, &cap, &[]);
     assert_eq!(rep["bursts"].as_array().unwrap().len(), 8, "{name}");
     rep
 }

@@ -13,17 +13,11 @@ use iqaudit::UnsignedZero;
 use serde_json::{json, Value};
 
 use crate::sigmf_library::{manifest_entry, reference_library_available, run_checker};
-use crate::util::{iqaudit, stderr_of, tempdir};
+use crate::util::{analyse_json, cf32_profile, iqaudit, stderr_of, tempdir};
 
 /// A QPSK profile as cf32 at 1 MS/s, centre 458.5 MHz (the example's).
 fn profile(dir: &Path) -> PathBuf {
-    let out = iqaudit()
-        .args(["profile", "new", "--modulation", "qpsk"])
-        .output()
-        .unwrap();
-    assert!(out.status.success(), "{}", stderr_of(&out));
-    let mut p: Value = serde_json::from_slice(&out.stdout).unwrap();
-    p["capture"]["format"] = "cf32_le".into();
+    let p = cf32_profile("qpsk");
     let path = dir.join("link.profile.json");
     std::fs::write(&path, serde_json::to_vec_pretty(&p).unwrap()).unwrap();
     path
@@ -48,16 +42,8 @@ fn synth(dir: &Path, prof: &Path, cfo: &str) -> (PathBuf, Vec<Value>) {
 }
 
 fn analyse(cap: &Path, prof: &Path, extra: &[&str]) -> (Value, String) {
-    let out = iqaudit()
-        .args(["analyse", "--json", "--profile"])
-        .arg(prof)
-        .arg(cap)
-        .args(extra)
-        .output()
-        .unwrap();
-    let rep: Value =
-        serde_json::from_slice(&out.stdout).unwrap_or_else(|e| panic!("{e}: {}", stderr_of(&out)));
-    (rep, stderr_of(&out))
+    let (rep, _, err) = analyse_json(prof, cap, extra);
+    (rep, err)
 }
 
 #[test]

@@ -28,3 +28,36 @@ pub fn test_data(rel: &str) -> PathBuf {
 pub fn stderr_of(out: &std::process::Output) -> String {
     String::from_utf8_lossy(&out.stderr).into_owned()
 }
+
+/// `iqaudit analyse --json --profile PROF CAP EXTRA…`: the report, the exit
+/// code and stderr. Panics with stderr when stdout is not a JSON report.
+pub fn analyse_json(
+    prof: &Path,
+    cap: &Path,
+    extra: &[&str],
+) -> (serde_json::Value, Option<i32>, String) {
+    let out = iqaudit()
+        .args(["analyse", "--json", "--profile"])
+        .arg(prof)
+        .arg(cap)
+        .args(extra)
+        .output()
+        .expect("run iqaudit analyse");
+    let rep =
+        serde_json::from_slice(&out.stdout).unwrap_or_else(|e| panic!("{e}: {}", stderr_of(&out)));
+    (rep, out.status.code(), stderr_of(&out))
+}
+
+/// `iqaudit profile new --modulation M` with `capture.format` set to `cf32_le`
+/// (what `synth --out NAME.cf32` writes), as JSON to edit further.
+pub fn cf32_profile(modulation: &str) -> serde_json::Value {
+    let out = iqaudit()
+        .args(["profile", "new", "--modulation", modulation])
+        .output()
+        .expect("run iqaudit profile new");
+    assert!(out.status.success(), "{}", stderr_of(&out));
+    let mut p: serde_json::Value =
+        serde_json::from_slice(&out.stdout).expect("profile new prints JSON");
+    p["capture"]["format"] = "cf32_le".into();
+    p
+}
